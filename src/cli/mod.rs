@@ -1,0 +1,282 @@
+//! Command-line definition (clap derive) and the step that turns raw options into typed
+//! settings before any work starts.
+
+use std::path::PathBuf;
+
+use anyhow::{bail, Context, Result};
+use clap::{Args, Parser, Subcommand, ValueEnum};
+
+use kickscan::capture::{RawKind, ReadOptions};
+use kickscan::measure::{CurrentThrough, MeasureOptions, PolarityChoice};
+use kickscan::pipeline::Settings;
+use kickscan::units::parse_si;
+
+pub mod simulate;
+
+#[derive(Parser, Debug)]
+#[command(
+    name = "kickscan",
+    version,
+    about = "Measure inductive turn-off spikes in oscilloscope captures",
+    long_about = "kickscan reads oscilloscope exports of inductive turn-off events (relay, \
+solenoid, contactor and motor coils switched by a transistor), finds every switching edge, \
+measures each flyback spike, and reports worst cases and margins over many switchings.\n\n\
+Exit codes: 0 all good, 1 some input failed, 2 usage error, 3 a --fail-* limit was crossed.",
+    after_help = "Examples:\n  kickscan demo\n  kickscan inspect capture.csv\n  kickscan measure captures/ --supply 24V --rating 60V\n  kickscan measure run7.wav --signal CH1 --current i_coil --json"
+)]
+pub struct Cli {
+    #[command(subcommand)]
+    pub command: Command,
+}
+
+// Clap builds the command once per run; the size of its variants does not matter.
+#[allow(clippy::large_enum_variant)]
+#[derive(Subcommand, Debug)]
+pub enum Command {
+    /// Show what the readers understood of each file (format, columns, units, interval).
+    #[command(
+        after_help = "Examples:\n  kickscan inspect scope.csv\n  kickscan inspect run7.wav --json"
+    )]
+    Inspect {
+        /// Files to read.
+        #[arg(required = true)]
+        inputs: Vec<PathBuf>,
+        /// Print the kickscan.inspect/1 JSON document instead of text.
+        #[arg(long)]
+        json: bool,
+        #[command(flatten)]
+        read: ReadArgs,
+    },
+    /// Find and measure every turn-off event in files or folders.
+    #[command(
+        after_help = "Examples:\n  kickscan measure bench/valve1/ --supply 24V --rating 60V\n  kickscan measure scope.csv --signal CH1 --current CH2 --json\n  kickscan measure runs/ --fail-above 48V   # exit 3 if any spike exceeds 48 V"
+    )]
+    Measure {
+        /// Capture files or folders (searched recursively).
+        #[arg(required = true)]
+        inputs: Vec<PathBuf>,
+        /// Print the kickscan.measure/1 JSON document on stdout.
+        #[arg(long)]
+        json: bool,
+        /// Write the report folder (HTML, CSV, JSON, plots) here.
+        #[arg(long, value_name = "DIR")]
+        out: Option<PathBuf>,
+        #[command(flatten)]
+        read: ReadArgs,
+        #[command(flatten)]
+        analysis: AnalysisArgs,
+    },
+    /// Synthesize captures of a coil switched off with a chosen clamp.
+    Simulate(simulate::SimulateArgs),
+}
+
+/// How to read the files.
+#[derive(Args, Debug, Clone, Default)]
+pub struct ReadArgs {
+    /// Sample interval when the file has no time base (e.g. 2ns, 1e-8).
+    #[arg(long, value_name = "S")]
+    pub dt: Option<String>,
+    /// Sample rate when the file has no time base (e.g. 500M, 1GHz).
+    #[arg(long, value_name = "HZ", conflicts_with = "dt")]
+    pub sample_rate: Option<String>,
+    /// Read files as raw little-endian sample dumps of this type.
+    #[arg(long, value_enum)]
+    pub raw: Option<RawArg>,
+    /// Multiply a channel by a factor (probe attenuation, shunt): NAME=FACTOR, repeatable.
+    #[arg(long, value_name = "NAME=FACTOR")]
+    pub scale: Vec<String>,
+    /// Shift a channel in time (probe and cable delay): NAME=S, repeatable.
+    #[arg(long, value_name = "NAME=S")]
+    pub skew: Vec<String>,
+    /// CSV delimiter, when sniffing guesses wrong: comma, semicolon, tab.
+    #[arg(long, value_enum)]
+    pub delimiter: Option<DelimiterArg>,
+    /// CSV decimal mark, when sniffing guesses wrong.
+    #[arg(long, value_enum)]
+    pub decimal: Option<DecimalArg>,
+}
+
+#[derive(ValueEnum, Debug, Clone, Copy)]
+pub enum RawArg {
+    I8,
+    I16,
+    I32,
+    F32,
+    F64,
+}
+
+#[derive(ValueEnum, Debug, Clone, Copy)]
+pub enum DelimiterArg {
+    Comma,
+    Semicolon,
+    Tab,
+}
+
+#[derive(ValueEnum, Debug, Clone, Copy)]
+pub enum DecimalArg {
+    Point,
+    Comma,
+}
+
+#[derive(ValueEnum, Debug, Clone, Copy, Default)]
+pub enum PolarityArg {
+    #[default]
+    Auto,
+    Up,
+    Down,
+}
+
+#[derive(ValueEnum, Debug, Clone, Copy, Default)]
+pub enum ThroughArg {
+    #[default]
+    Switch,
+    Coil,
+}
+
+/// What to measure and against what.
+#[derive(Args, Debug, Clone, Default)]
+pub struct AnalysisArgs {
+    /// Switch-node voltage channel: header name, number (data columns from 1), or A-B.
+    #[arg(long, value_name = "NAME|N")]
+    pub signal: Option<String>,
+    /// Coil or switch current channel (amperes): header name or number.
+    #[arg(long, value_name = "NAME|N")]
+    pub current: Option<String>,
+    /// Where the current probe sits; decides which energies are reported.
+    #[arg(long, value_enum, default_value_t = ThroughArg::Switch)]
+    pub current_through: ThroughArg,
+    /// Spike direction: up for a low-side switch, down for a high-side switch.
+    #[arg(long, value_enum, default_value_t = PolarityArg::Auto)]
+    pub polarity: PolarityArg,
+    /// Supply voltage (e.g. 24V).
+    #[arg(long, value_name = "V")]
+    pub supply: Option<String>,
+    /// Switch voltage rating (e.g. 60V): margins, derating and warnings.
+    #[arg(long, value_name = "V")]
+    pub rating: Option<String>,
+    /// Coil inductance (e.g. 200mH): node capacitance and coil energy.
+    #[arg(long, value_name = "H")]
+    pub inductance: Option<String>,
+    /// Coil current at turn-off when there is no current channel (e.g. 75mA).
+    #[arg(long, value_name = "A")]
+    pub coil_current: Option<String>,
+    /// Switching rate, for snubber dissipation (e.g. 20kHz).
+    #[arg(long, value_name = "HZ")]
+    pub switching_rate: Option<String>,
+    /// Longest event window kept (e.g. 5ms); longer events are marked truncated.
+    #[arg(long, value_name = "S")]
+    pub max_window: Option<String>,
+    /// Settle band in percent of the step.
+    #[arg(long, value_name = "PCT", default_value = "5")]
+    pub settle_band: String,
+    /// On-state dwell before an edge counts (derived from the data by default).
+    #[arg(long, value_name = "S")]
+    pub min_on_time: Option<String>,
+    /// Label for this set of captures in reports.
+    #[arg(long)]
+    pub label: Option<String>,
+    /// Exit with code 3 if any event's switch stress exceeds this (e.g. 48V).
+    #[arg(long, value_name = "V")]
+    pub fail_above: Option<String>,
+    /// Exit with code 3 if any event's switch energy exceeds this (e.g. 2mJ).
+    #[arg(long, value_name = "J")]
+    pub fail_energy: Option<String>,
+    /// Skip the model fit (faster).
+    #[arg(long)]
+    pub no_fit: bool,
+    /// Print no progress bar.
+    #[arg(long, short)]
+    pub quiet: bool,
+}
+
+fn opt_si(name: &str, v: &Option<String>, unit: &str) -> Result<Option<f64>> {
+    v.as_deref()
+        .map(|s| parse_si(s, Some(unit)).with_context(|| format!("--{name}")))
+        .transpose()
+}
+
+fn pairs(name: &str, items: &[String], unit: Option<&str>) -> Result<Vec<(String, f64)>> {
+    items
+        .iter()
+        .map(|item| {
+            let Some((k, v)) = item.rsplit_once('=') else {
+                bail!("--{name} {item}: expected NAME=VALUE");
+            };
+            let value = parse_si(v, unit).with_context(|| format!("--{name} {item}"))?;
+            Ok((k.trim().to_string(), value))
+        })
+        .collect()
+}
+
+impl ReadArgs {
+    pub fn to_options(&self) -> Result<ReadOptions> {
+        let dt_s = match (&self.dt, &self.sample_rate) {
+            (Some(_), _) => opt_si("dt", &self.dt, "s")?,
+            (None, Some(_)) => opt_si("sample-rate", &self.sample_rate, "Hz")?.map(|f| 1.0 / f),
+            _ => None,
+        };
+        if let Some(dt) = dt_s {
+            if dt <= 0.0 {
+                bail!("--dt/--sample-rate: the sample interval must be positive");
+            }
+        }
+        Ok(ReadOptions {
+            dt_s,
+            raw: self.raw.map(|r| match r {
+                RawArg::I8 => RawKind::I8,
+                RawArg::I16 => RawKind::I16,
+                RawArg::I32 => RawKind::I32,
+                RawArg::F32 => RawKind::F32,
+                RawArg::F64 => RawKind::F64,
+            }),
+            scale: pairs("scale", &self.scale, None)?,
+            skew: pairs("skew", &self.skew, Some("s"))?,
+            delimiter: self.delimiter.map(|d| match d {
+                DelimiterArg::Comma => b',',
+                DelimiterArg::Semicolon => b';',
+                DelimiterArg::Tab => b'\t',
+            }),
+            decimal_comma: self.decimal.map(|d| matches!(d, DecimalArg::Comma)),
+        })
+    }
+}
+
+impl AnalysisArgs {
+    pub fn to_settings(&self, read: ReadOptions) -> Result<Settings> {
+        let settle_band_pct = parse_si(&self.settle_band, Some("%"))
+            .or_else(|_| parse_si(self.settle_band.trim_end_matches('%'), None))
+            .context("--settle-band")?;
+        if !(settle_band_pct > 0.0 && settle_band_pct < 100.0) {
+            bail!("--settle-band: expected a percentage between 0 and 100");
+        }
+        let measure = MeasureOptions {
+            polarity: match self.polarity {
+                PolarityArg::Auto => PolarityChoice::Auto,
+                PolarityArg::Up => PolarityChoice::Up,
+                PolarityArg::Down => PolarityChoice::Down,
+            },
+            supply_v: opt_si("supply", &self.supply, "V")?,
+            rating_v: opt_si("rating", &self.rating, "V")?,
+            inductance_h: opt_si("inductance", &self.inductance, "H")?,
+            coil_current_a: opt_si("coil-current", &self.coil_current, "A")?,
+            current_through: match self.current_through {
+                ThroughArg::Switch => CurrentThrough::Switch,
+                ThroughArg::Coil => CurrentThrough::Coil,
+            },
+            max_window_s: opt_si("max-window", &self.max_window, "s")?,
+            settle_band_pct,
+            min_on_time_s: opt_si("min-on-time", &self.min_on_time, "s")?,
+        };
+        Ok(Settings {
+            read,
+            measure,
+            signal: self.signal.clone(),
+            current: self.current.clone(),
+            label: self.label.clone(),
+            switching_rate_hz: opt_si("switching-rate", &self.switching_rate, "Hz")?,
+            fail_above_v: opt_si("fail-above", &self.fail_above, "V")?,
+            fail_energy_j: opt_si("fail-energy", &self.fail_energy, "J")?,
+            no_fit: self.no_fit,
+        })
+    }
+}

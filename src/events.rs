@@ -1,0 +1,1 @@
+//! Turn-off edges: 50 % reference-level crossings after an on-state dwell.

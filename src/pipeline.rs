@@ -1,0 +1,315 @@
+//! Strings the stages together for the commands: expand inputs, read, measure, fit and
+//! summarise, in parallel over files, with results in input order.
+
+use std::path::{Path, PathBuf};
+
+use rayon::prelude::*;
+
+use crate::capture::{self, Capture, ReadOptions};
+use crate::document::{
+    CaptureDoc, FileError, InspectChannel, InspectDoc, InspectFile, MeasureDoc, Summary,
+    INSPECT_SCHEMA, MEASURE_SCHEMA,
+};
+use crate::measure::{self, MeasureOptions, Trace};
+
+/// Typed settings for a run, after the command line has been checked.
+#[derive(Debug, Clone, Default)]
+pub struct Settings {
+    pub read: ReadOptions,
+    pub measure: MeasureOptions,
+    /// Switch-node channel (`--signal`); the first voltage channel when `None`.
+    pub signal: Option<String>,
+    /// Current channel (`--current`); a channel whose unit is amperes when `None`.
+    pub current: Option<String>,
+    pub label: Option<String>,
+    pub switching_rate_hz: Option<f64>,
+    pub fail_above_v: Option<f64>,
+    pub fail_energy_j: Option<f64>,
+    pub no_fit: bool,
+}
+
+/// File extensions that are sidecars or reports, never captures, when walking folders.
+const SKIP_EXTENSIONS: &[&str] = &["json", "md", "txt", "html", "png", "svg", "parquet", "cir"];
+
+/// Expands folders (recursively, sorted by path so runs are repeatable) into files. Files
+/// named explicitly are always kept; in folders, sidecars and reports are left out.
+pub fn collect_inputs(inputs: &[PathBuf]) -> (Vec<PathBuf>, Vec<FileError>) {
+    let mut files = Vec::new();
+    let mut errors = Vec::new();
+    for input in inputs {
+        match std::fs::metadata(input) {
+            Ok(m) if m.is_dir() => walk(input, &mut files, &mut errors, 0),
+            Ok(_) => files.push(input.clone()),
+            Err(e) => errors.push(FileError {
+                file: input.display().to_string(),
+                error: format!("{}: {e}", input.display()),
+            }),
+        }
+    }
+    (files, errors)
+}
+
+fn walk(dir: &Path, files: &mut Vec<PathBuf>, errors: &mut Vec<FileError>, depth: usize) {
+    // A symlink loop would recurse forever; real capture trees are shallow.
+    if depth > 32 {
+        errors.push(FileError {
+            file: dir.display().to_string(),
+            error: format!(
+                "{}: folders nested deeper than 32 levels (a symlink loop?)",
+                dir.display()
+            ),
+        });
+        return;
+    }
+    let mut entries: Vec<PathBuf> = match std::fs::read_dir(dir) {
+        Ok(rd) => rd.filter_map(|e| e.ok().map(|e| e.path())).collect(),
+        Err(e) => {
+            errors.push(FileError {
+                file: dir.display().to_string(),
+                error: format!("{}: {e}", dir.display()),
+            });
+            return;
+        }
+    };
+    entries.sort();
+    for p in entries {
+        let name = p.file_name().and_then(|n| n.to_str()).unwrap_or("");
+        if name.starts_with('.') {
+            continue;
+        }
+        match std::fs::metadata(&p) {
+            Ok(m) if m.is_dir() => walk(&p, files, errors, depth + 1),
+            Ok(_) => {
+                let ext = p
+                    .extension()
+                    .and_then(|e| e.to_str())
+                    .unwrap_or("")
+                    .to_ascii_lowercase();
+                if !SKIP_EXTENSIONS.contains(&ext.as_str()) {
+                    files.push(p);
+                }
+            }
+            Err(e) => errors.push(FileError {
+                file: p.display().to_string(),
+                error: format!("{}: {e}", p.display()),
+            }),
+        }
+    }
+}
+
+/// What `inspect` shows of one file.
+pub fn inspect_file(path: &Path, read: &ReadOptions) -> Result<InspectFile, String> {
+    let cap = capture::read_capture(path, read).map_err(|e| e.to_string())?;
+    Ok(InspectFile {
+        file: path.display().to_string(),
+        format: cap.format.to_string(),
+        sample_interval_s: cap.sample_interval_s,
+        n_samples: cap.n_samples(),
+        t0_s: cap.t0_s,
+        channels: cap
+            .channels
+            .iter()
+            .map(|c| {
+                let (min, max) = finite_range(&c.samples);
+                InspectChannel {
+                    name: c.name.clone(),
+                    unit: c.unit.clone(),
+                    min,
+                    max,
+                    adc_min_v: c.adc.map(|a| a.min_v),
+                    adc_max_v: c.adc.map(|a| a.max_v),
+                }
+            })
+            .collect(),
+        metadata: cap.metadata.clone(),
+        notes: cap.notes.clone(),
+        warnings: cap.warnings.clone(),
+    })
+}
+
+fn finite_range(v: &[f64]) -> (Option<f64>, Option<f64>) {
+    let mut lo = f64::INFINITY;
+    let mut hi = f64::NEG_INFINITY;
+    for &x in v.iter().filter(|x| x.is_finite()) {
+        lo = lo.min(x);
+        hi = hi.max(x);
+    }
+    if lo <= hi {
+        (Some(lo), Some(hi))
+    } else {
+        (None, None)
+    }
+}
+
+/// `inspect` over many files.
+pub fn inspect_inputs(inputs: &[PathBuf], read: &ReadOptions) -> InspectDoc {
+    let (files, mut errors) = collect_inputs(inputs);
+    let results: Vec<_> = files
+        .par_iter()
+        .map(|f| (f, inspect_file(f, read)))
+        .collect();
+    let mut out = Vec::new();
+    for (f, r) in results {
+        match r {
+            Ok(i) => out.push(i),
+            Err(e) => errors.push(FileError {
+                file: f.display().to_string(),
+                error: e,
+            }),
+        }
+    }
+    InspectDoc {
+        schema: INSPECT_SCHEMA,
+        files: out,
+        errors,
+    }
+}
+
+/// Picks the switch-node and current channels of a capture.
+fn pick_channels(
+    cap: &Capture,
+    settings: &Settings,
+) -> Result<(capture::Channel, Option<capture::Channel>), String> {
+    let signal = match &settings.signal {
+        Some(s) => capture::select_channel(cap, s, &settings.read).map_err(|e| e.to_string())?,
+        None => {
+            let c = cap
+                .channels
+                .iter()
+                .find(|c| !c.unit.eq_ignore_ascii_case("A"))
+                .or(cap.channels.first())
+                .ok_or_else(|| format!("{}: the capture has no channels", cap.source.display()))?;
+            c.clone()
+        }
+    };
+    let current = match &settings.current {
+        Some(s) => {
+            Some(capture::select_channel(cap, s, &settings.read).map_err(|e| e.to_string())?)
+        }
+        None => cap
+            .channels
+            .iter()
+            .find(|c| c.unit.eq_ignore_ascii_case("A") && c.name != signal.name)
+            .cloned(),
+    };
+    Ok((signal, current))
+}
+
+/// Reads and measures one file.
+pub fn measure_file(path: &Path, settings: &Settings) -> Result<CaptureDoc, String> {
+    let cap = capture::read_capture(path, &settings.read).map_err(|e| e.to_string())?;
+    let (signal, current) = pick_channels(&cap, settings)?;
+    let trace = Trace {
+        v: &signal.samples,
+        i: current.as_ref().map(|c| c.samples.as_slice()),
+        dt_s: cap.sample_interval_s,
+        t0_s: cap.t0_s,
+        adc: signal.adc,
+    };
+    let m = measure::measure_trace(&trace, &settings.measure)
+        .map_err(|e| format!("{}: {e}", path.display()))?;
+    let mut warnings = cap.warnings.clone();
+    warnings.extend(m.warnings);
+    Ok(CaptureDoc {
+        file: path.display().to_string(),
+        format: cap.format.to_string(),
+        sample_interval_s: cap.sample_interval_s,
+        n_samples: cap.n_samples(),
+        t0_s: cap.t0_s,
+        signal: signal.name.clone(),
+        current: current.map(|c| c.name),
+        polarity: m.polarity,
+        v_on: m.v_on,
+        v_off: m.v_off,
+        warnings,
+        events: m.events,
+    })
+}
+
+/// `measure` over many inputs: files in parallel, results in input order. `progress` is
+/// called once per finished file.
+pub fn measure_inputs(
+    inputs: &[PathBuf],
+    settings: &Settings,
+    progress: &(dyn Fn() + Sync),
+) -> MeasureDoc {
+    let (files, mut errors) = collect_inputs(inputs);
+    let results: Vec<_> = files
+        .par_iter()
+        .map(|f| {
+            let r = measure_file(f, settings);
+            progress();
+            (f, r)
+        })
+        .collect();
+    let mut captures = Vec::new();
+    for (f, r) in results {
+        match r {
+            Ok(c) => captures.push(c),
+            Err(e) => errors.push(FileError {
+                file: f.display().to_string(),
+                error: e,
+            }),
+        }
+    }
+    let summary = summarize(&captures, settings);
+    MeasureDoc {
+        schema: MEASURE_SCHEMA,
+        captures,
+        summary,
+        errors,
+    }
+}
+
+/// Counts, worst event and per-metric summaries over every event.
+pub fn summarize(captures: &[CaptureDoc], settings: &Settings) -> Summary {
+    let _ = settings;
+    let mut s = Summary::default();
+    for c in captures {
+        s.n_events += c.events.len();
+        s.n_clipped += c.events.iter().filter(|e| e.clipped).count();
+        for e in &c.events {
+            let worse = s
+                .worst
+                .as_ref()
+                .is_none_or(|w| e.switch_stress_v > w.switch_stress_v);
+            if worse {
+                s.worst = Some(crate::document::Worst {
+                    file: c.file.clone(),
+                    index: e.index,
+                    t_edge_s: e.t_edge_s,
+                    peak_v: e.peak_v,
+                    switch_stress_v: e.switch_stress_v,
+                });
+            }
+        }
+    }
+    s
+}
+
+/// The reason a `--fail-above` or `--fail-energy` limit was crossed, if one was.
+pub fn limit_crossed(doc: &MeasureDoc, settings: &Settings) -> Option<String> {
+    let events = doc
+        .captures
+        .iter()
+        .flat_map(|c| c.events.iter().map(move |e| (c, e)));
+    for (c, e) in events {
+        if let Some(limit) = settings.fail_above_v {
+            if e.switch_stress_v > limit {
+                return Some(format!(
+                    "{} event {}: switch stress {:.1} V exceeds --fail-above {:.1} V",
+                    c.file, e.index, e.switch_stress_v, limit
+                ));
+            }
+        }
+        if let (Some(limit), Some(energy)) = (settings.fail_energy_j, e.energy_j) {
+            if energy > limit {
+                return Some(format!(
+                    "{} event {}: switch energy {:.3e} J exceeds --fail-energy {:.3e} J",
+                    c.file, e.index, energy, limit
+                ));
+            }
+        }
+    }
+    None
+}
