@@ -63,6 +63,35 @@ pub fn run(cli: Cli) -> Result<ExitCode> {
             }
             Ok(exit_for(!doc.errors.is_empty(), crossed.is_some()))
         }
+        Command::Compare {
+            variants,
+            baseline,
+            json,
+            out,
+            read,
+            analysis,
+        } => {
+            let variants = crate::cli::parse_variants(&variants)?;
+            let settings = analysis.to_settings(read.to_options()?)?;
+            let quiet = analysis.quiet || json;
+            let (doc, docs) = crate::progress::with_bar(quiet, "measuring", |tick| {
+                kickscan::compare::compare(&variants, baseline.as_deref(), &settings, tick)
+            });
+            let mut stdout = std::io::stdout().lock();
+            if json {
+                serde_json::to_writer_pretty(&mut stdout, &doc)?;
+                writeln!(stdout)?;
+            } else {
+                stdout.write_all(kickscan::report::compare_text(&doc).as_bytes())?;
+            }
+            let _ = (&out, &docs);
+            let failed = docs.iter().any(|d| !d.errors.is_empty());
+            for d in &docs {
+                report_errors(&d.errors);
+            }
+            Ok(exit_for(failed, false))
+        }
+        Command::Demo { out, captures } => crate::demo::run(&out, captures.as_deref()),
         Command::Simulate(args) => crate::cli::simulate::run(args),
     }
 }

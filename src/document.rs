@@ -112,3 +112,44 @@ pub struct InspectChannel {
     pub adc_min_v: Option<f64>,
     pub adc_max_v: Option<f64>,
 }
+
+pub const COMPARE_SCHEMA: &str = "kickscan.compare/1";
+
+/// One variant of `compare`.
+#[derive(Debug, Clone, Serialize)]
+pub struct VariantDoc {
+    pub label: String,
+    pub inputs: Vec<String>,
+    pub n_events: usize,
+    pub n_clipped: usize,
+    pub metrics: BTreeMap<String, MetricSummary>,
+    pub worst: Option<Worst>,
+    pub errors: Vec<FileError>,
+}
+
+/// A metric of one variant against the baseline, with a rank test.
+#[derive(Debug, Clone, Serialize)]
+pub struct Difference {
+    pub metric: String,
+    /// Baseline label.
+    pub a: String,
+    /// Compared variant label.
+    pub b: String,
+    pub median_a: Option<f64>,
+    pub median_b: Option<f64>,
+    /// `median_b - median_a`.
+    pub median_diff: Option<f64>,
+    /// Mann-Whitney U of `a` against `b`, two-sided.
+    pub u: Option<f64>,
+    pub p_value: Option<f64>,
+}
+
+/// `kickscan compare --json`.
+#[derive(Debug, Clone, Serialize)]
+pub struct CompareDoc {
+    pub schema: &'static str,
+    pub baseline: String,
+    pub variants: Vec<VariantDoc>,
+    pub differences: Vec<Difference>,
+    pub verdicts: Vec<String>,
+}

@@ -11,6 +11,7 @@
 //! the JSON contract.
 
 pub mod capture;
+pub mod compare;
 pub mod document;
 pub mod events;
 pub mod levels;

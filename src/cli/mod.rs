@@ -66,8 +66,63 @@ pub enum Command {
         #[command(flatten)]
         analysis: AnalysisArgs,
     },
+    /// Compare builds side by side: LABEL=INPUT for each variant (files or folders).
+    #[command(after_help = "Examples:\n  kickscan compare none=bench/none diode=bench/diode zener=bench/zener\n  kickscan compare old=rev1/ new=rev2/ --supply 24V --json\n\nRepeat a label to give a variant several inputs (zener=a.csv zener=b.csv).")]
+    Compare {
+        /// Variants as LABEL=INPUT (two or more labels).
+        #[arg(required = true, value_name = "LABEL=INPUT")]
+        variants: Vec<String>,
+        /// The variant the others are compared with (default: the first).
+        #[arg(long, value_name = "LABEL")]
+        baseline: Option<String>,
+        /// Print the kickscan.compare/1 JSON document on stdout.
+        #[arg(long)]
+        json: bool,
+        /// Write the report folder here.
+        #[arg(long, value_name = "DIR")]
+        out: Option<PathBuf>,
+        #[command(flatten)]
+        read: ReadArgs,
+        #[command(flatten)]
+        analysis: AnalysisArgs,
+    },
+    /// Run the whole job on the bundled sample captures and write a report to open.
+    #[command(after_help = "Examples:\n  kickscan demo\n  kickscan demo --out /tmp/demo-report")]
+    Demo {
+        /// Report folder (replaced if kickscan wrote it before).
+        #[arg(long, value_name = "DIR", default_value = "kickscan-report")]
+        out: PathBuf,
+        /// Folder of sample captures (default: sample-captures/ here or beside the sources).
+        #[arg(long, value_name = "DIR")]
+        captures: Option<PathBuf>,
+    },
     /// Synthesize captures of a coil switched off with a chosen clamp.
     Simulate(simulate::SimulateArgs),
+}
+
+/// Groups `LABEL=INPUT` arguments by label, keeping the order labels first appear in.
+pub fn parse_variants(items: &[String]) -> Result<Vec<kickscan::compare::Variant>> {
+    let mut out: Vec<kickscan::compare::Variant> = Vec::new();
+    for item in items {
+        let Some((label, input)) = item.split_once('=') else {
+            bail!("{item}: expected LABEL=INPUT, e.g. zener=captures/zener/");
+        };
+        let (label, input) = (label.trim(), input.trim());
+        if label.is_empty() || input.is_empty() {
+            bail!("{item}: expected LABEL=INPUT with both parts, e.g. zener=captures/zener/");
+        }
+        match out.iter_mut().find(|v| v.label == label) {
+            Some(v) => v.inputs.push(PathBuf::from(input)),
+            None => out.push(kickscan::compare::Variant {
+                label: label.to_string(),
+                inputs: vec![PathBuf::from(input)],
+            }),
+        }
+    }
+    if out.len() < 2 {
+        bail!("compare needs at least two variants (LABEL=INPUT with two different labels)");
+    }
+    Ok(out)
 }
 
 /// How to read the files.
