@@ -141,6 +141,7 @@ fn strip<DB: DrawingBackend>(
         .bold_line_style(RGBColor(205, 205, 205))
         .axis_style(INK)
         .y_desc(desc(name, &u))
+        .y_label_formatter(&|v| super::tick(*v))
         .label_style(font(14))
         .axis_desc_style(font(16))
         .x_labels(variants.len().max(1) * 2 + 1)

@@ -4,7 +4,7 @@ use plotters::coord::Shift;
 use plotters::prelude::*;
 
 use super::{
-    desc, font, frame, max_abs, note, off_scale_note, padded, with_limits, Figure, LimitLine,
+    desc, font, max_abs, note, off_scale_note, padded, tick, with_limits, Figure, LimitLine,
     PlotError, EVENT, EVENT_DARK, INK,
 };
 use crate::report::format::axis_unit;
@@ -26,7 +26,7 @@ fn n_bins(n: usize) -> usize {
 pub(crate) fn bin_counts(values: &[f64], lo: f64, hi: f64, bins: usize) -> Vec<usize> {
     let mut counts = vec![0usize; bins];
     let width = (hi - lo) / bins as f64;
-    if !(width > 0.0) {
+    if width.is_nan() || width <= 0.0 {
         if let Some(c) = counts.first_mut() {
             *c = values.iter().filter(|v| v.is_finite()).count();
         }
@@ -61,14 +61,32 @@ impl Figure for StressHistogram<'_> {
         let x = padded(x_lo * xu.factor, x_hi * xu.factor, 0.03);
         let top = counts.iter().copied().max().unwrap_or(1).max(1) as f64;
         let y = 0.0..top * 1.15;
-        let mut chart = frame(
-            root,
-            &self.title,
-            x.clone(),
-            y.clone(),
-            &desc("switch stress |peak - rail|", &xu),
-            "events per bin",
-        )?;
+        let mut chart = ChartBuilder::on(root)
+            .caption(&self.title, font(20))
+            .margin(12)
+            .x_label_area_size(48)
+            .y_label_area_size(72)
+            .build_cartesian_2d(x.clone(), y.clone())?;
+        chart
+            .configure_mesh()
+            .light_line_style(RGBColor(235, 235, 235))
+            .bold_line_style(RGBColor(205, 205, 205))
+            .axis_style(INK)
+            .x_desc(desc("switch stress |peak - rail|", &xu))
+            .y_desc("events per bin")
+            .label_style(font(14))
+            .axis_desc_style(font(16))
+            .x_labels(10)
+            .x_label_formatter(&|v| tick(*v))
+            // Counts are whole numbers; fractional ticks get no label.
+            .y_label_formatter(&|v| {
+                if (v - v.round()).abs() < 1e-9 {
+                    format!("{v:.0}")
+                } else {
+                    String::new()
+                }
+            })
+            .draw()?;
         chart
             .draw_series(counts.iter().enumerate().map(|(k, &c)| {
                 let a = (data.start + k as f64 * width) * xu.factor;
@@ -93,8 +111,15 @@ impl Figure for StressHistogram<'_> {
             } else {
                 chart.draw_series(LineSeries::new(pts, INK.stroke_width(2)))?;
             }
+            // Right of the line, or left of it near the right edge (about 8 px per character).
+            let dx = if xv > x.start + 0.75 * (x.end - x.start) {
+                -(l.label.chars().count() as i32 * 8 + 6)
+            } else {
+                6
+            };
             chart.draw_series(std::iter::once(
-                EmptyElement::at((xv, y.end * 0.93)) + Text::new(l.label.clone(), (6, 0), font(14)),
+                EmptyElement::at((xv, y.end * 0.93))
+                    + Text::new(l.label.clone(), (dx, 0), font(14)),
             ))?;
         }
         chart

@@ -94,6 +94,8 @@ fn encode_png(rgb: &[u8], w: u32, h: u32) -> Result<Vec<u8>, png::EncodingError>
         let mut enc = png::Encoder::new(&mut out, w, h);
         enc.set_color(png::ColorType::Rgb);
         enc.set_depth(png::BitDepth::Eight);
+        enc.set_compression(png::Compression::Best);
+        enc.set_adaptive_filter(png::AdaptiveFilterType::Adaptive);
         let mut writer = enc.write_header()?;
         writer.write_image_data(rgb)?;
         writer.finish()?;
@@ -232,8 +234,21 @@ pub(crate) fn frame<'a, DB: DrawingBackend>(
         .axis_desc_style(font(16))
         .x_labels(10)
         .y_labels(8)
+        .x_label_formatter(&|v| tick(*v))
+        .y_label_formatter(&|v| tick(*v))
         .draw()?;
     Ok(chart)
+}
+
+/// Axis tick text without needless zeros: `600`, `2.5`, `-0.125`.
+pub(crate) fn tick(v: f64) -> String {
+    let s = format!("{v:.4}");
+    let s = s.trim_end_matches('0').trim_end_matches('.');
+    if s == "-0" {
+        "0".to_string()
+    } else {
+        s.to_string()
+    }
 }
 
 /// Draws the limits as horizontal lines across `x` with their labels at the right end.
@@ -255,7 +270,8 @@ pub(crate) fn draw_limits_h<DB: DrawingBackend>(
         } else {
             chart.draw_series(LineSeries::new(pts, INK.stroke_width(2)))?;
         }
-        let x_text = x.start + 0.80 * (x.end - x.start);
+        // Labels sit at the left end, clear of the legend box in the upper right.
+        let x_text = x.start + 0.01 * (x.end - x.start);
         chart.draw_series(std::iter::once(
             EmptyElement::at((x_text, y)) + Text::new(l.label.clone(), (0, -18), font(14)),
         ))?;
@@ -298,6 +314,15 @@ mod tests {
         assert!(r.start < r.end);
         let r = padded(0.0, 10.0, 0.1);
         assert_eq!(r, -1.0..11.0);
+    }
+
+    #[test]
+    fn ticks_drop_needless_zeros() {
+        assert_eq!(tick(600.0), "600");
+        assert_eq!(tick(2.5), "2.5");
+        assert_eq!(tick(-0.125), "-0.125");
+        assert_eq!(tick(-0.00001), "0");
+        assert_eq!(tick(1e-9), "0");
     }
 
     #[test]

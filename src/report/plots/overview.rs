@@ -146,6 +146,11 @@ impl Figure for OverviewPlot<'_> {
             chart
                 .draw_series(std::iter::once(
                     EmptyElement::at(at(w))
+                        + TriangleMarker::new(
+                            (0, 0),
+                            if w.clipped { 16 } else { 0 },
+                            CLIPPED.filled(),
+                        )
                         + Circle::new((0, 0), 8, WORST.filled())
                         + Circle::new((0, 0), 11, WORST.stroke_width(2))
                         + Text::new(label, (12, label_dy(w)), font(14)),

@@ -5,7 +5,7 @@
 use plotters::coord::Shift;
 use plotters::prelude::*;
 
-use super::{font, max_abs, padded, Figure, LimitLine, PlotError, EVENT, EVENT_DARK, INK, WORST};
+use super::{font, max_abs, padded, tick, Figure, LimitLine, PlotError, EVENT_DARK, INK, WORST};
 use crate::report::digest::ReturnLevel;
 use crate::report::format::axis_unit;
 
@@ -78,6 +78,7 @@ impl Figure for ReturnLevelPlot {
             .label_style(font(14))
             .axis_desc_style(font(16))
             .x_label_formatter(&|v| format!("{v:.0e}"))
+            .y_label_formatter(&|v| tick(*v))
             .draw()?;
         let banded: Vec<_> = self
             .levels
@@ -121,7 +122,7 @@ impl Figure for ReturnLevelPlot {
                     }),
                 )?
                 .label("observed events")
-                .legend(|(x, y)| Circle::new((x + 9, y), 3, EVENT.filled()));
+                .legend(|(x, y)| Circle::new((x + 9, y), 3, EVENT_DARK.stroke_width(1)));
         }
         for l in &self.limits {
             let yv = l.level_v * vu.factor;
