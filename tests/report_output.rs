@@ -205,3 +205,24 @@ fn an_empty_run_still_renders() {
         1
     );
 }
+
+#[test]
+fn terminal_table_of_the_fixture_is_readable_at_100_columns() {
+    let f = report_support::fixture();
+    let text = kickscan::report::measure_text(&f.doc);
+    println!("{text}");
+    for line in text.lines() {
+        assert!(line.chars().count() <= 100, "too wide: {line}");
+    }
+    // The worst event (the clipped 520 V spike, cut at the 400 V rail) is starred and flagged.
+    let worst = text
+        .lines()
+        .find(|l| l.starts_with('*'))
+        .expect("worst row");
+    assert!(
+        worst.contains("400 V") && worst.trim_end().ends_with('C'),
+        "{worst}"
+    );
+    assert!(text.contains("projection: gev: switch stress expected once in 1e6 switchings: 470 V"));
+    assert!(text.contains("rating 600 V (derating line 480 V)"));
+}

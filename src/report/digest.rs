@@ -217,12 +217,22 @@ pub fn return_level_lines(doc: &MeasureDoc) -> Vec<String> {
                 _ => String::new(),
             };
             format!(
-                "{model}: switch stress expected once in {:.0e} switchings: {}{band}",
-                r.switchings,
+                "{model}: switch stress expected once in {} switchings: {}{band}",
+                switchings_text(r.switchings),
                 eng(r.level_v, "V")
             )
         })
         .collect()
+}
+
+/// A number of switchings: whole numbers below 100 000 in full (`1 000`), larger ones as a
+/// power of ten (`1e6`).
+pub fn switchings_text(n: f64) -> String {
+    if n.fract() == 0.0 && (1.0..1e5).contains(&n) {
+        count(n as usize)
+    } else {
+        format!("{n:.0e}")
+    }
 }
 
 /// Every warning, prefixed with its file.
@@ -273,7 +283,16 @@ mod tests {
         assert_eq!(r[0].switchings, 1000.0);
         assert_eq!(r[1].lower_v, Some(440.0));
         let lines = return_level_lines(&doc);
-        assert!(lines[1].contains("455 V"), "{}", lines[1]);
+        assert!(
+            lines[0].contains("once in 1 000 switchings: 430 V"),
+            "{}",
+            lines[0]
+        );
+        assert!(
+            lines[1].contains("once in 1e6 switchings: 455 V"),
+            "{}",
+            lines[1]
+        );
         assert!(lines[1].contains("440 V to 470 V"), "{}", lines[1]);
     }
 

@@ -88,7 +88,7 @@ pub fn measure_text(doc: &MeasureDoc) -> String {
     for c in &doc.captures {
         let _ = writeln!(
             s,
-            "{}  ({}, {} samples every {}, {} event{}, spikes {}, on {}, off {})",
+            "{}\n  {}, {} samples every {}, {} event{}, spikes {}, on level {}, off level {}",
             c.file,
             c.format,
             count(c.n_samples),
@@ -123,6 +123,7 @@ pub fn measure_text(doc: &MeasureDoc) -> String {
                 let _ = write!(s, " {:>w$}", (col.cell)(e), w = col.width);
             }
             let _ = writeln!(s, " {}", digest::flags(e));
+            trim_line_end(&mut s);
         }
         s.push('\n');
     }
@@ -155,26 +156,62 @@ fn summary_text(doc: &MeasureDoc, s: &mut String) {
         }
     }
     if let Some(w) = digest::worst_line(doc) {
-        let _ = writeln!(s, "worst: {w}");
+        wrap_into(s, &format!("worst: {w}"), "  ");
     }
     if let Some(r) = digest::rating_line(doc) {
-        let _ = writeln!(s, "{r}");
+        wrap_into(s, &r, "  ");
     }
     for l in digest::return_level_lines(doc) {
-        let _ = writeln!(s, "projection: {l}");
+        wrap_into(s, &format!("projection: {l}"), "  ");
     }
     let warnings = digest::warnings(doc);
     if !warnings.is_empty() {
         s.push_str("warnings:\n");
         for w in warnings {
-            let _ = writeln!(s, "  {w}");
+            wrap_into(s, &format!("  {w}"), "    ");
         }
     }
     if !doc.errors.is_empty() {
         s.push_str("inputs that failed:\n");
         for e in &doc.errors {
-            let _ = writeln!(s, "  {}", e.error);
+            wrap_into(s, &format!("  {}", e.error), "    ");
         }
+    }
+}
+
+/// Width the terminal text keeps to.
+const WIDTH: usize = 100;
+
+/// Appends `text` wrapped at spaces to [`WIDTH`] columns, continuation lines indented. A
+/// single word longer than a line (a long path) is left whole.
+fn wrap_into(s: &mut String, text: &str, indent: &str) {
+    let body = text.trim_start_matches(' ');
+    let mut line = text[..text.len() - body.len()].to_string();
+    let mut fresh = true;
+    for word in body.split(' ').filter(|w| !w.is_empty()) {
+        if !fresh && line.chars().count() + 1 + word.chars().count() > WIDTH {
+            s.push_str(&line);
+            s.push('\n');
+            line = indent.to_string();
+            fresh = true;
+        }
+        if !fresh {
+            line.push(' ');
+        }
+        line.push_str(word);
+        fresh = false;
+    }
+    s.push_str(&line);
+    s.push('\n');
+}
+
+/// Drops trailing spaces of the line just written (an empty flags cell).
+fn trim_line_end(s: &mut String) {
+    if s.ends_with('\n') {
+        s.pop();
+        let keep = s.trim_end_matches(' ').len();
+        s.truncate(keep);
+        s.push('\n');
     }
 }
 
@@ -341,6 +378,21 @@ mod tests {
         assert!(text.contains("bench/run1.csv: probe range is tight"));
         let clipped_row = text.lines().find(|l| l.contains("-412 V")).unwrap();
         assert!(clipped_row.trim_end().ends_with('C'), "{clipped_row}");
+    }
+
+    #[test]
+    fn long_lines_wrap_at_spaces() {
+        let mut s = String::new();
+        let words = vec!["word"; 30].join(" ");
+        wrap_into(&mut s, &words, "  ");
+        let lines: Vec<&str> = s.lines().collect();
+        assert_eq!(lines.len(), 2);
+        assert!(lines.iter().all(|l| l.chars().count() <= WIDTH));
+        assert!(lines[1].starts_with("  word"));
+        let mut s = String::new();
+        let long = "x".repeat(150);
+        wrap_into(&mut s, &format!("a {long} b"), "  ");
+        assert_eq!(s, format!("a\n  {long}\n  b\n"));
     }
 
     #[test]

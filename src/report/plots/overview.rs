@@ -155,7 +155,11 @@ impl Figure for OverviewPlot<'_> {
                         + Circle::new((0, 0), 11, WORST.stroke_width(2))
                         + Text::new(label, (12, label_dy(w)), font(14)),
                 ))?
-                .label("worst event")
+                .label(if w.clipped {
+                    "worst event (clipped: its peak is a lower bound)"
+                } else {
+                    "worst event"
+                })
                 .legend(|(x, y)| Circle::new((x + 9, y), 6, WORST.filled()));
         }
         chart
