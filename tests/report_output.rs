@@ -226,3 +226,33 @@ fn terminal_table_of_the_fixture_is_readable_at_100_columns() {
     assert!(text.contains("projection: gev: switch stress expected once in 1e6 switchings: 470 V"));
     assert!(text.contains("rating 600 V (derating line 480 V)"));
 }
+
+#[test]
+fn degenerate_and_non_finite_inputs_render_without_panic() {
+    use kickscan::measure::Event;
+    use kickscan::report::TraceSketch;
+    let mut f = report_support::fixture();
+    // Made-up broken values: a NaN peak, an infinite stress, an event with no samples.
+    let bad = Event {
+        index: 9,
+        t_edge_s: f64::NAN,
+        peak_v: f64::NAN,
+        switch_stress_v: f64::INFINITY,
+        decay_time_s: Some(f64::NAN),
+        ..Event::default()
+    };
+    f.doc.captures[0].events.push(bad.clone());
+    let flat = vec![24.0; 10];
+    let sketch_flat = TraceSketch::build("flat.csv", &flat, 1e-6, 0.0, &[(3, 3)], &[bad], 100);
+    let empty = TraceSketch::build("empty.csv", &[], 1e-6, 0.0, &[], &[], 100);
+    let sketches = vec![sketch_flat, empty];
+    f.doc.summary.extreme_value = Some(serde_json::json!({"return_levels": "not a map"}));
+    let files = render_report(&ReportInput::new(&f.doc, &f.settings, &sketches)).expect("renders");
+    let html = String::from_utf8(file(&files, "report.html").to_vec()).unwrap();
+    assert!(
+        !html.contains("NaN") && !html.contains("inf "),
+        "no NaN in the page"
+    );
+    let json = std::str::from_utf8(file(&files, "summary.json")).unwrap();
+    assert!(!json.contains("NaN"));
+}

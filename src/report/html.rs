@@ -147,7 +147,7 @@ fn inputs_section(h: &mut String, p: &Page) {
     row(
         h,
         "settle band (--settle-band)",
-        &format!("{} % of the step", plain(m.settle_band_pct)),
+        &format!("{} % of the step", super::plots::tick(m.settle_band_pct)),
     );
     row(
         h,

@@ -241,7 +241,7 @@ pub(crate) fn frame<'a, DB: DrawingBackend>(
 }
 
 /// Axis tick text without needless zeros: `600`, `2.5`, `-0.125`.
-pub(crate) fn tick(v: f64) -> String {
+pub fn tick(v: f64) -> String {
     let s = format!("{v:.4}");
     let s = s.trim_end_matches('0').trim_end_matches('.');
     if s == "-0" {
