@@ -99,13 +99,16 @@ impl Figure for OverlayPlot<'_> {
                     .iter()
                     .zip(&w.v)
                     .map(|(&t, &v)| (t * tu.factor, v * vu.factor)),
-                EVENT.mix(0.6).stroke_width(1),
+                EVENT.mix(0.8).stroke_width(1),
             ))?;
             if first {
                 let label = if self.waves.len() > MAX_OVERLAID {
-                    format!("events (first {MAX_OVERLAID} of {})", self.waves.len())
+                    format!(
+                        "other events (first {MAX_OVERLAID} of {})",
+                        self.waves.len()
+                    )
                 } else {
-                    format!("events ({})", self.waves.len())
+                    format!("other events ({})", self.waves.len())
                 };
                 series.label(label).legend(|(x, y)| {
                     PathElement::new(vec![(x, y), (x + 18, y)], EVENT.stroke_width(2))
