@@ -5,7 +5,9 @@ use plotters::coord::Shift;
 use plotters::prelude::*;
 
 use super::{desc, font, frame, max_abs, padded, Figure, PlotError, INK, VARIANT_STYLES};
+use crate::measure::Event;
 use crate::report::format::axis_unit;
+use crate::report::sketch::{EventWave, TraceSketch};
 
 /// One variant's data for the comparison plots.
 #[derive(Debug, Clone, PartialEq)]
@@ -16,6 +18,39 @@ pub struct VariantData {
     pub median_v: Vec<f64>,
     pub stress_v: Vec<f64>,
     pub decay_s: Vec<f64>,
+}
+
+impl VariantData {
+    /// A variant from its captures' sketches and events: the median wave is that of the event
+    /// with the median switch stress over all its captures.
+    pub fn from_parts<'a>(
+        label: &str,
+        sketches: &[&TraceSketch],
+        events: impl IntoIterator<Item = &'a Event>,
+    ) -> VariantData {
+        let mut waves: Vec<&EventWave> = sketches
+            .iter()
+            .flat_map(|s| s.events.iter())
+            .filter(|w| w.switch_stress_v.is_finite())
+            .collect();
+        waves.sort_by(|a, b| a.switch_stress_v.total_cmp(&b.switch_stress_v));
+        let median = waves.get(waves.len() / 2);
+        let mut stress_v = Vec::new();
+        let mut decay_s = Vec::new();
+        for e in events {
+            stress_v.push(e.switch_stress_v);
+            if let Some(d) = e.decay_time_s {
+                decay_s.push(d);
+            }
+        }
+        VariantData {
+            label: label.to_string(),
+            median_t_s: median.map_or_else(Vec::new, |w| w.t_s.clone()),
+            median_v: median.map_or_else(Vec::new, |w| w.v.clone()),
+            stress_v,
+            decay_s,
+        }
+    }
 }
 
 /// Median events of several variants on one axis.
@@ -192,6 +227,28 @@ impl Figure for CompareStrips<'_> {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn variant_takes_the_median_wave_and_every_event() {
+        let events: Vec<Event> = [10.0, 30.0, 20.0]
+            .iter()
+            .enumerate()
+            .map(|(k, &s)| Event {
+                index: k,
+                switch_stress_v: s,
+                decay_time_s: (k != 1).then_some(1e-6 * (k + 1) as f64),
+                ..Event::default()
+            })
+            .collect();
+        let v: Vec<f64> = (0..30).map(|i| i as f64).collect();
+        let windows = [(0, 10), (10, 20), (20, 30)];
+        let sk = TraceSketch::build("a.csv", &v, 1.0, 0.0, &windows, &events, 10);
+        let d = VariantData::from_parts("bare", &[&sk], &events);
+        assert_eq!(d.stress_v, vec![10.0, 30.0, 20.0]);
+        assert_eq!(d.decay_s, vec![1e-6, 3e-6]);
+        // Median stress 20 V is event 2, whose window holds samples 20..30.
+        assert_eq!(d.median_v.first(), Some(&20.0));
+    }
 
     #[test]
     fn jitter_stays_inside_the_strip() {
