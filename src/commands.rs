@@ -48,8 +48,11 @@ pub fn run(cli: Cli) -> Result<ExitCode> {
                 stdout.write_all(kickscan::report::measure_text(&doc).as_bytes())?;
             }
             if let Some(dir) = out {
-                kickscan::report::write_report(&dir, &doc, &settings)
-                    .with_context(|| format!("writing the report to {}", dir.display()))?;
+                kickscan::report::write_report(
+                    &dir,
+                    &kickscan::report::ReportInput::new(&doc, &settings, &[]),
+                )
+                .with_context(|| format!("writing the report to {}", dir.display()))?;
                 writeln!(
                     stdout,
                     "report written to {}",
