@@ -32,13 +32,14 @@ pub fn run(cli: Cli) -> Result<ExitCode> {
             inputs,
             json,
             out,
+            force,
             read,
             analysis,
         } => {
             let settings = analysis.to_settings(read.to_options()?)?;
             let quiet = analysis.quiet || json;
-            let doc = crate::progress::with_bar(quiet, "measuring", |tick| {
-                pipeline::measure_inputs(&inputs, &settings, tick)
+            let (doc, sketches) = crate::progress::with_bar(quiet, "measuring", |tick| {
+                pipeline::measure_inputs_sketched(&inputs, &settings, out.is_some(), tick)
             });
             let mut stdout = std::io::stdout().lock();
             if json {
@@ -48,16 +49,17 @@ pub fn run(cli: Cli) -> Result<ExitCode> {
                 stdout.write_all(kickscan::report::measure_text(&doc).as_bytes())?;
             }
             if let Some(dir) = out {
-                kickscan::report::write_report(
-                    &dir,
-                    &kickscan::report::ReportInput::new(&doc, &settings, &[]),
-                )
-                .with_context(|| format!("writing the report to {}", dir.display()))?;
-                writeln!(
-                    stdout,
-                    "report written to {}",
-                    dir.join("report.html").display()
-                )?;
+                let mut input = kickscan::report::ReportInput::new(&doc, &settings, &sketches);
+                input.force = force;
+                kickscan::report::write_report(&dir, &input)
+                    .with_context(|| format!("writing the report to {}", dir.display()))?;
+                // stdout may carry the JSON document; the path goes to stderr then.
+                let line = format!("report written to {}", dir.join("report.html").display());
+                if json {
+                    eprintln!("{line}");
+                } else {
+                    writeln!(stdout, "{line}")?;
+                }
             }
             report_errors(&doc.errors);
             let crossed = pipeline::limit_crossed(&doc, &settings);
@@ -71,6 +73,7 @@ pub fn run(cli: Cli) -> Result<ExitCode> {
             baseline,
             json,
             out,
+            force,
             read,
             analysis,
         } => {

@@ -11,6 +11,7 @@ use crate::document::{
     Summary, INSPECT_SCHEMA, MEASURE_SCHEMA,
 };
 use crate::measure::{self, Event, MeasureOptions, Trace};
+use crate::report::TraceSketch;
 
 /// Typed settings for a run, after the command line has been checked.
 #[derive(Debug, Clone, Default)]
@@ -195,8 +196,16 @@ fn pick_channels(
     Ok((signal, current))
 }
 
-/// Reads and measures one file.
-pub fn measure_file(path: &Path, settings: &Settings) -> Result<CaptureDoc, String> {
+/// Points kept per capture overview and per event wave for the plots.
+const SKETCH_POINTS: usize = 2000;
+
+/// Reads and measures one file; with `sketch`, also keeps a decimated copy of the trace for
+/// the plots.
+pub fn measure_file(
+    path: &Path,
+    settings: &Settings,
+    sketch: bool,
+) -> Result<(CaptureDoc, Option<TraceSketch>), String> {
     let cap = capture::read_capture(path, &settings.read).map_err(|e| e.to_string())?;
     let (signal, current) = pick_channels(&cap, settings)?;
     let trace = Trace {
@@ -210,7 +219,20 @@ pub fn measure_file(path: &Path, settings: &Settings) -> Result<CaptureDoc, Stri
         .map_err(|e| format!("{}: {e}", path.display()))?;
     let mut warnings = cap.warnings.clone();
     warnings.extend(m.warnings);
-    Ok(CaptureDoc {
+    let sketch = sketch.then(|| {
+        let mut sk = TraceSketch::build(
+            &path.display().to_string(),
+            &signal.samples,
+            cap.sample_interval_s,
+            cap.t0_s,
+            &m.windows,
+            &m.events,
+            SKETCH_POINTS,
+        );
+        sk.label = settings.label.clone();
+        sk
+    });
+    let doc = CaptureDoc {
         file: path.display().to_string(),
         format: cap.format.to_string(),
         sample_interval_s: cap.sample_interval_s,
@@ -223,7 +245,8 @@ pub fn measure_file(path: &Path, settings: &Settings) -> Result<CaptureDoc, Stri
         v_off: m.v_off,
         warnings,
         events: m.events,
-    })
+    };
+    Ok((doc, sketch))
 }
 
 /// `measure` over many inputs: files in parallel, results in input order. `progress` is
@@ -233,19 +256,33 @@ pub fn measure_inputs(
     settings: &Settings,
     progress: &(dyn Fn() + Sync),
 ) -> MeasureDoc {
+    measure_inputs_sketched(inputs, settings, false, progress).0
+}
+
+/// [`measure_inputs`] that also keeps one plot sketch per capture when `sketch` is set.
+pub fn measure_inputs_sketched(
+    inputs: &[PathBuf],
+    settings: &Settings,
+    sketch: bool,
+    progress: &(dyn Fn() + Sync),
+) -> (MeasureDoc, Vec<TraceSketch>) {
     let (files, mut errors) = collect_inputs(inputs);
     let results: Vec<_> = files
         .par_iter()
         .map(|f| {
-            let r = measure_file(f, settings);
+            let r = measure_file(f, settings, sketch);
             progress();
             (f, r)
         })
         .collect();
     let mut captures = Vec::new();
+    let mut sketches = Vec::new();
     for (f, r) in results {
         match r {
-            Ok(c) => captures.push(c),
+            Ok((c, sk)) => {
+                captures.push(c);
+                sketches.extend(sk);
+            }
             Err(e) => errors.push(FileError {
                 file: f.display().to_string(),
                 error: e,
@@ -253,12 +290,13 @@ pub fn measure_inputs(
         }
     }
     let summary = summarize(&captures, settings);
-    MeasureDoc {
+    let doc = MeasureDoc {
         schema: MEASURE_SCHEMA,
         captures,
         summary,
         errors,
-    }
+    };
+    (doc, sketches)
 }
 
 /// The per-event metrics that summaries and comparisons cover, with their accessors.

@@ -61,6 +61,9 @@ pub enum Command {
         /// Write the report folder (HTML, CSV, JSON, plots) here.
         #[arg(long, value_name = "DIR")]
         out: Option<PathBuf>,
+        /// Replace an existing --out folder that kickscan did not write.
+        #[arg(long, requires = "out")]
+        force: bool,
         #[command(flatten)]
         read: ReadArgs,
         #[command(flatten)]
@@ -81,6 +84,9 @@ pub enum Command {
         /// Write the report folder here.
         #[arg(long, value_name = "DIR")]
         out: Option<PathBuf>,
+        /// Replace an existing --out folder that kickscan did not write.
+        #[arg(long, requires = "out")]
+        force: bool,
         #[command(flatten)]
         read: ReadArgs,
         #[command(flatten)]
