@@ -3,6 +3,7 @@
 //! touches the file system.
 
 pub mod atomic;
+pub mod compare_table;
 pub mod csv;
 pub mod digest;
 pub mod fonts;
@@ -20,6 +21,7 @@ use crate::pipeline::Settings;
 
 pub use plots::{FitPlot, LimitLine, PeakEstimate, Plot, PlotError, VariantData};
 pub use sketch::{EventWave, TraceSketch};
+pub use compare_table::compare_text;
 pub use table::{inspect_text, measure_text};
 
 /// Why a report could not be written.
