@@ -116,6 +116,17 @@ const MODEL_RULE: &str = "GEV when the likelihood-ratio test rejects Gumbel (xi 
      (deviance > 3.84, chi-squared with 1 degree of freedom; Coles 2001, section 3.4), else \
      Gumbel; peaks over threshold when there are too few blocks";
 
+/// The model the report speaks for, borrowed from its fit.
+struct Chosen<'a> {
+    name: &'static str,
+    location: f64,
+    scale: f64,
+    shape: f64,
+    end: Option<f64>,
+    levels: &'a [ReturnLevel],
+    p_rating: Option<f64>,
+}
+
 fn lifetime_key(n: f64) -> String {
     format!("{n}")
 }
@@ -290,59 +301,60 @@ pub fn extreme_value(
         gev: None,
         pot: None,
     };
-    let chosen: Option<(
-        &'static str,
-        f64,
-        f64,
-        f64,
-        Option<f64>,
-        &[ReturnLevel],
-        Option<f64>,
-    )> = if use_gev {
+    let chosen = if use_gev {
         gev.as_ref().map(|v| {
             let f = &v.fit;
-            (
-                "gev",
-                f.location,
-                f.scale,
-                f.shape,
-                f.upper_end_point,
-                &v.return_levels[..],
-                v.p_exceed_rating_per_event,
-            )
+            Chosen {
+                name: "gev",
+                location: f.location,
+                scale: f.scale,
+                shape: f.shape,
+                end: f.upper_end_point,
+                levels: &v.return_levels,
+                p_rating: v.p_exceed_rating_per_event,
+            }
         })
     } else if let Some(g) = &gumbel {
         let f = &g.fit;
-        Some((
-            "gumbel",
-            f.location,
-            f.scale,
-            0.0,
-            None,
-            &g.return_levels[..],
-            g.p_exceed_rating_per_event,
-        ))
+        Some(Chosen {
+            name: "gumbel",
+            location: f.location,
+            scale: f.scale,
+            shape: 0.0,
+            end: None,
+            levels: &g.return_levels,
+            p_rating: g.p_exceed_rating_per_event,
+        })
     } else {
         pot.as_ref().map(|p| {
             let f = &p.fit;
-            (
-                "generalized pareto",
-                f.threshold,
-                f.scale,
-                f.shape,
-                f.upper_end_point,
-                &p.return_levels[..],
-                p.p_exceed_rating_per_event,
-            )
+            Chosen {
+                name: "generalized pareto",
+                location: f.threshold,
+                scale: f.scale,
+                shape: f.shape,
+                end: f.upper_end_point,
+                levels: &p.return_levels,
+                p_rating: p.p_exceed_rating_per_event,
+            }
         })
     };
-    if let Some((name, loc, scale, shape, end, levels, p)) = chosen {
+    if let Some(Chosen {
+        name,
+        location,
+        scale,
+        shape,
+        end,
+        levels,
+        p_rating,
+    }) = chosen
+    {
         report.model = Some(name);
-        report.location = Some(loc);
+        report.location = Some(location);
         report.scale = Some(scale);
         report.shape = Some(shape);
         report.upper_end_point = end;
-        report.p_exceed_rating_per_event = p;
+        report.p_exceed_rating_per_event = p_rating;
         report.return_levels = ReturnLevels(
             levels
                 .iter()

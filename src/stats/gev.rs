@@ -3,6 +3,7 @@
 //! Sign convention of Coles: ξ < 0 is the bounded (Weibull-type) tail with upper end point
 //! μ - σ/ξ, ξ = 0 the Gumbel limit, ξ > 0 the heavy (Fréchet-type) tail.
 
+use super::above;
 use serde::Serialize;
 
 use super::gumbel::{self, EULER_GAMMA};
@@ -40,7 +41,7 @@ pub struct GevFit {
 /// Negative log-likelihood of (μ, σ, ξ) (Coles 2001, eqs. 3.7 and 3.9). ξ ≤ -1 is refused:
 /// the likelihood is unbounded there and no maximum-likelihood estimate exists (Smith 1985).
 pub(crate) fn nll(x: &[f64], mu: f64, sigma: f64, xi: f64) -> f64 {
-    if !(sigma > 0.0) || !mu.is_finite() || !(xi > -1.0) || !xi.is_finite() {
+    if !above(sigma, 0.0) || !mu.is_finite() || !above(xi, -1.0) || !xi.is_finite() {
         return f64::INFINITY;
     }
     if xi.abs() < XI_ZERO {
@@ -50,7 +51,7 @@ pub(crate) fn nll(x: &[f64], mu: f64, sigma: f64, xi: f64) -> f64 {
     let a = 1.0 + 1.0 / xi;
     for &v in x {
         let arg = xi * (v - mu) / sigma;
-        if !(arg > -1.0) {
+        if !above(arg, -1.0) {
             return f64::INFINITY;
         }
         let lt = arg.ln_1p();

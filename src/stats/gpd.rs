@@ -2,6 +2,7 @@
 //! the exceedances over a high threshold u (Coles 2001, ch. 4):
 //! H(y) = 1 - (1 + ξ y/σ)^(-1/ξ), y = x - u > 0, with the exponential limit at ξ = 0.
 
+use super::above;
 use serde::Serialize;
 
 use super::likelihood::{
@@ -47,7 +48,7 @@ pub struct PotFit {
 /// Negative log-likelihood of (σ, ξ) for exceedances y (Coles 2001, eqs. 4.10 and 4.11).
 /// ξ ≤ -1 is refused (unbounded likelihood).
 pub(crate) fn nll(y: &[f64], sigma: f64, xi: f64) -> f64 {
-    if !(sigma > 0.0) || !(xi > -1.0) || !xi.is_finite() {
+    if !above(sigma, 0.0) || !above(xi, -1.0) || !xi.is_finite() {
         return f64::INFINITY;
     }
     let mut s = y.len() as f64 * sigma.ln();
@@ -57,7 +58,7 @@ pub(crate) fn nll(y: &[f64], sigma: f64, xi: f64) -> f64 {
         let a = 1.0 + 1.0 / xi;
         for &v in y {
             let arg = xi * v / sigma;
-            if !(arg > -1.0) {
+            if !above(arg, -1.0) {
                 return f64::INFINITY;
             }
             s += a * arg.ln_1p();
@@ -75,7 +76,7 @@ pub(crate) fn nll(y: &[f64], sigma: f64, xi: f64) -> f64 {
 /// one (σ scales with the data, ξ does not).
 fn fit_exceedances(y: &[f64]) -> Result<(Vec<f64>, f64, Minimum), StatsError> {
     let unit = y.iter().sum::<f64>() / y.len().max(1) as f64;
-    if !(unit > 0.0) || !unit.is_finite() {
+    if !above(unit, 0.0) || !unit.is_finite() {
         return Err(StatsError::NoSpread {
             what: "exceedances",
         });
@@ -173,7 +174,7 @@ impl PotFit {
     pub fn return_level(&self, n_events: f64) -> Result<ReturnLevel, StatsError> {
         let zeta = self.exceedance_rate;
         let n_zeta = n_events * zeta;
-        if !(n_zeta > 1.0) || !n_zeta.is_finite() {
+        if !above(n_zeta, 1.0) || !n_zeta.is_finite() {
             return Err(StatsError::BadArgument(format!(
                 "{n_events} events hold fewer than one exceedance of the threshold {}; \
                  the tail model does not describe that level",
@@ -205,7 +206,7 @@ impl PotFit {
             |z, r| {
                 let xi = r[0];
                 let unit_excess = excess_level(1.0, xi, l);
-                if !(z > 0.0) || !(unit_excess > 0.0) {
+                if !above(z, 0.0) || !above(unit_excess, 0.0) {
                     return f64::INFINITY;
                 }
                 nll(ys, z / unit_excess, xi)
@@ -234,7 +235,7 @@ impl PotFit {
     /// eq. 4.12); zero beyond a finite end point. None at or below the threshold, where the
     /// tail model says nothing.
     pub fn p_exceed_per_event(&self, level: f64) -> Option<f64> {
-        if !(level > self.threshold) {
+        if !above(level, self.threshold) {
             return None;
         }
         let y = (level - self.threshold) / self.scale;

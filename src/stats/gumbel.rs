@@ -1,6 +1,7 @@
 //! Gumbel (extreme-value type I) distribution fitted by maximum likelihood to block maxima:
 //! G(z) = exp{-exp[-(z - μ)/β]} (Coles 2001, §3.1.2; NIST/SEMATECH e-Handbook §1.3.6.6.16).
 
+use super::above;
 use serde::Serialize;
 
 use super::likelihood::{
@@ -32,7 +33,7 @@ pub struct GumbelFit {
 
 /// Negative log-likelihood of (μ, β) (Coles 2001, eq. 3.9).
 pub(crate) fn nll(x: &[f64], mu: f64, beta: f64) -> f64 {
-    if !(beta > 0.0) || !mu.is_finite() {
+    if !above(beta, 0.0) || !mu.is_finite() {
         return f64::INFINITY;
     }
     let mut s = x.len() as f64 * beta.ln();

@@ -1,6 +1,7 @@
 //! Pieces shared by the maximum-likelihood fits: standardising the data, confidence
 //! intervals for a return level by the delta method and by profile likelihood.
 
+use super::above;
 use super::optimize::nelder_mead;
 use super::special::{CHI2_1_95, Z_975};
 use super::StatsError;
@@ -31,7 +32,7 @@ impl Standardized {
         let centre = finite.iter().sum::<f64>() / n as f64;
         let var = finite.iter().map(|x| (x - centre).powi(2)).sum::<f64>() / (n - 1) as f64;
         let spread = var.sqrt();
-        if !(spread > 0.0) || !spread.is_finite() {
+        if !above(spread, 0.0) || !spread.is_finite() {
             return Err(StatsError::NoSpread { what });
         }
         let values = finite.iter().map(|x| (x - centre) / spread).collect();
@@ -193,7 +194,7 @@ pub(crate) fn profile_interval<F: Fn(f64, &[f64]) -> f64>(
 /// y = -ln G(z) = -m ln(1 - 1/N). For m = 1 this is Coles' (2001, §3.1.3) return level of
 /// return period N; for N ≫ m it equals his 1 - G = m/N.
 pub(crate) fn ln_y_for(n_switchings: f64, m: usize) -> Result<f64, StatsError> {
-    if !(n_switchings > 1.0) || !n_switchings.is_finite() || m == 0 {
+    if !above(n_switchings, 1.0) || !n_switchings.is_finite() || m == 0 {
         return Err(StatsError::BadArgument(format!(
             "a return level needs more than 1 switching and at least 1 event per block \
              (got N = {n_switchings}, m = {m})"

@@ -75,3 +75,9 @@ pub trait MaximaModel {
     /// -ln G(x): 0 above a finite upper end point, +inf below a finite lower one.
     fn neg_ln_cdf(&self, x: f64) -> f64;
 }
+
+/// x > bound, false for NaN: the guards on parameters are written as "not above" so that a
+/// NaN never passes one.
+pub(crate) fn above(x: f64, bound: f64) -> bool {
+    x > bound
+}

@@ -1,6 +1,8 @@
 //! Small numerical tools for maximum likelihood: a Nelder-Mead minimiser, a central-difference
 //! Hessian and a symmetric matrix inverse. Dimensions here are 1 to 3, so plain `Vec`s do.
 
+use super::above;
+
 /// Result of a minimisation.
 #[derive(Debug, Clone)]
 pub(crate) struct Minimum {
@@ -149,6 +151,8 @@ fn simplex_run<F: FnMut(&[f64]) -> f64>(
 
 /// Hessian of `f` at `x` by central differences with steps `h` (Abramowitz & Stegun 25.3.23
 /// and 25.3.26). None when any evaluation is not finite (the point sits on a boundary).
+// Index loops mirror the matrix formulas they implement.
+#[allow(clippy::needless_range_loop)]
 pub(crate) fn hessian<F: Fn(&[f64]) -> f64>(f: F, x: &[f64], h: &[f64]) -> Option<Vec<Vec<f64>>> {
     let n = x.len();
     let f0 = f(x);
@@ -186,6 +190,7 @@ pub(crate) fn hessian<F: Fn(&[f64]) -> f64>(f: F, x: &[f64], h: &[f64]) -> Optio
 /// Inverse of a symmetric positive-definite matrix by Cholesky factorisation (Golub & Van
 /// Loan, Matrix Computations, §4.2). None when the matrix is not positive definite, which for
 /// an observed information matrix means the fit is not at a proper maximum.
+#[allow(clippy::needless_range_loop)]
 pub(crate) fn inverse_spd(a: &[Vec<f64>]) -> Option<Vec<Vec<f64>>> {
     let n = a.len();
     let mut l = vec![vec![0.0; n]; n];
@@ -196,7 +201,7 @@ pub(crate) fn inverse_spd(a: &[Vec<f64>]) -> Option<Vec<Vec<f64>>> {
                 s -= l[i][k] * l[j][k];
             }
             if i == j {
-                if !(s > 0.0) || !s.is_finite() {
+                if !above(s, 0.0) || !s.is_finite() {
                     return None;
                 }
                 l[i][i] = s.sqrt();

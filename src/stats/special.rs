@@ -1,6 +1,8 @@
 //! Special functions needed by the tests of significance: log-gamma, the regularised
 //! incomplete gamma function, erfc and the normal tail.
 
+use super::above;
+
 /// ln Γ(x) for x > 0 by the Lanczos approximation with g = 7 and nine coefficients
 /// (Lanczos 1964; coefficients as tabulated by Godfrey, also in Press et al., Numerical
 /// Recipes, 3rd ed., §6.1), with the reflection formula below 1/2. About 15 digits.
@@ -38,7 +40,7 @@ pub fn ln_gamma(x: f64) -> f64 {
 /// of P for x < a + 1 and by the modified-Lentz continued fraction otherwise (Press et al.,
 /// Numerical Recipes, 3rd ed., §6.2).
 pub fn gamma_q(a: f64, x: f64) -> f64 {
-    if !(a > 0.0) || x.is_nan() {
+    if !above(a, 0.0) || x.is_nan() {
         return f64::NAN;
     }
     if x <= 0.0 {
