@@ -18,6 +18,11 @@ const XI_ZERO: f64 = 1e-9;
 /// before a mean-residual-life check (Coles 2001, §4.3.1).
 pub const DEFAULT_THRESHOLD_PERCENTILE: f64 = 0.90;
 
+/// With many events the default threshold is raised until at most this many values exceed
+/// it: a higher threshold only sharpens the tail approximation, and the profile-likelihood
+/// search stays fast on captures with millions of switchings.
+pub const MAX_DEFAULT_EXCEEDANCES: usize = 2000;
+
 #[derive(Debug, Clone, Serialize)]
 pub struct PotFit {
     pub threshold: f64,
@@ -98,8 +103,9 @@ fn fit_exceedances(y: &[f64]) -> Result<(Vec<f64>, f64, Minimum), StatsError> {
     Ok((ys, unit, m))
 }
 
-/// Peaks-over-threshold fit. `threshold` None means the 90th percentile of the finite values;
-/// only values strictly above it count. At least 15 exceedances are needed.
+/// Peaks-over-threshold fit. `threshold` None means the 90th percentile of the finite values,
+/// raised to leave at most `MAX_DEFAULT_EXCEEDANCES`; only values strictly above the
+/// threshold count. At least 15 exceedances are needed.
 pub fn fit_pot(values: &[f64], threshold: Option<f64>) -> Result<PotFit, StatsError> {
     let sorted = sorted_finite(values);
     let u = match threshold {
@@ -110,11 +116,20 @@ pub fn fit_pot(values: &[f64], threshold: Option<f64>) -> Result<PotFit, StatsEr
             )))
         }
         None => {
-            quantile_type7(&sorted, DEFAULT_THRESHOLD_PERCENTILE).ok_or(StatsError::TooFew {
-                have: 0,
-                need: MIN_EXTREMES,
-                what: "exceedances",
-            })?
+            let p90 = quantile_type7(&sorted, DEFAULT_THRESHOLD_PERCENTILE).ok_or(
+                StatsError::TooFew {
+                    have: 0,
+                    need: MIN_EXTREMES,
+                    what: "exceedances",
+                },
+            )?;
+            // the value with MAX_DEFAULT_EXCEEDANCES values above it, where there are more
+            let capped = sorted
+                .len()
+                .checked_sub(MAX_DEFAULT_EXCEEDANCES + 1)
+                .and_then(|i| sorted.get(i))
+                .copied();
+            capped.map_or(p90, |c| c.max(p90))
         }
     };
     let y: Vec<f64> = sorted.iter().filter(|&&v| v > u).map(|v| v - u).collect();
@@ -293,6 +308,18 @@ mod tests {
         assert!((fit.threshold - 179.1).abs() < 1e-9);
         assert_eq!(fit.n_exceedances, 20);
         assert!((fit.exceedance_rate - 0.1).abs() < 1e-12);
+    }
+
+    #[test]
+    fn default_threshold_is_raised_for_long_series() {
+        // 100 000 distinct values: the 90th percentile would leave 10 000 exceedances; the
+        // threshold rises to the value with exactly MAX_DEFAULT_EXCEEDANCES above it.
+        let v: Vec<f64> = (0..100_000)
+            .map(|i| (i as f64 * 0.618_033_988_75).fract())
+            .collect();
+        let fit = fit_pot(&v, None).unwrap();
+        assert_eq!(fit.n_exceedances, MAX_DEFAULT_EXCEEDANCES);
+        assert!((fit.exceedance_rate - 0.02).abs() < 1e-12);
     }
 
     #[test]

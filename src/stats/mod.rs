@@ -25,7 +25,7 @@ pub use extreme::{
     ReturnLevelEntry, ReturnLevels,
 };
 pub use gev::{fit_gev, GevFit};
-pub use gpd::{fit_pot, PotFit, DEFAULT_THRESHOLD_PERCENTILE};
+pub use gpd::{fit_pot, PotFit, DEFAULT_THRESHOLD_PERCENTILE, MAX_DEFAULT_EXCEEDANCES};
 pub use gumbel::{fit_gumbel, GumbelFit, EULER_GAMMA};
 pub use likelihood::{Interval, ReturnLevel};
 pub use rank_test::{compare, mann_whitney_u, Comparison, MannWhitney};

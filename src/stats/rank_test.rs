@@ -10,6 +10,10 @@ use super::StatsError;
 /// same switch-over as scipy.stats.mannwhitneyu's automatic choice).
 const EXACT_MAX_N: usize = 8;
 
+/// Bound on n₁n₂ for the exact distribution, whose table grows as n₁n₂ times the smaller
+/// sample; beyond it the normal approximation is already close.
+const EXACT_MAX_PAIRS: usize = 2500;
+
 #[derive(Debug, Clone, Serialize, PartialEq)]
 pub struct MannWhitney {
     /// U statistic of the first sample: the number of pairs (a, b) with a > b, ties counting
@@ -28,7 +32,8 @@ pub struct MannWhitney {
 /// With ties or with both samples larger than 8: normal approximation with the tie-corrected
 /// variance σ² = n₁n₂/12 [(n + 1) - Σ(t³ - t)/(n(n - 1))] and a continuity correction of 1/2
 /// (as scipy.stats.mannwhitneyu, method "asymptotic", use_continuity=True). Otherwise the
-/// exact distribution of U, p = 2 P(U ≥ max(U₁, U₂)) capped at 1 (as scipy's "exact").
+/// exact distribution of U, p = 2 P(U ≥ max(U₁, U₂)) capped at 1 (as scipy's "exact"),
+/// as long as n₁n₂ ≤ 2500.
 pub fn mann_whitney_u(a: &[f64], b: &[f64]) -> Result<MannWhitney, StatsError> {
     let a = sorted_finite(a);
     let b = sorted_finite(b);
@@ -71,9 +76,11 @@ pub fn mann_whitney_u(a: &[f64], b: &[f64]) -> Result<MannWhitney, StatsError> {
         let d = u - mu;
         d.signum() * (d.abs() - 0.5).max(0.0) / var.sqrt()
     });
-    if !ties && (n1 <= EXACT_MAX_N || n2 <= EXACT_MAX_N) {
+    if !ties && n1.min(n2) <= EXACT_MAX_N && n1 * n2 <= EXACT_MAX_PAIRS {
         let u_big = u.max(n1f * n2f - u).round() as usize;
-        let p = (2.0 * exact_upper_tail(n1, n2, u_big)).min(1.0);
+        // U has the same null distribution with the samples' roles swapped; the table is
+        // smallest with the shorter sample second.
+        let p = (2.0 * exact_upper_tail(n1.max(n2), n1.min(n2), u_big)).min(1.0);
         return Ok(MannWhitney {
             u,
             z,
@@ -188,6 +195,18 @@ mod tests {
         // give U = 0,1,2,2,3,4, so P(U >= 3) = 2/6 (enumerated by hand).
         assert!((exact_upper_tail(2, 2, 0) - 1.0).abs() < 1e-15);
         assert!((exact_upper_tail(2, 2, 3) - 2.0 / 6.0).abs() < 1e-15);
+    }
+
+    #[test]
+    fn exact_tail_does_not_depend_on_sample_order() {
+        // P(U >= k) for (n1, n2) = (3, 5) and (5, 3) are the same distribution (Mann &
+        // Whitney 1947); C(8, 3) = 56 arrangements, U = 15 only for one: P(U >= 15) = 1/56.
+        assert!((exact_upper_tail(3, 5, 15) - 1.0 / 56.0).abs() < 1e-15);
+        assert!((exact_upper_tail(5, 3, 15) - 1.0 / 56.0).abs() < 1e-15);
+        // a long second sample beyond the exact bound falls back to the approximation
+        let long: Vec<f64> = (0..1000).map(|i| i as f64 + 0.5).collect();
+        let r = mann_whitney_u(&[1.0, 2.0, 3.0], &long).unwrap();
+        assert_eq!(r.method, "normal approximation");
     }
 
     #[test]
