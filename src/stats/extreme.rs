@@ -31,15 +31,16 @@ pub fn block_maxima(values_in_order: &[f64], block_len: usize) -> Vec<f64> {
 /// Probability per switching of exceeding `level`, from a model of maxima over blocks of `m`
 /// switchings: P(max ≤ x) = G(x) = (1 - p)^m, so p = 1 - G(x)^(1/m), computed as
 /// -expm1(ln G / m) to stay exact for the tiny probabilities a rating check meets.
-pub fn p_exceed_per_event<M: MaximaModel>(fit: &M, level: f64, m: usize) -> f64 {
-    if m == 0 {
-        return f64::NAN;
+/// None when m is 0 or the level is not a number.
+pub fn p_exceed_per_event<M: MaximaModel>(fit: &M, level: f64, m: usize) -> Option<f64> {
+    if m == 0 || level.is_nan() {
+        return None;
     }
     let t = fit.neg_ln_cdf(level);
     if t == f64::INFINITY {
-        return 1.0;
+        return Some(1.0);
     }
-    -(-t / m as f64).exp_m1()
+    Some(-(-t / m as f64).exp_m1()).filter(|p| p.is_finite())
 }
 
 /// `{"level", "lower", "upper"}` of one lifetime in the JSON contract.
@@ -187,7 +188,7 @@ pub fn extreme_value(
             let return_levels = levels_of(lifetimes, "Gumbel", &mut warnings, |n| {
                 fit.return_level(n, m)
             });
-            let p = rating.map(|r| p_exceed_per_event(&fit, r, m));
+            let p = rating.and_then(|r| p_exceed_per_event(&fit, r, m));
             Some(ModelBlock {
                 fit,
                 return_levels,
@@ -205,7 +206,7 @@ pub fn extreme_value(
         Ok(fit) => {
             let return_levels =
                 levels_of(lifetimes, "GEV", &mut warnings, |n| fit.return_level(n, m));
-            let p = rating.map(|r| p_exceed_per_event(&fit, r, m));
+            let p = rating.and_then(|r| p_exceed_per_event(&fit, r, m));
             Some(ModelBlock {
                 fit,
                 return_levels,

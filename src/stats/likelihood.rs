@@ -132,16 +132,12 @@ pub(crate) fn profile_interval<F: Fn(f64, &[f64]) -> f64>(
     step: &[f64],
     scale_hint: f64,
 ) -> (Option<f64>, Option<f64>) {
+    // Warm start from the neighbouring point of the profile; the overall maximum serves when
+    // that start is outside the support at this z.
     let profile = |z: f64, starts: &[&[f64]]| -> Option<(f64, Vec<f64>)> {
-        let mut best: Option<(f64, Vec<f64>)> = None;
-        for s in starts {
-            if let Some(m) = nelder_mead(|r| nll_at(z, r), s, step, 1e-12, 4_000) {
-                if best.as_ref().is_none_or(|b| m.f < b.0) {
-                    best = Some((m.f, m.x));
-                }
-            }
-        }
-        best
+        starts
+            .iter()
+            .find_map(|s| nelder_mead(|r| nll_at(z, r), s, step, 1e-12, 4_000).map(|m| (m.f, m.x)))
     };
     // deviance minus its 95 % point: negative inside the interval
     let excess = |v: f64| 2.0 * (v - nll_min) - CHI2_1_95;

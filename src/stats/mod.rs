@@ -5,6 +5,7 @@
 //! - [`extreme_value`]: block maxima fitted by Gumbel and GEV, peaks over threshold by the
 //!   generalized Pareto distribution, return levels over a number of switchings, the
 //!   probability per switching of exceeding a rating (Coles 2001).
+//! - [`rating_margin`]: counts and fraction of the switch rating used.
 //! - [`mann_whitney_u`], [`compare`]: two variants of one metric.
 
 mod extreme;
@@ -14,6 +15,7 @@ mod gumbel;
 mod likelihood;
 mod optimize;
 mod rank_test;
+mod rating;
 pub mod special;
 mod summary;
 
@@ -29,6 +31,7 @@ pub use gpd::{fit_pot, PotFit, DEFAULT_THRESHOLD_PERCENTILE, MAX_DEFAULT_EXCEEDA
 pub use gumbel::{fit_gumbel, GumbelFit, EULER_GAMMA};
 pub use likelihood::{Interval, ReturnLevel};
 pub use rank_test::{compare, mann_whitney_u, Comparison, MannWhitney};
+pub use rating::{rating_margin, DERATING_FRACTION};
 pub use summary::{median, quantile_type7, summarize};
 
 /// Fewest block maxima or exceedances for an extreme-value fit. Below about 15 the shape
