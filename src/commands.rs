@@ -80,24 +80,77 @@ pub fn run(cli: Cli) -> Result<ExitCode> {
             let variants = crate::cli::parse_variants(&variants)?;
             let settings = analysis.to_settings(read.to_options()?)?;
             let quiet = analysis.quiet || json;
-            let (doc, docs) = crate::progress::with_bar(quiet, "measuring", |tick| {
-                kickscan::compare::compare(&variants, baseline.as_deref(), &settings, tick)
+            let run = crate::progress::with_bar(quiet, "measuring", |tick| {
+                kickscan::compare::compare(
+                    &variants,
+                    baseline.as_deref(),
+                    &settings,
+                    out.is_some(),
+                    tick,
+                )
             });
             let mut stdout = std::io::stdout().lock();
             if json {
-                serde_json::to_writer_pretty(&mut stdout, &doc)?;
+                serde_json::to_writer_pretty(&mut stdout, &run.doc)?;
                 writeln!(stdout)?;
             } else {
-                stdout.write_all(kickscan::report::compare_text(&doc).as_bytes())?;
+                stdout.write_all(kickscan::report::compare_text(&run.doc).as_bytes())?;
             }
-            let _ = (&out, &docs);
-            let failed = docs.iter().any(|d| !d.errors.is_empty());
-            for d in &docs {
+            let projections = kickscan::compare::projection_lines(&variants, &run.docs);
+            if !json {
+                for line in &projections {
+                    writeln!(stdout, "{line}")?;
+                }
+            }
+            if let Some(dir) = out {
+                let merged = kickscan::compare::merged_doc(&variants, &run.docs, &settings);
+                let sketches = run.all_sketches();
+                let variant_data = run.variant_data(&variants);
+                let mut verdicts = run.doc.verdicts.clone();
+                verdicts.extend(projections);
+                let mut input = kickscan::report::ReportInput::new(&merged, &settings, &sketches);
+                input.verdicts = &verdicts;
+                input.variants = &variant_data;
+                input.force = force;
+                kickscan::report::write_report(&dir, &input)
+                    .with_context(|| format!("writing the report to {}", dir.display()))?;
+                let line = format!("report written to {}", dir.join("report.html").display());
+                if json {
+                    eprintln!("{line}");
+                } else {
+                    writeln!(stdout, "{line}")?;
+                }
+            }
+            let failed = run.docs.iter().any(|d| !d.errors.is_empty());
+            for d in &run.docs {
                 report_errors(&d.errors);
             }
             Ok(exit_for(failed, false))
         }
-        Command::Demo { out, captures } => crate::demo::run(&out, captures.as_deref()),
+        Command::Demo {
+            out,
+            captures,
+            force,
+        } => {
+            let dir = kickscan::demo::locate_captures(captures.as_deref())?;
+            let outcome =
+                crate::progress::with_bar(false, "measuring the sample captures", |tick| {
+                    kickscan::demo::run(&dir, &out, force, tick)
+                })?;
+            let mut stdout = std::io::stdout().lock();
+            writeln!(stdout, "{}", outcome.scenario.title)?;
+            writeln!(stdout, "(simulated captures in {})\n", dir.display())?;
+            stdout.write_all(kickscan::report::compare_text(&outcome.compare).as_bytes())?;
+            for line in outcome.projections.iter().chain(&outcome.parasitics_lines) {
+                writeln!(stdout, "{line}")?;
+            }
+            writeln!(
+                stdout,
+                "\nopen the report: {}",
+                outcome.report_html.display()
+            )?;
+            Ok(exit_for(outcome.n_errors > 0, false))
+        }
         Command::Simulate(args) => crate::cli::simulate::run(args),
     }
 }

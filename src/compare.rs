@@ -6,6 +6,7 @@ use std::path::PathBuf;
 
 use crate::document::{CompareDoc, Difference, MeasureDoc, VariantDoc, COMPARE_SCHEMA};
 use crate::pipeline::{self, Settings, METRICS};
+use crate::report::{TraceSketch, VariantData};
 use crate::stats;
 
 /// One variant to compare: a label and its inputs.
@@ -26,24 +27,71 @@ const COMPARED: &[&str] = &[
     "clamp_energy_j",
 ];
 
-/// Measures every variant and compares each with the baseline (the first variant unless
-/// `baseline` names another).
+/// Every variant measured, and their comparison.
+pub struct CompareRun {
+    pub doc: CompareDoc,
+    /// One measurement document per variant, in variant order.
+    pub docs: Vec<MeasureDoc>,
+    /// Plot sketches per variant (empty unless asked for).
+    pub sketches: Vec<Vec<TraceSketch>>,
+}
+
+impl CompareRun {
+    /// Each variant's median event and distributions, for the comparison plots.
+    pub fn variant_data(&self, variants: &[Variant]) -> Vec<VariantData> {
+        variants
+            .iter()
+            .zip(&self.docs)
+            .zip(&self.sketches)
+            .map(|((v, d), sk)| {
+                let refs: Vec<&TraceSketch> = sk.iter().collect();
+                VariantData::from_parts(
+                    &v.label,
+                    &refs,
+                    d.captures.iter().flat_map(|c| c.events.iter()),
+                )
+            })
+            .collect()
+    }
+
+    /// Every variant's sketches in one list, in variant order.
+    pub fn all_sketches(&self) -> Vec<TraceSketch> {
+        self.sketches.iter().flatten().cloned().collect()
+    }
+}
+
+/// Measures every variant (each labelled with its name) and compares each with the baseline
+/// (the first variant unless `baseline` names another). With `sketch`, keeps plot sketches.
 pub fn compare(
     variants: &[Variant],
     baseline: Option<&str>,
     settings: &Settings,
+    sketch: bool,
     progress: &(dyn Fn() + Sync),
-) -> (CompareDoc, Vec<MeasureDoc>) {
-    let docs: Vec<MeasureDoc> = variants
-        .iter()
-        .map(|v| pipeline::measure_inputs(&v.inputs, settings, progress))
-        .collect();
+) -> CompareRun {
+    let mut docs = Vec::new();
+    let mut sketches = Vec::new();
+    for v in variants {
+        let mut s = settings.clone();
+        s.label = Some(v.label.clone());
+        let (doc, sk) = pipeline::measure_inputs_sketched(&v.inputs, &s, sketch, progress);
+        docs.push(doc);
+        sketches.push(sk);
+    }
     let doc = compare_docs(variants, &docs, baseline);
-    (doc, docs)
+    CompareRun {
+        doc,
+        docs,
+        sketches,
+    }
 }
 
 /// The comparison of already measured variants.
-pub fn compare_docs(variants: &[Variant], docs: &[MeasureDoc], baseline: Option<&str>) -> CompareDoc {
+pub fn compare_docs(
+    variants: &[Variant],
+    docs: &[MeasureDoc],
+    baseline: Option<&str>,
+) -> CompareDoc {
     let base = baseline
         .and_then(|b| variants.iter().position(|v| v.label == b))
         .unwrap_or(0);
@@ -79,7 +127,7 @@ pub fn compare_docs(variants: &[Variant], docs: &[MeasureDoc], baseline: Option<
             if a.is_empty() && b.is_empty() {
                 continue;
             }
-            let test = stats::mann_whitney_u(&a, &b);
+            let test = stats::mann_whitney_u(&a, &b).ok();
             let median_a = stats::median(&a);
             let median_b = stats::median(&b);
             differences.push(Difference {
@@ -90,14 +138,17 @@ pub fn compare_docs(variants: &[Variant], docs: &[MeasureDoc], baseline: Option<
                 median_b,
                 median_diff: median_a.zip(median_b).map(|(x, y)| y - x),
                 u: test.as_ref().map(|t| t.u),
-                p_value: test.as_ref().map(|t| t.p_value),
+                p_value: test.as_ref().and_then(|t| t.p_value),
             });
         }
     }
     let verdicts = verdicts(&variant_docs, base);
     CompareDoc {
         schema: COMPARE_SCHEMA,
-        baseline: variants.get(base).map(|v| v.label.clone()).unwrap_or_default(),
+        baseline: variants
+            .get(base)
+            .map(|v| v.label.clone())
+            .unwrap_or_default(),
         variants: variant_docs,
         differences,
         verdicts,
@@ -134,10 +185,7 @@ fn verdicts(variants: &[VariantDoc], base: usize) -> Vec<String> {
             (Some(x), Some(y)) => {
                 line.push_str(&format!("; decay {} vs {}", fmt_s(x), fmt_s(y)));
                 if y > 0.0 && x > 3.0 * y {
-                    line.push_str(&format!(
-                        " ({:.0}x longer: the load releases later)",
-                        x / y
-                    ));
+                    line.push_str(&format!(" ({:.0}x longer: the load releases later)", x / y));
                 }
             }
             (Some(x), None) => line.push_str(&format!("; decay {}", fmt_s(x))),
@@ -167,4 +215,75 @@ fn fmt_s(s: f64) -> String {
     } else {
         format!("{:.0} ns", s * 1e9)
     }
+}
+
+/// All variants' captures in one document, for the report page: each capture labelled with
+/// its variant. The summary's counts, metrics and rating cover every event; the
+/// extreme-value projection is left to each variant (mixing a clamped and an unclamped
+/// build in one fit would mean nothing), and its lines go with the verdicts.
+pub fn merged_doc(variants: &[Variant], docs: &[MeasureDoc], settings: &Settings) -> MeasureDoc {
+    let mut captures = Vec::new();
+    let mut errors = Vec::new();
+    for (v, d) in variants.iter().zip(docs) {
+        for c in &d.captures {
+            let mut c = c.clone();
+            c.label = Some(v.label.clone());
+            captures.push(c);
+        }
+        errors.extend(d.errors.iter().cloned());
+    }
+    let mut summary = pipeline::summarize(&captures, settings);
+    summary.extreme_value = None;
+    MeasureDoc {
+        schema: crate::document::MEASURE_SCHEMA,
+        captures,
+        summary,
+        errors,
+    }
+}
+
+/// One line per variant with its projected worst case, from the variant's own fit.
+pub fn projection_lines(variants: &[Variant], docs: &[MeasureDoc]) -> Vec<String> {
+    let mut out = Vec::new();
+    for (v, d) in variants.iter().zip(docs) {
+        let Some(ev) = &d.summary.extreme_value else {
+            continue;
+        };
+        let model = ev.get("model").and_then(|m| m.as_str());
+        let levels = ev.get("return_levels").and_then(|r| r.as_object());
+        match (model, levels) {
+            (Some(model), Some(levels)) if !levels.is_empty() => {
+                for (n, entry) in levels {
+                    let level = entry.get("level").and_then(|x| x.as_f64());
+                    let lower = entry.get("lower").and_then(|x| x.as_f64());
+                    let upper = entry.get("upper").and_then(|x| x.as_f64());
+                    if let Some(level) = level {
+                        let interval = match (lower, upper) {
+                            (Some(lo), Some(hi)) => {
+                                format!(" (95 % interval {} to {})", fmt_v(lo), fmt_v(hi))
+                            }
+                            _ => String::new(),
+                        };
+                        out.push(format!(
+                            "{}: projected worst switch stress over {} switchings {}{} ({model} fit)",
+                            v.label,
+                            n,
+                            fmt_v(level),
+                            interval
+                        ));
+                    }
+                }
+            }
+            _ => {
+                let why = ev
+                    .get("warnings")
+                    .and_then(|w| w.as_array())
+                    .and_then(|w| w.first())
+                    .and_then(|w| w.as_str())
+                    .unwrap_or("too few events for an extreme-value fit");
+                out.push(format!("{}: no worst-case projection: {why}", v.label));
+            }
+        }
+    }
+    out
 }

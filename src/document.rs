@@ -32,6 +32,9 @@ pub struct MeasureDoc {
 #[derive(Debug, Clone, Serialize)]
 pub struct CaptureDoc {
     pub file: String,
+    /// Variant label (`--label`, or the variant in `compare`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub label: Option<String>,
     pub format: String,
     pub sample_interval_s: f64,
     pub n_samples: usize,

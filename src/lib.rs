@@ -12,6 +12,7 @@
 
 pub mod capture;
 pub mod compare;
+pub mod demo;
 pub mod document;
 pub mod events;
 pub mod levels;

@@ -7,8 +7,8 @@ use rayon::prelude::*;
 
 use crate::capture::{self, Capture, ReadOptions};
 use crate::document::{
-    CaptureDoc, FileError, InspectChannel, InspectDoc, InspectFile, MeasureDoc, RatingMargin,
-    Summary, INSPECT_SCHEMA, MEASURE_SCHEMA,
+    CaptureDoc, FileError, InspectChannel, InspectDoc, InspectFile, MeasureDoc, Summary,
+    INSPECT_SCHEMA, MEASURE_SCHEMA,
 };
 use crate::measure::{self, Event, MeasureOptions, Trace};
 use crate::report::TraceSketch;
@@ -27,7 +27,15 @@ pub struct Settings {
     pub fail_above_v: Option<f64>,
     pub fail_energy_j: Option<f64>,
     pub no_fit: bool,
+    /// Events per block for the block-maxima fit (`--block`); one capture per block when
+    /// `None`.
+    pub block: Option<usize>,
+    /// Numbers of switchings to project the worst case to (`--lifetime`).
+    pub lifetimes: Vec<f64>,
 }
+
+/// Default projection: a million switchings, a common relay and valve life figure.
+pub const DEFAULT_LIFETIME: f64 = 1e6;
 
 /// File extensions that are sidecars or reports, never captures, when walking folders.
 const SKIP_EXTENSIONS: &[&str] = &["json", "md", "txt", "html", "png", "svg", "parquet", "cir"];
@@ -234,6 +242,7 @@ pub fn measure_file(
     });
     let doc = CaptureDoc {
         file: path.display().to_string(),
+        label: settings.label.clone(),
         format: cap.format.to_string(),
         sample_interval_s: cap.sample_interval_s,
         n_samples: cap.n_samples(),
@@ -361,32 +370,72 @@ pub fn summarize(captures: &[CaptureDoc], settings: &Settings) -> Summary {
                 .insert(name.to_string(), crate::stats::summarize(&values));
         }
     }
-    s.extreme_value = extreme_value(captures, settings);
+    let (ev, p_over) = extreme_value(captures, settings);
+    s.extreme_value = ev;
     if let Some(rating_v) = settings.measure.rating_v {
         let stresses = metric_values(all(), |e| Some(e.switch_stress_v));
-        let derated_v = 0.8 * rating_v;
-        let max = stresses.iter().cloned().fold(f64::NEG_INFINITY, f64::max);
-        s.rating = Some(RatingMargin {
-            rating_v,
-            derated_v,
-            max_fraction: if stresses.is_empty() { 0.0 } else { max / rating_v },
-            n_over: stresses.iter().filter(|&&v| v > rating_v).count(),
-            n_over_derated: stresses.iter().filter(|&&v| v > derated_v).count(),
-            p_over_per_event: s
-                .extreme_value
-                .as_ref()
-                .and_then(|ev| ev.get("p_over_rating_per_event"))
-                .and_then(|v| v.as_f64()),
-        });
+        s.rating = crate::stats::rating_margin(&stresses, rating_v, p_over);
     }
     s
 }
 
-/// Extreme-value projection of switch stress: block maxima per capture by default
-/// (`--block N` events otherwise), as a JSON value so the statistics block can grow.
-fn extreme_value(captures: &[CaptureDoc], settings: &Settings) -> Option<serde_json::Value> {
-    let _ = (captures, settings);
-    None
+/// Extreme-value projection of switch stress (Coles 2001): block maxima of `--block N`
+/// events, or one block per capture (its largest event) by default, which suits a folder of
+/// single-shot captures as well as long multi-event records. Returns the JSON block and the
+/// probability per switching of exceeding the rating.
+fn extreme_value(
+    captures: &[CaptureDoc],
+    settings: &Settings,
+) -> (Option<serde_json::Value>, Option<f64>) {
+    let n_events: usize = captures.iter().map(|c| c.events.len()).sum();
+    if n_events == 0 {
+        return (None, None);
+    }
+    let lifetimes: Vec<f64> = if settings.lifetimes.is_empty() {
+        vec![DEFAULT_LIFETIME]
+    } else {
+        settings.lifetimes.clone()
+    };
+    let rating = settings.measure.rating_v;
+    let report = match settings.block {
+        Some(block) => {
+            let values: Vec<f64> = captures
+                .iter()
+                .flat_map(|c| c.events.iter().map(|e| e.switch_stress_v))
+                .collect();
+            crate::stats::extreme_value(&values, block.max(1), &lifetimes, rating)
+        }
+        None => {
+            // One block per capture (its largest event); a block then holds the mean number
+            // of events per capture, so return periods still count switchings.
+            let values: Vec<f64> = captures
+                .iter()
+                .flat_map(|c| c.events.iter().map(|e| e.switch_stress_v))
+                .collect();
+            let maxima: Vec<f64> = captures
+                .iter()
+                .filter_map(|c| {
+                    c.events
+                        .iter()
+                        .map(|e| e.switch_stress_v)
+                        .filter(|v| v.is_finite())
+                        .reduce(f64::max)
+                })
+                .collect();
+            let per_block = (n_events as f64 / maxima.len().max(1) as f64)
+                .round()
+                .max(1.0);
+            crate::stats::extreme_value_of_maxima(
+                &values,
+                &maxima,
+                per_block as usize,
+                &lifetimes,
+                rating,
+            )
+        }
+    };
+    let p_over = report.p_exceed_rating_per_event;
+    (serde_json::to_value(&report).ok(), p_over)
 }
 
 /// The reason a `--fail-above` or `--fail-energy` limit was crossed, if one was.

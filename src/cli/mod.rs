@@ -70,7 +70,9 @@ pub enum Command {
         analysis: AnalysisArgs,
     },
     /// Compare builds side by side: LABEL=INPUT for each variant (files or folders).
-    #[command(after_help = "Examples:\n  kickscan compare none=bench/none diode=bench/diode zener=bench/zener\n  kickscan compare old=rev1/ new=rev2/ --supply 24V --json\n\nRepeat a label to give a variant several inputs (zener=a.csv zener=b.csv).")]
+    #[command(
+        after_help = "Examples:\n  kickscan compare none=bench/none diode=bench/diode zener=bench/zener\n  kickscan compare old=rev1/ new=rev2/ --supply 24V --json\n\nRepeat a label to give a variant several inputs (zener=a.csv zener=b.csv)."
+    )]
     Compare {
         /// Variants as LABEL=INPUT (two or more labels).
         #[arg(required = true, value_name = "LABEL=INPUT")]
@@ -101,6 +103,9 @@ pub enum Command {
         /// Folder of sample captures (default: sample-captures/ here or beside the sources).
         #[arg(long, value_name = "DIR")]
         captures: Option<PathBuf>,
+        /// Replace an existing --out folder that kickscan did not write.
+        #[arg(long)]
+        force: bool,
     },
     /// Synthesize captures of a coil switched off with a chosen clamp.
     Simulate(simulate::SimulateArgs),
@@ -242,6 +247,12 @@ pub struct AnalysisArgs {
     /// Exit with code 3 if any event's switch energy exceeds this (e.g. 2mJ).
     #[arg(long, value_name = "J")]
     pub fail_energy: Option<String>,
+    /// Events per block for the worst-case projection (default: one capture per block).
+    #[arg(long, value_name = "N")]
+    pub block: Option<usize>,
+    /// Number of switchings to project the worst case to; repeatable (default 1e6).
+    #[arg(long, value_name = "N")]
+    pub lifetime: Vec<String>,
     /// Skip the model fit (faster).
     #[arg(long)]
     pub no_fit: bool,
@@ -338,6 +349,21 @@ impl AnalysisArgs {
             fail_above_v: opt_si("fail-above", &self.fail_above, "V")?,
             fail_energy_j: opt_si("fail-energy", &self.fail_energy, "J")?,
             no_fit: self.no_fit,
+            block: match self.block {
+                Some(0) => bail!("--block: expected at least 1 event per block"),
+                b => b,
+            },
+            lifetimes: self
+                .lifetime
+                .iter()
+                .map(|l| {
+                    let n = parse_si(l, None).with_context(|| format!("--lifetime {l}"))?;
+                    if n < 1.0 {
+                        bail!("--lifetime {l}: expected a number of switchings of at least 1");
+                    }
+                    Ok(n)
+                })
+                .collect::<Result<_>>()?,
         })
     }
 }

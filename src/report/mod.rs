@@ -19,9 +19,9 @@ use std::path::Path;
 use crate::document::MeasureDoc;
 use crate::pipeline::Settings;
 
+pub use compare_table::compare_text;
 pub use plots::{FitPlot, LimitLine, PeakEstimate, Plot, PlotError, VariantData};
 pub use sketch::{EventWave, TraceSketch};
-pub use compare_table::compare_text;
 pub use table::{inspect_text, measure_text};
 
 /// Why a report could not be written.

@@ -303,6 +303,7 @@ mod tests {
 
     fn capture(events: Vec<Event>) -> CaptureDoc {
         CaptureDoc {
+            label: None,
             file: "bench/run1.csv".into(),
             format: "csv".into(),
             sample_interval_s: 1e-8,

@@ -174,9 +174,23 @@ pub fn extreme_value(
     lifetimes: &[f64],
     rating: Option<f64>,
 ) -> ExtremeValueReport {
+    let maxima = block_maxima(values_in_order, block_len);
+    extreme_value_of_maxima(values_in_order, &maxima, block_len, lifetimes, rating)
+}
+
+/// [`extreme_value`] with the block maxima given: for blocks the caller formed itself (one
+/// capture each, say), `block_len` being the events a block holds on average. The
+/// peaks-over-threshold fit still uses every value.
+pub fn extreme_value_of_maxima(
+    values_in_order: &[f64],
+    maxima: &[f64],
+    block_len: usize,
+    lifetimes: &[f64],
+    rating: Option<f64>,
+) -> ExtremeValueReport {
     let mut warnings = Vec::new();
     let n_events = values_in_order.iter().filter(|v| v.is_finite()).count();
-    let maxima = block_maxima(values_in_order, block_len);
+    let maxima = maxima.to_vec();
     if block_len == 0 {
         warnings.push("events per block must be at least 1; no block-maxima fit".to_string());
     }

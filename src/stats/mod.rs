@@ -23,8 +23,8 @@ use serde::Serialize;
 use thiserror::Error;
 
 pub use extreme::{
-    block_maxima, extreme_value, p_exceed_per_event, ExtremeValueReport, ModelBlock, ModelChoice,
-    ReturnLevelEntry, ReturnLevels,
+    block_maxima, extreme_value, extreme_value_of_maxima, p_exceed_per_event, ExtremeValueReport,
+    ModelBlock, ModelChoice, ReturnLevelEntry, ReturnLevels,
 };
 pub use gev::{fit_gev, GevFit};
 pub use gpd::{fit_pot, PotFit, DEFAULT_THRESHOLD_PERCENTILE, MAX_DEFAULT_EXCEEDANCES};

@@ -96,6 +96,7 @@ pub fn capture(amps: &[f64], clip: bool) -> (Vec<f64>, Vec<(usize, usize)>, Vec<
 
 fn capture_doc(file: &str, events: Vec<Event>, warnings: Vec<String>) -> CaptureDoc {
     CaptureDoc {
+        label: None,
         file: file.into(),
         format: "csv".into(),
         sample_interval_s: DT_S,

@@ -1,0 +1,176 @@
+//! `kickscan demo`: the whole job on the bundled sample captures. A scenario file
+//! (`scenario.json` in the captures folder) says which folders are the variants, the supply,
+//! the switch rating and the coil, so the demo runs the same code paths as `compare`,
+//! `measure` and `parasitics` with the settings a user would type.
+
+use std::path::{Path, PathBuf};
+
+use serde::Deserialize;
+use thiserror::Error;
+
+use crate::compare::{self, Variant};
+use crate::document::{CompareDoc, MeasureDoc};
+use crate::measure::CurrentThrough;
+use crate::pipeline::{self, Settings};
+use crate::report::{self, ReportInput};
+
+/// The bundled scenario's description.
+#[derive(Debug, Clone, Deserialize)]
+pub struct Scenario {
+    pub title: String,
+    pub supply_v: f64,
+    pub rating_v: Option<f64>,
+    pub inductance_h: Option<f64>,
+    /// Variant label and folder (relative to the captures folder), baseline first.
+    pub variants: Vec<ScenarioVariant>,
+    /// A capture with a coil-current channel, measured with energies.
+    pub current: Option<ScenarioCurrent>,
+    /// A bare/loaded pair for the added-capacitance method.
+    pub parasitics: Option<ScenarioPair>,
+}
+
+#[derive(Debug, Clone, Deserialize)]
+pub struct ScenarioVariant {
+    pub label: String,
+    pub folder: PathBuf,
+}
+
+#[derive(Debug, Clone, Deserialize)]
+pub struct ScenarioCurrent {
+    pub folder: PathBuf,
+    /// "coil" or "switch".
+    pub current_through: String,
+}
+
+#[derive(Debug, Clone, Deserialize)]
+pub struct ScenarioPair {
+    pub bare: PathBuf,
+    pub loaded: PathBuf,
+    pub added_c_f: f64,
+}
+
+#[derive(Debug, Error)]
+pub enum DemoError {
+    #[error("{0}: no sample captures here (expected a scenario.json); pass --captures DIR")]
+    NoCaptures(PathBuf),
+    #[error("{file}: {message}")]
+    Scenario { file: PathBuf, message: String },
+    #[error(transparent)]
+    Report(#[from] report::ReportError),
+}
+
+/// What the demo found, for the closing lines it prints.
+pub struct DemoOutcome {
+    pub scenario: Scenario,
+    pub compare: CompareDoc,
+    pub projections: Vec<String>,
+    pub current: Option<MeasureDoc>,
+    pub parasitics_lines: Vec<String>,
+    pub report_html: PathBuf,
+    pub n_errors: usize,
+}
+
+/// Finds the sample captures: the given folder, `sample-captures/` in the working folder,
+/// or the one beside the sources this binary was built from.
+pub fn locate_captures(given: Option<&Path>) -> Result<PathBuf, DemoError> {
+    let candidates: Vec<PathBuf> = match given {
+        Some(p) => vec![p.to_path_buf()],
+        None => vec![
+            PathBuf::from("sample-captures"),
+            Path::new(env!("CARGO_MANIFEST_DIR")).join("sample-captures"),
+        ],
+    };
+    for c in &candidates {
+        if c.join("scenario.json").is_file() {
+            return Ok(c.clone());
+        }
+    }
+    Err(DemoError::NoCaptures(candidates[0].clone()))
+}
+
+pub fn load_scenario(dir: &Path) -> Result<Scenario, DemoError> {
+    let file = dir.join("scenario.json");
+    let text = std::fs::read_to_string(&file).map_err(|e| DemoError::Scenario {
+        file: file.clone(),
+        message: e.to_string(),
+    })?;
+    let sc: Scenario = serde_json::from_str(&text).map_err(|e| DemoError::Scenario {
+        file: file.clone(),
+        message: format!("line {}, column {}: {e}", e.line(), e.column()),
+    })?;
+    if sc.variants.len() < 2 {
+        return Err(DemoError::Scenario {
+            file,
+            message: "at least two variants are needed".into(),
+        });
+    }
+    Ok(sc)
+}
+
+/// Runs the demo and writes the report to `out`.
+pub fn run(
+    captures: &Path,
+    out: &Path,
+    force: bool,
+    progress: &(dyn Fn() + Sync),
+) -> Result<DemoOutcome, DemoError> {
+    let scenario = load_scenario(captures)?;
+    let mut settings = Settings::default();
+    settings.measure.supply_v = Some(scenario.supply_v);
+    settings.measure.rating_v = scenario.rating_v;
+    settings.measure.inductance_h = scenario.inductance_h;
+
+    let variants: Vec<Variant> = scenario
+        .variants
+        .iter()
+        .map(|v| Variant {
+            label: v.label.clone(),
+            inputs: vec![captures.join(&v.folder)],
+        })
+        .collect();
+    let run = compare::compare(&variants, None, &settings, true, progress);
+    let projections = compare::projection_lines(&variants, &run.docs);
+    let variant_data = run.variant_data(&variants);
+    let sketches = run.all_sketches();
+
+    let current = scenario.current.as_ref().map(|c| {
+        let mut s = settings.clone();
+        s.label = Some("coil current".into());
+        s.measure.current_through = if c.current_through == "switch" {
+            CurrentThrough::Switch
+        } else {
+            CurrentThrough::Coil
+        };
+        pipeline::measure_inputs(&[captures.join(&c.folder)], &s, progress)
+    });
+
+    let parasitics_lines = Vec::new();
+
+    let mut merged = compare::merged_doc(&variants, &run.docs, &settings);
+    let mut verdicts = run.doc.verdicts.clone();
+    verdicts.extend(projections.iter().cloned());
+    verdicts.extend(parasitics_lines.iter().cloned());
+    if let Some(cur) = &current {
+        for c in &cur.captures {
+            let mut c = c.clone();
+            c.label = Some("coil current".into());
+            merged.captures.push(c);
+        }
+        merged.errors.extend(cur.errors.iter().cloned());
+    }
+    let n_errors = merged.errors.len();
+    let mut input = ReportInput::new(&merged, &settings, &sketches);
+    input.verdicts = &verdicts;
+    input.variants = &variant_data;
+    input.force = force;
+    report::write_report(out, &input)?;
+    Ok(DemoOutcome {
+        scenario,
+        compare: run.doc,
+        projections,
+        current,
+        parasitics_lines,
+        report_html: out.join("report.html"),
+        n_errors,
+    })
+}
