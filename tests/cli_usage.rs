@@ -1,0 +1,72 @@
+//! The binary's contract at its edges: exit codes and messages for usage errors (DESIGN.md:
+//! 2 for usage, 1 when an input failed).
+
+use assert_cmd::Command;
+use predicates::prelude::*;
+
+fn kickscan() -> Command {
+    Command::cargo_bin("kickscan").expect("the kickscan binary is built")
+}
+
+#[test]
+fn help_lists_the_commands_and_exit_codes() {
+    kickscan()
+        .arg("--help")
+        .assert()
+        .success()
+        .stdout(predicate::str::contains("measure"))
+        .stdout(predicate::str::contains("compare"))
+        .stdout(predicate::str::contains("demo"))
+        .stdout(predicate::str::contains("Exit codes"));
+}
+
+#[test]
+fn unknown_option_is_a_usage_error() {
+    kickscan()
+        .args(["measure", "x.csv", "--no-such-option"])
+        .assert()
+        .code(2);
+}
+
+#[test]
+fn nonsense_value_is_a_usage_error_naming_the_option() {
+    kickscan()
+        .args(["measure", "x.csv", "--supply", "5 parsecs"])
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains("--supply"))
+        .stderr(predicate::str::contains("parsecs"));
+}
+
+#[test]
+fn compare_needs_two_labels() {
+    kickscan()
+        .args(["compare", "only=a.csv"])
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains("at least two variants"));
+}
+
+#[test]
+fn missing_input_fails_with_exit_1_and_names_it() {
+    kickscan()
+        .args(["measure", "no/such/file.csv", "--quiet"])
+        .assert()
+        .code(1)
+        .stderr(predicate::str::contains("no/such/file.csv"));
+}
+
+#[test]
+fn missing_input_json_lists_it_under_errors() {
+    let out = kickscan()
+        .args(["measure", "no/such/file.csv", "--json"])
+        .assert()
+        .code(1)
+        .get_output()
+        .stdout
+        .clone();
+    let doc: serde_json::Value = serde_json::from_slice(&out).expect("JSON on stdout");
+    assert_eq!(doc["schema"], "kickscan.measure/1");
+    assert_eq!(doc["errors"][0]["file"], "no/such/file.csv");
+    assert_eq!(doc["summary"]["n_events"], 0);
+}
