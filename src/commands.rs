@@ -64,6 +64,7 @@ pub fn run(cli: Cli) -> Result<ExitCode> {
             Ok(exit_for(!doc.errors.is_empty(), crossed.is_some()))
         }
         Command::Simulate(args) => crate::cli::simulate::run(args),
+        Command::Parasitics(args) => crate::cli::parasitics::run(args),
     }
 }
 

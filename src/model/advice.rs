@@ -78,9 +78,7 @@ pub fn energy_absorber(
     f_sw_hz: Option<f64>,
 ) -> Option<EnergyAbsorber> {
     let i0 = i0_a.abs();
-    if !(l_h > 0.0 && i0 > 0.0 && vmax_v > 0.0)
-        || !(l_h.is_finite() && i0.is_finite() && vmax_v.is_finite())
-    {
+    if !(super::is_pos(l_h) && super::is_pos(i0) && super::is_pos(vmax_v)) {
         return None;
     }
     let e = 0.5 * l_h * i0 * i0;
@@ -164,7 +162,7 @@ pub fn predict_clamp(coil: &Coil, clamp: Clamp) -> Option<ClampPrediction> {
         Clamp::DiodeZener { vz_v, vf_v } => (vz_v + vf_v, coil.supply_v + vz_v + vf_v),
         Clamp::AcrossSwitch { v_clamp_v } => (v_clamp_v - coil.supply_v, v_clamp_v),
     };
-    if !(holding_v > 0.0) {
+    if !super::is_pos(holding_v) {
         return None;
     }
     let t0 = decay_time_s(coil.l_h, coil.r_ohm, i0, holding_v)?;
@@ -224,7 +222,7 @@ mod tests {
         // R <= 100 / 0.075 = 1333.3 ohm, P >= 0.5625 mJ * 10 Hz = 5.625 mW (by hand).
         let a = energy_absorber(0.2, 0.075, 100.0, Some(10.0)).unwrap();
         assert!(rel(a.c_min_f, 112.5e-9) < 1e-12);
-        assert!(rel(a.r_max_ohm, 1333.333_333) < 1e-9);
+        assert!(rel(a.r_max_ohm, 1_333.333_333) < 1e-9);
         assert!(rel(a.power_min_w.unwrap(), 5.625e-3) < 1e-12);
     }
 

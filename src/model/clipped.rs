@@ -149,7 +149,7 @@ pub(crate) fn fit_clipped(
         fit_end_s: t_origin_s + t.last().copied().unwrap_or(0.0),
         n_used: t.len(),
         n_left_out,
-        curve: FitCurve::DampedSine(fit),
+        curve: FitCurve::DampedSine(Box::new(fit)),
         peak: Some(PeakEstimate {
             peak_v,
             lower_v: lo_v.min(hi_v),

@@ -25,7 +25,7 @@ const MAX_PERIODS: f64 = 40.0;
 #[derive(Debug, Clone, PartialEq, Serialize)]
 #[serde(tag = "fit_model", rename_all = "snake_case")]
 pub enum FitCurve {
-    DampedSine(DampedSineFit),
+    DampedSine(Box<DampedSineFit>),
     Exponential(ExponentialFit),
 }
 
@@ -148,7 +148,7 @@ pub fn fit_event(
         return clipped::fit_clipped(samples, dt_s, t_start_s, i_edge, i_pk, event, ctx);
     }
     let u_pk = u(i_pk);
-    if !(u_pk > 0.0) {
+    if !super::is_pos(u_pk) {
         return None;
     }
     let noise = ringfit::noise_sigma(&samples[i_edge..]);
@@ -181,7 +181,7 @@ pub fn fit_event(
                     fit_end_s: t_origin_s + t.last().copied().unwrap_or(0.0),
                     n_used: t.len(),
                     n_left_out,
-                    curve: FitCurve::DampedSine(f),
+                    curve: FitCurve::DampedSine(Box::new(f)),
                     peak: None,
                 });
             }
@@ -201,7 +201,9 @@ fn free_ring_start(
     u: &dyn Fn(usize) -> f64,
 ) -> usize {
     let n = samples.len();
-    let band = (4.0 * noise).max(0.02 * u_pk);
+    // The peak sample is itself a noise maximum (some 3.5 sigma up in a long run), so the
+    // band reaches 8 sigma below it.
+    let band = (8.0 * noise).max(0.02 * u_pk);
     let run_end = (i_pk..n).find(|&i| u(i) < u_pk - band).unwrap_or(n);
     let run_start = (0..=i_pk)
         .rev()
@@ -230,7 +232,7 @@ fn fit_decay(
 ) -> Option<EventFit> {
     let n = samples.len();
     let u0 = u(start);
-    if !(u0 > 0.0) {
+    if !super::is_pos(u0) {
         return None;
     }
     let i_e = (start..n).find(|&i| u(i) < u0 / std::f64::consts::E)?;
@@ -323,7 +325,8 @@ pub fn apply_fit(event: &mut Event, fit: &EventFit, ctx: &ModelContext) {
 }
 
 /// Measures the main ring of a capture holding one turn-off event: the final level is the
-/// median of the last quarter, the spike is the largest deviation from it, the damped
+/// median of the last quarter, the spike is the largest deviation from it on the side away
+/// from the on state (the mean of the first twentieth of the record), the damped
 /// frequency comes from zero crossings after the spike and is refined by the damped-sine
 /// fit over the free ringing.
 pub fn measure_ring(
@@ -350,9 +353,28 @@ pub fn measure_ring(
     }
     let mid = last.len() / 2;
     let v_off = *last.select_nth_unstable_by(mid, f64::total_cmp).1;
+    // The spike flies to the side of v_off away from the on state (above the supply for a
+    // low-side switch), so the on state itself, often further from v_off than a small
+    // ring, is not taken for it. A record without an on state uses the largest deviation.
+    let head = &v[..(n / 20).max(1)];
+    let v_on = head.iter().copied().filter(|x| x.is_finite()).sum::<f64>() / head.len() as f64;
+    let spread = v
+        .iter()
+        .copied()
+        .filter(|x| x.is_finite())
+        .fold(0.0f64, |m, x| m.max((x - v_off).abs()));
+    let side = if (v_on - v_off).abs() > 0.05 * spread {
+        Some(if v_on < v_off { 1.0 } else { -1.0 })
+    } else {
+        None
+    };
+    let dev = |i: usize| match side {
+        Some(s) => s * (v[i] - v_off),
+        None => (v[i] - v_off).abs(),
+    };
     let i_pk = (0..n)
         .filter(|&i| v[i].is_finite())
-        .max_by(|&a, &b| (v[a] - v_off).abs().total_cmp(&(v[b] - v_off).abs()))
+        .max_by(|&a, &b| dev(a).total_cmp(&dev(b)))
         .ok_or_else(|| ModelError::Invalid("no finite samples".into()))?;
     let sign = if v[i_pk] >= v_off { 1.0 } else { -1.0 };
     let left_out = LeftOut::new(ctx, sign);
@@ -378,7 +400,7 @@ pub fn measure_ring(
             fit_offset: true,
         },
     )?;
-    if !(fit.alpha_per_s > 0.0) {
+    if !super::is_pos(fit.alpha_per_s) {
         return Err(ModelError::NotDecaying);
     }
     Ok(RingMeasurement {

@@ -10,12 +10,14 @@
 pub mod advice;
 pub mod clipped;
 pub mod event_fit;
+pub mod extraction;
 pub mod lm;
 pub mod parasitics;
 pub mod ringfit;
 
 pub use clipped::PeakEstimate;
 pub use event_fit::{apply_fit, fit_event, measure_ring, EventFit, FitCurve, RingMeasurement};
+pub use extraction::{parasitics_doc, ParasiticsDoc, ParasiticsInputs};
 pub use ringfit::{DampedSineFit, ExponentialFit, RingEstimate, RingStart};
 
 use crate::capture::AdcRange;
@@ -48,4 +50,9 @@ pub enum ModelError {
     Invalid(String),
     #[error("least-squares fit: {0}")]
     Fit(#[from] lm::LmError),
+}
+
+/// True for a finite, strictly positive number (false for NaN).
+pub fn is_pos(x: f64) -> bool {
+    x > 0.0 && x.is_finite()
 }

@@ -110,9 +110,7 @@ pub fn added_capacitance(
     f_loaded_std_hz: Option<f64>,
     c_add_f: f64,
 ) -> Result<AddedCapEstimate, ModelError> {
-    if !(f_bare_hz > 0.0 && f_loaded_hz > 0.0 && c_add_f > 0.0)
-        || !(f_bare_hz.is_finite() && f_loaded_hz.is_finite() && c_add_f.is_finite())
-    {
+    if !(super::is_pos(f_bare_hz) && super::is_pos(f_loaded_hz) && super::is_pos(c_add_f)) {
         return Err(ModelError::Invalid(
             "frequencies and the added capacitance must be positive".into(),
         ));

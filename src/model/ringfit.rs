@@ -156,7 +156,7 @@ pub fn estimate_ring(
     hyst: f64,
     skip: &dyn Fn(usize) -> bool,
 ) -> Option<RingEstimate> {
-    if !(dt_s > 0.0) || u.len() < 4 {
+    if !super::is_pos(dt_s) || u.len() < 4 {
         return None;
     }
     let hyst = hyst.abs();
@@ -198,7 +198,7 @@ pub fn estimate_ring(
         return None;
     }
     let half_period = slope_against_index(&crossings)?;
-    if !(half_period > 0.0) {
+    if !super::is_pos(half_period) {
         return None;
     }
     let freq_hz = 1.0 / (2.0 * half_period);
@@ -502,7 +502,7 @@ pub fn fit_exponential(
         true
     })?;
     let k = fit.params[1];
-    if !(k > 0.0) {
+    if !super::is_pos(k) {
         return Err(ModelError::NotDecaying);
     }
     let tau = tau0_s / k;
