@@ -3,7 +3,10 @@
 //! of the node from the edge on: once the switch has stopped conducting, the node is a free
 //! second-order circuit whose initial conditions (node voltage and coil current) are
 //! unknown, which the damped sine with A, B and v_off free describes. The fit leaves out
-//! every sample at a rail (and at or beyond the body-diode clip level), and the peak is the
+//! every sample at a rail, and stops where the body diode or a clamp first conducts (the
+//! circuit changes there). When that cuts the first lobe short (no full lobe after the
+//! peak), the decay and frequency come from the free ringing after the diode released (the
+//! same L and C) and only the amplitudes are fitted to the first lobe. The peak is the
 //! model's maximum over the clipped stretch.
 //!
 //! The result is a model estimate, not a measurement. Its interval is first-order (delta
@@ -14,13 +17,13 @@
 
 use serde::Serialize;
 
-use super::event_fit::{collect, EventFit, FitCurve, LeftOut};
+use super::event_fit::{collect, fit_free_ring, EventFit, FitCurve, LeftOut};
 use super::ringfit::{self, RingStart};
 use super::ModelContext;
 use crate::measure::{Event, Polarity};
 
 /// How the reconstructed peak was obtained, stated with the number.
-pub const PEAK_METHOD: &str = "model estimate: damped sine fitted from the edge to the unclipped samples; 95 % interval from the parameter covariance (delta method)";
+pub const PEAK_METHOD: &str = "model estimate: damped sine fitted from the edge to the unclipped samples (decay and frequency from the later free ring when the body diode cuts the first lobe short); 95 % interval from the parameter covariance (delta method)";
 
 /// Longest stretch after the clipped lobe that the fit uses, in ring periods: enough to pin
 /// down the frequency and decay, short enough that a voltage-dependent capacitance does
@@ -69,34 +72,75 @@ pub(crate) fn fit_clipped(
         .map_or(i_edge, |i| i + 1);
     let flat_top = ctx.adc.is_none();
     let excluded = |i: usize| left_out.excluded(samples[i]) || (flat_top && samples[i] == rail_v);
-    // Ring frequency: zero crossings after the clipped stretch, else the measured one.
-    let tail: Vec<f64> = (c_end..n)
+    let noise = ringfit::noise_sigma(&samples[i_edge..]);
+    // The free stretch from the edge ends where the body diode or a clamp first conducts.
+    let seg_end = (c_end..n)
+        .find(|&i| left_out.body_clipped(samples[i]))
+        .unwrap_or(n);
+    // Ring frequency: zero crossings after the clipped stretch within the free stretch.
+    let tail: Vec<f64> = (c_end..seg_end)
         .map(|i| sign * (samples[i] - event.v_off))
         .collect();
     let tail_max = tail.iter().fold(0.0f64, |m, x| m.max(x.abs()));
-    let noise = ringfit::noise_sigma(&samples[i_edge..]);
     let hyst = (5.0 * noise).max(0.03 * tail_max);
     let skip = |k: usize| excluded(c_end + k);
-    let est = ringfit::estimate_ring(&tail, dt_s, hyst, &skip);
-    let (freq_hz, alpha0) = match (est, event.ring_freq_hz) {
-        (Some(e), _) if e.n_crossings >= 2 => (e.freq_hz, e.alpha_per_s.unwrap_or(0.0)),
-        (_, Some(f)) if f > 0.0 => (f, 0.0),
-        _ => return None,
+    let est = ringfit::estimate_ring(&tail, dt_s, hyst, &skip).filter(|e| e.n_crossings >= 2);
+    let (fit, n_used_end) = match est {
+        Some(e) => {
+            // The ring after the peak is in the same free stretch: fit everything.
+            let end = (c_end + (PERIODS_AFTER / e.freq_hz / dt_s).ceil() as usize).min(seg_end);
+            let (t, y, _) = collect(samples, i_edge, end, dt_s, &excluded);
+            let start = RingStart {
+                omega_d_rad_s: std::f64::consts::TAU * e.freq_hz,
+                alpha_per_s: e.alpha_per_s.unwrap_or(0.0).max(0.0),
+                v_off: event.v_off,
+                fit_offset: true,
+            };
+            (ringfit::fit_damped_sine(&t, &y, &start).ok()?, end)
+        }
+        None => {
+            // The body diode cuts the first lobe short: take the decay and frequency from
+            // the free ringing after it conducted (same L and C), and fit only the
+            // amplitudes of the first lobe with v_off held.
+            let later = fit_free_ring(
+                samples,
+                dt_s,
+                t_start_s,
+                seg_end,
+                noise,
+                event.v_off,
+                sign,
+                &left_out,
+            );
+            let (alpha, omega, cov) = match later.as_ref().map(|f| &f.curve) {
+                Some(FitCurve::DampedSine(f)) => (
+                    f.alpha_per_s,
+                    f.omega_d_rad_s,
+                    f.covariance.map(|c| [c[12], c[13], c[17], c[18]]),
+                ),
+                _ => match (event.ring_freq_hz, event.damping_ratio) {
+                    (Some(fr), z) if super::is_pos(fr) => {
+                        let z = z.unwrap_or(0.0).clamp(0.0, 0.9);
+                        let wd = std::f64::consts::TAU * fr;
+                        (z * wd / (1.0 - z * z).sqrt(), wd, None)
+                    }
+                    _ => return None,
+                },
+            };
+            let (t, y, _) = collect(samples, i_edge, seg_end, dt_s, &excluded);
+            let f = ringfit::fit_amplitudes(&t, &y, alpha, omega, cov, event.v_off, false).ok()?;
+            (f, seg_end)
+        }
     };
-    let period = 1.0 / freq_hz;
-    let end = (c_end + (PERIODS_AFTER * period / dt_s).ceil() as usize).min(n);
-    let (t, y, n_left_out) = collect(samples, i_edge, end, dt_s, &excluded);
-    let fit = ringfit::fit_damped_sine(
-        &t,
-        &y,
-        &RingStart {
-            omega_d_rad_s: std::f64::consts::TAU * freq_hz,
-            alpha_per_s: alpha0.max(0.0),
-            v_off: event.v_off,
-            fit_offset: true,
-        },
-    )
-    .ok()?;
+    let (t_first, t_last, n_used) = {
+        let (t, _, _) = collect(samples, i_edge, n_used_end, dt_s, &excluded);
+        (
+            t.first().copied().unwrap_or(0.0),
+            t.last().copied().unwrap_or(0.0),
+            t.len(),
+        )
+    };
+    let n_left_out = (i_edge..n_used_end).filter(|&i| excluded(i)).count();
     let p = [
         fit.a_v,
         fit.b_v,
@@ -145,9 +189,9 @@ pub(crate) fn fit_clipped(
     let t_origin_s = t_start_s + i_edge as f64 * dt_s;
     Some(EventFit {
         t_origin_s,
-        fit_start_s: t_origin_s + t.first().copied().unwrap_or(0.0),
-        fit_end_s: t_origin_s + t.last().copied().unwrap_or(0.0),
-        n_used: t.len(),
+        fit_start_s: t_origin_s + t_first,
+        fit_end_s: t_origin_s + t_last,
+        n_used,
         n_left_out,
         curve: FitCurve::DampedSine(Box::new(fit)),
         peak: Some(PeakEstimate {

@@ -114,8 +114,14 @@ impl LeftOut {
         self.rail_hi.is_some_and(|h| v >= h) || self.rail_lo.is_some_and(|l| v <= l)
     }
 
+    /// At or beyond the body-diode or clamp level: the circuit itself changed there, so a
+    /// free response does not continue across such a stretch.
+    pub(crate) fn body_clipped(&self, v: f64) -> bool {
+        self.clip_s.is_some_and(|c| self.sign * v <= c)
+    }
+
     pub(crate) fn excluded(&self, v: f64) -> bool {
-        !v.is_finite() || self.at_rail(v) || self.clip_s.is_some_and(|c| self.sign * v <= c)
+        !v.is_finite() || self.at_rail(v) || self.body_clipped(v)
     }
 }
 
@@ -153,41 +159,101 @@ pub fn fit_event(
     }
     let noise = ringfit::noise_sigma(&samples[i_edge..]);
     let start = free_ring_start(samples, i_pk, u_pk, noise, &u);
-    let tail: Vec<f64> = (start..n).map(u).collect();
-    let tail_max = tail.iter().fold(0.0f64, |m, x| m.max(x.abs()));
-    let hyst = (5.0 * noise).max(0.03 * tail_max);
-    let skip = |k: usize| left_out.excluded(samples[start + k]);
-    let est = ringfit::estimate_ring(&tail, dt_s, hyst, &skip);
     let t_origin_s = t_start_s + start as f64 * dt_s;
-    if let Some(est) = est.filter(|e| e.n_crossings >= 3) {
-        let period = 1.0 / est.freq_hz;
-        let span_s = (est.t_last_crossing_s + 2.0 * period).min(MAX_PERIODS * period);
-        let end = (start + (span_s / dt_s).ceil() as usize + 1).min(n);
-        let (t, y, n_left_out) = collect(samples, start, end, dt_s, &|i| {
-            left_out.excluded(samples[i])
-        });
-        let alpha0 = est.alpha_per_s.filter(|a| *a > 0.0).unwrap_or(0.0);
-        let ring_start = RingStart {
-            omega_d_rad_s: std::f64::consts::TAU * est.freq_hz,
-            alpha_per_s: alpha0,
-            v_off: event.v_off,
-            fit_offset: true,
-        };
-        if let Ok(f) = ringfit::fit_damped_sine(&t, &y, &ring_start) {
-            if f.alpha_per_s > 0.0 && f.damping_ratio < 1.0 {
-                return Some(EventFit {
-                    t_origin_s,
-                    fit_start_s: t_origin_s + t.first().copied().unwrap_or(0.0),
-                    fit_end_s: t_origin_s + t.last().copied().unwrap_or(0.0),
-                    n_used: t.len(),
-                    n_left_out,
-                    curve: FitCurve::DampedSine(Box::new(f)),
-                    peak: None,
-                });
-            }
-        }
+    if let Some(fit) = fit_free_ring(
+        samples,
+        dt_s,
+        t_start_s,
+        start,
+        noise,
+        event.v_off,
+        sign,
+        &left_out,
+    ) {
+        return Some(fit);
     }
     fit_decay(samples, start, dt_s, t_origin_s, event, &left_out, &u)
+}
+
+/// Stretches of free ringing from `start` on, separated by runs the body diode or a clamp
+/// clips (the circuit changes while it conducts, so one damped sine cannot span them); the
+/// first stretch holding at least one full ring period (three zero crossings) is fitted.
+#[allow(clippy::too_many_arguments)]
+pub(crate) fn fit_free_ring(
+    samples: &[f64],
+    dt_s: f64,
+    t_start_s: f64,
+    start: usize,
+    noise: f64,
+    v_off: f64,
+    sign: f64,
+    left_out: &LeftOut,
+) -> Option<EventFit> {
+    let n = samples.len();
+    let mut a = start;
+    while a < n {
+        let b = (a..n)
+            .find(|&i| left_out.body_clipped(samples[i]))
+            .unwrap_or(n);
+        if b > a + 8 {
+            if let Some(fit) =
+                fit_stretch(samples, dt_s, t_start_s, a, b, noise, v_off, sign, left_out)
+            {
+                return Some(fit);
+            }
+        }
+        a = (b..n)
+            .find(|&i| !left_out.body_clipped(samples[i]))
+            .unwrap_or(n);
+    }
+    None
+}
+
+#[allow(clippy::too_many_arguments)]
+fn fit_stretch(
+    samples: &[f64],
+    dt_s: f64,
+    t_start_s: f64,
+    a: usize,
+    b: usize,
+    noise: f64,
+    v_off: f64,
+    sign: f64,
+    left_out: &LeftOut,
+) -> Option<EventFit> {
+    let tail: Vec<f64> = samples[a..b].iter().map(|x| sign * (x - v_off)).collect();
+    let tail_max = tail.iter().fold(0.0f64, |m, x| m.max(x.abs()));
+    let hyst = (5.0 * noise).max(0.03 * tail_max);
+    let skip = |k: usize| left_out.excluded(samples[a + k]);
+    let est = ringfit::estimate_ring(&tail, dt_s, hyst, &skip).filter(|e| e.n_crossings >= 3)?;
+    let period = 1.0 / est.freq_hz;
+    let span_s = (est.t_last_crossing_s + 2.0 * period).min(MAX_PERIODS * period);
+    let end = (a + (span_s / dt_s).ceil() as usize + 1).min(b);
+    let (t, y, n_left_out) = collect(samples, a, end, dt_s, &|i| left_out.excluded(samples[i]));
+    let f = ringfit::fit_damped_sine(
+        &t,
+        &y,
+        &RingStart {
+            omega_d_rad_s: std::f64::consts::TAU * est.freq_hz,
+            alpha_per_s: est.alpha_per_s.filter(|x| *x > 0.0).unwrap_or(0.0),
+            v_off,
+            fit_offset: true,
+        },
+    )
+    .ok()?;
+    if !(super::is_pos(f.alpha_per_s) && f.damping_ratio < 1.0) {
+        return None;
+    }
+    let t_origin_s = t_start_s + a as f64 * dt_s;
+    Some(EventFit {
+        t_origin_s,
+        fit_start_s: t_origin_s + t.first().copied().unwrap_or(0.0),
+        fit_end_s: t_origin_s + t.last().copied().unwrap_or(0.0),
+        n_used: t.len(),
+        n_left_out,
+        curve: FitCurve::DampedSine(Box::new(f)),
+        peak: None,
+    })
 }
 
 /// Start of the free response: the main peak, or the end of a clamp plateau. A run near

@@ -238,7 +238,7 @@ pub fn solve(a: &mut [f64], b: &mut [f64], n: usize) -> bool {
 }
 
 /// Inverse of a small symmetric matrix, column by column.
-fn invert(a: &[f64], n: usize) -> Option<Vec<f64>> {
+pub fn invert(a: &[f64], n: usize) -> Option<Vec<f64>> {
     let mut inv = vec![0.0; n * n];
     for col in 0..n {
         let mut work = a.to_vec();

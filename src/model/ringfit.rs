@@ -391,8 +391,42 @@ pub fn fit_damped_sine(
         }
         out
     });
-    let alpha = alpha_s * w_s;
-    let omega_d = w_fit * w_s;
+    let params = [
+        a_s * v_scale,
+        b_s * v_scale,
+        alpha_s * w_s,
+        w_fit * w_s,
+        start.v_off
+            + if start.fit_offset {
+                p[4] * v_scale
+            } else {
+                0.0
+            },
+    ];
+    Ok(assemble(
+        params,
+        cov,
+        start.fit_offset,
+        fit.rms * v_scale,
+        m,
+        fit.n_evals,
+        fit.converged,
+    ))
+}
+
+/// The fit with its derived quantities: omega_0 = sqrt(omega_d^2 + alpha^2),
+/// zeta = alpha / omega_0, Q = 1 / (2 zeta), and their standard errors by first-order
+/// propagation through the (alpha, omega_d) block of the covariance.
+fn assemble(
+    p: [f64; 5],
+    cov: Option<[f64; 25]>,
+    offset_free: bool,
+    rms_v: f64,
+    n_samples: usize,
+    n_evals: usize,
+    converged: bool,
+) -> DampedSineFit {
+    let (alpha, omega_d) = (p[2], p[3]);
     let omega_0 = (omega_d * omega_d + alpha * alpha).sqrt();
     let zeta = alpha / omega_0;
     let var = |k: usize| {
@@ -417,15 +451,10 @@ pub fn fit_damped_sine(
     };
     let sd = |v: Option<f64>| v.filter(|v| *v >= 0.0 && v.is_finite()).map(f64::sqrt);
     let two_pi = std::f64::consts::TAU;
-    Ok(DampedSineFit {
-        v_off: start.v_off
-            + if start.fit_offset {
-                p[4] * v_scale
-            } else {
-                0.0
-            },
-        a_v: a_s * v_scale,
-        b_v: b_s * v_scale,
+    DampedSineFit {
+        v_off: p[4],
+        a_v: p[0],
+        b_v: p[1],
         alpha_per_s: alpha,
         omega_d_rad_s: omega_d,
         omega_0_rad_s: omega_0,
@@ -433,9 +462,9 @@ pub fn fit_damped_sine(
         f_0_hz: omega_0 / two_pi,
         damping_ratio: zeta,
         q_factor: (zeta > 0.0).then(|| 1.0 / (2.0 * zeta)),
-        rms_v: fit.rms * v_scale,
+        rms_v,
         std_err: DampedSineErrors {
-            v_off: if start.fit_offset { sd(var(4)) } else { None },
+            v_off: if offset_free { sd(var(4)) } else { None },
             a_v: sd(var(0)),
             b_v: sd(var(1)),
             alpha_per_s: sd(var(2)),
@@ -444,11 +473,84 @@ pub fn fit_damped_sine(
             f_0_hz: sd(omega_0_var).map(|s| s / two_pi),
             damping_ratio: sd(zeta_var),
         },
-        n_samples: m,
-        n_evals: fit.n_evals,
-        converged: fit.converged,
+        n_samples,
+        n_evals,
+        converged,
         covariance: cov,
-    })
+    }
+}
+
+/// Fits only the amplitudes A, B (and v_off when `fit_offset`) with the decay and frequency
+/// held at values found elsewhere (another stretch of the same circuit). The covariance
+/// joins the linear fit's sigma^2 (X^T X)^-1 with the given (alpha, omega_d) covariance,
+/// the two taken as independent.
+pub fn fit_amplitudes(
+    t_s: &[f64],
+    y: &[f64],
+    alpha_per_s: f64,
+    omega_d_rad_s: f64,
+    alpha_omega_cov: Option<[f64; 4]>,
+    v_off: f64,
+    fit_offset: bool,
+) -> Result<DampedSineFit, ModelError> {
+    let m = t_s.len().min(y.len());
+    let k = if fit_offset { 3 } else { 2 };
+    if m < k + 2 {
+        return Err(ModelError::TooFewSamples { n: m, min: k + 2 });
+    }
+    let mut xtx = [0.0f64; 9];
+    let mut xty = [0.0f64; 3];
+    for (&t, &v) in t_s.iter().zip(y).take(m) {
+        let e = (-alpha_per_s * t).exp();
+        let (s, c) = (omega_d_rad_s * t).sin_cos();
+        let row = [e * c, e * s, 1.0];
+        for a in 0..k {
+            xty[a] += row[a] * (v - v_off);
+            for b in 0..k {
+                xtx[a * k + b] += row[a] * row[b];
+            }
+        }
+    }
+    let mut coef = xty;
+    let mut work = xtx;
+    if !lm::solve(&mut work[..k * k], &mut coef[..k], k) {
+        return Err(ModelError::NoStart("amplitudes (singular fit)".into()));
+    }
+    let c0 = if fit_offset { coef[2] } else { 0.0 };
+    let p = [coef[0], coef[1], alpha_per_s, omega_d_rad_s, v_off + c0];
+    let ssr: f64 = t_s
+        .iter()
+        .zip(y)
+        .take(m)
+        .map(|(&t, &v)| (damped_sine(p, t) - v).powi(2))
+        .sum();
+    let sigma2 = ssr / (m - k) as f64;
+    let cov = lm::invert(&xtx[..k * k], k).map(|inv| {
+        let mut out = [0.0f64; 25];
+        // Linear block: indices 0, 1 (A, B) and 4 (v_off).
+        let map = [0usize, 1, 4];
+        for a in 0..k {
+            for b in 0..k {
+                out[map[a] * 5 + map[b]] = sigma2 * inv[a * k + b];
+            }
+        }
+        if let Some(c) = alpha_omega_cov {
+            out[2 * 5 + 2] = c[0];
+            out[2 * 5 + 3] = c[1];
+            out[3 * 5 + 2] = c[2];
+            out[3 * 5 + 3] = c[3];
+        }
+        out
+    });
+    Ok(assemble(
+        p,
+        cov,
+        fit_offset,
+        (ssr / m as f64).sqrt(),
+        m,
+        1,
+        true,
+    ))
 }
 
 /// Fits `v_off + A exp(-t / tau)` to samples `y` at times `t_s` from the model origin.
