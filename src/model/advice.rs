@@ -194,6 +194,83 @@ pub fn predict_clamp(coil: &Coil, clamp: Clamp) -> Option<ClampPrediction> {
     })
 }
 
+/// Everything the advice can use; each part appears when its inputs are known.
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
+pub struct AdviceInputs {
+    /// Inductance that rings with the node capacitance (the coil for a coil ring, a stray
+    /// loop inductance for a fast parasitic ring).
+    pub ring_l_h: Option<f64>,
+    pub c_par_f: Option<f64>,
+    /// Coil inductance and current at turn-off.
+    pub coil_l_h: Option<f64>,
+    pub coil_current_a: Option<f64>,
+    pub supply_v: Option<f64>,
+    pub switching_rate_hz: Option<f64>,
+    /// Highest voltage the switch may see.
+    pub peak_limit_v: Option<f64>,
+}
+
+/// Suppression advice: the two RC jobs kept apart, and the clamp choices.
+#[derive(Debug, Clone, PartialEq, Serialize, Default)]
+pub struct Advice {
+    pub ring_damper: Option<RingDamper>,
+    pub energy_absorber: Option<EnergyAbsorber>,
+    pub clamps: Vec<ClampPrediction>,
+    pub notes: Vec<String>,
+}
+
+/// Builds the advice the inputs allow. Clamp predictions take the coil resistance as
+/// supply / coil current (the steady on-state current of a low-side switched coil) and
+/// consider a diode, a diode plus zener holding the switch at the peak limit, and a clamp
+/// across the switch at the peak limit.
+pub fn advise(a: &AdviceInputs) -> Advice {
+    let mut out = Advice::default();
+    if let (Some(l), Some(c)) = (a.ring_l_h, a.c_par_f) {
+        out.ring_damper = ring_damper(l, c, a.supply_v, a.switching_rate_hz);
+    }
+    if let (Some(l), Some(i0), Some(vmax)) = (a.coil_l_h, a.coil_current_a, a.peak_limit_v) {
+        out.energy_absorber = energy_absorber(l, i0, vmax, a.switching_rate_hz);
+    }
+    if let (Some(l), Some(i0), Some(vs)) = (a.coil_l_h, a.coil_current_a, a.supply_v) {
+        if super::is_pos(i0) && super::is_pos(vs) && super::is_pos(l) {
+            let coil = Coil {
+                l_h: l,
+                r_ohm: vs / i0,
+                supply_v: vs,
+            };
+            let mut choices = vec![Clamp::Diode { vf_v: DIODE_VF_V }];
+            if let Some(vmax) = a.peak_limit_v {
+                choices.push(Clamp::DiodeZener {
+                    vz_v: vmax - vs - DIODE_VF_V,
+                    vf_v: DIODE_VF_V,
+                });
+                choices.push(Clamp::AcrossSwitch { v_clamp_v: vmax });
+            }
+            out.clamps = choices
+                .into_iter()
+                .filter_map(|c| predict_clamp(&coil, c))
+                .collect();
+            out.notes.push(format!(
+                "clamp predictions take the coil resistance as supply / coil current = {:.1} ohm and a diode drop of {DIODE_VF_V} V",
+                coil.r_ohm
+            ));
+        }
+    }
+    if out
+        .ring_damper
+        .as_ref()
+        .is_some_and(|d| d.power_w.is_none())
+    {
+        out.notes
+            .push("give the supply and the switching rate for the damper's dissipation".into());
+    }
+    out
+}
+
+/// Forward voltage assumed for a freewheel diode (common practice for a silicon rectifier
+/// at coil currents).
+pub const DIODE_VF_V: f64 = 0.7;
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -269,5 +346,26 @@ mod tests {
         assert!(predict_clamp(&coil, Clamp::AcrossSwitch { v_clamp_v: 10.0 }).is_none());
         // L I0 / Vc approaches t0 when Vc >> I0 R.
         assert!(rel(t.decay_time_approx_s, 0.2 * 0.075 / 48.0) < 1e-12);
+    }
+
+    #[test]
+    fn advice_shows_what_the_inputs_allow() {
+        let none = advise(&AdviceInputs::default());
+        assert!(
+            none.ring_damper.is_none() && none.energy_absorber.is_none() && none.clamps.is_empty()
+        );
+        let all = advise(&AdviceInputs {
+            ring_l_h: Some(0.2),
+            c_par_f: Some(100e-12),
+            coil_l_h: Some(0.2),
+            coil_current_a: Some(0.075),
+            supply_v: Some(12.0),
+            switching_rate_hz: Some(10.0),
+            peak_limit_v: Some(36.7),
+        });
+        assert!(all.ring_damper.is_some() && all.energy_absorber.is_some());
+        assert_eq!(all.clamps.len(), 3);
+        // The diode + zener at a 36.7 V limit is the 24 V zener of the worked case above.
+        assert!((all.clamps[1].decay_time_s - 0.495e-3).abs() < 0.5e-6);
     }
 }

@@ -4,15 +4,11 @@
 
 use serde::Serialize;
 
-use super::advice::{self, Clamp, ClampPrediction, Coil, EnergyAbsorber, RingDamper};
+use super::advice::{self, AdviceInputs, ClampPrediction, EnergyAbsorber, RingDamper};
 use super::parasitics::{self, AddedCapUncertainty, Agreement, KnownInductanceEstimate};
 use super::{ModelError, RingMeasurement};
 
 pub const PARASITICS_SCHEMA: &str = "kickscan.parasitics/1";
-
-/// Forward voltage assumed for a freewheel diode (common practice for a silicon
-/// rectifier at coil currents).
-pub const DIODE_VF_V: f64 = 0.7;
 
 /// What the user gave besides the two captures.
 #[derive(Debug, Clone, Copy, Default, PartialEq)]
@@ -142,50 +138,18 @@ pub fn parasitics_doc(
     }
     let named: Vec<(&str, f64)> = estimates.iter().map(|e| (e.method, e.c_par_f)).collect();
     let agreement = parasitics::agreement(&named);
-    let snubber = advice::ring_damper(
-        added.l_h,
-        added.c_par_f,
-        inputs.supply_v,
-        inputs.switching_rate_hz,
-    );
-    if snubber.as_ref().is_some_and(|s| s.power_w.is_none()) {
-        notes.push(
-            "give --supply and --switching-rate for the snubber resistor's dissipation".into(),
-        );
-    }
-    let l_coil = inputs.inductance_h.filter(|l| *l > 0.0);
-    let energy_absorber = match (l_coil, inputs.coil_current_a, inputs.peak_limit_v) {
-        (Some(l), Some(i0), Some(vmax)) => {
-            advice::energy_absorber(l, i0, vmax, inputs.switching_rate_hz)
-        }
-        _ => None,
-    };
-    let mut clamps = Vec::new();
-    if let (Some(l), Some(i0), Some(vs)) = (l_coil, inputs.coil_current_a, inputs.supply_v) {
-        if i0 > 0.0 && vs > 0.0 {
-            let coil = Coil {
-                l_h: l,
-                r_ohm: vs / i0,
-                supply_v: vs,
-            };
-            let mut choices = vec![Clamp::Diode { vf_v: DIODE_VF_V }];
-            if let Some(vmax) = inputs.peak_limit_v {
-                choices.push(Clamp::DiodeZener {
-                    vz_v: vmax - vs - DIODE_VF_V,
-                    vf_v: DIODE_VF_V,
-                });
-                choices.push(Clamp::AcrossSwitch { v_clamp_v: vmax });
-            }
-            clamps = choices
-                .into_iter()
-                .filter_map(|c| advice::predict_clamp(&coil, c))
-                .collect();
-            notes.push(format!(
-                "clamp predictions take the coil resistance as supply / coil current = {:.1} ohm",
-                coil.r_ohm
-            ));
-        }
-    }
+    let advice = advice::advise(&AdviceInputs {
+        ring_l_h: Some(added.l_h),
+        c_par_f: Some(added.c_par_f),
+        coil_l_h: inputs.inductance_h.filter(|l| *l > 0.0),
+        coil_current_a: inputs.coil_current_a,
+        supply_v: inputs.supply_v,
+        switching_rate_hz: inputs.switching_rate_hz,
+        peak_limit_v: inputs.peak_limit_v,
+    });
+    notes.extend(advice.notes.iter().cloned());
+    let (snubber, energy_absorber, clamps) =
+        (advice.ring_damper, advice.energy_absorber, advice.clamps);
     Ok(ParasiticsDoc {
         schema: PARASITICS_SCHEMA,
         f_bare_hz: added.f_bare_hz,
