@@ -320,6 +320,53 @@ mod tests {
     }
 
     #[test]
+    fn text_lists_every_estimate_and_the_advice() {
+        // An analytic ring (L = 1 uH, zeta 0.05, I0 = 1 A) with and without 220 pF added.
+        fn ring(c_f: f64) -> Vec<f64> {
+            let w0 = 1.0 / (1e-6 * c_f).sqrt();
+            let wd = w0 * (1.0f64 - 0.0025).sqrt();
+            (0..20000)
+                .map(|i| {
+                    let t = (i as f64 - 100.0) * 1e-9;
+                    if t < 0.0 {
+                        0.1
+                    } else {
+                        kickscan::model::ringfit::damped_sine(
+                            [0.0, 1.0 / (c_f * wd), 0.05 * w0, wd, 24.0],
+                            t,
+                        )
+                    }
+                })
+                .collect()
+        }
+        let ctx = ModelContext::default();
+        let bare = model::measure_ring(&ring(100e-12), 1e-9, &ctx).unwrap();
+        let loaded = model::measure_ring(&ring(320e-12), 1e-9, &ctx).unwrap();
+        let inputs = ParasiticsInputs {
+            c_add_f: 220e-12,
+            inductance_h: Some(1e-6),
+            supply_v: Some(24.0),
+            switching_rate_hz: Some(20e3),
+            coil_current_a: Some(1.0),
+            peak_limit_v: Some(60.0),
+            c_slope_f: None,
+        };
+        let doc = model::parasitics_doc(&bare, &loaded, &inputs).unwrap();
+        let t = text(&doc);
+        for needle in [
+            "node capacitance",
+            "loop inductance",
+            "Agreement",
+            "Damping the ring",
+            "Absorbing the coil energy",
+            "diode across the coil",
+            "releases late",
+        ] {
+            assert!(t.contains(needle), "missing '{needle}' in:\n{t}");
+        }
+    }
+
+    #[test]
     fn engineering_notation() {
         assert_eq!(eng(100e-12, "F"), "100.0000 pF");
         assert_eq!(eng(31.83, "ohm"), "31.8300 ohm");
