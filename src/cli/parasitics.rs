@@ -168,7 +168,15 @@ fn eng(x: f64, unit: &str) -> String {
         .find(|(f, _)| x.abs() >= *f * 0.9995)
         .copied()
         .unwrap_or((1e-15, "f"));
-    format!("{:.4} {p}{unit}", x / f)
+    let m = x / f;
+    let digits = if m.abs() >= 100.0 {
+        1
+    } else if m.abs() >= 10.0 {
+        2
+    } else {
+        3
+    };
+    format!("{m:.digits$} {p}{unit}")
 }
 
 fn pm(std: Option<f64>, unit: &str) -> String {
@@ -368,8 +376,8 @@ mod tests {
 
     #[test]
     fn engineering_notation() {
-        assert_eq!(eng(100e-12, "F"), "100.0000 pF");
-        assert_eq!(eng(31.83, "ohm"), "31.8300 ohm");
-        assert_eq!(eng(1.152e-3, "W"), "1.1520 mW");
+        assert_eq!(eng(100e-12, "F"), "100.0 pF");
+        assert_eq!(eng(31.83, "ohm"), "31.83 ohm");
+        assert_eq!(eng(1.152e-3, "W"), "1.152 mW");
     }
 }

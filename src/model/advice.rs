@@ -141,6 +141,19 @@ pub struct ClampPrediction {
     pub comment: String,
 }
 
+/// A duration in the unit a designer reads it in.
+fn time_text(t_s: f64) -> String {
+    if t_s >= 1.0 {
+        format!("{t_s:.3} s")
+    } else if t_s >= 1e-3 {
+        format!("{:.3} ms", t_s * 1e3)
+    } else if t_s >= 1e-6 {
+        format!("{:.3} us", t_s * 1e6)
+    } else {
+        format!("{:.3} ns", t_s * 1e9)
+    }
+}
+
 /// t0 = tau ln(1 + I0 R / Vc), from L di/dt = -(Vc + R i) with i(0) = I0.
 pub fn decay_time_s(l_h: f64, r_ohm: f64, i0_a: f64, holding_v: f64) -> Option<f64> {
     if !(l_h > 0.0 && i0_a > 0.0 && holding_v > 0.0 && r_ohm >= 0.0) {
@@ -170,18 +183,18 @@ pub fn predict_clamp(coil: &Coil, clamp: Clamp) -> Option<ClampPrediction> {
     let slow = coil.tau_s();
     let comment = match clamp {
         Clamp::Diode { .. } => format!(
-            "lowest spike, but the coil current circulates in the diode for {:.3} ms ({:.1} x the coil's own L/R): the relay or valve releases late and the contacts open slowly",
-            t0 * 1e3,
+            "lowest spike, but the coil current circulates in the diode for {} ({:.1} x the coil's own L/R): the relay or valve releases late and the contacts open slowly",
+            time_text(t0),
             t0 / slow
         ),
         Clamp::DiodeZener { .. } => format!(
-            "the usual compromise: the switch sees {switch_peak_v:.1} V and the current dies in {:.3} ms",
-            t0 * 1e3
+            "the usual compromise: the switch sees {switch_peak_v:.1} V and the current dies in {}",
+            time_text(t0)
         ),
         Clamp::AcrossSwitch { .. } => format!(
-            "fast release ({:.3} ms); the clamp across the switch absorbs the coil's {:.3} mJ every switching",
-            t0 * 1e3,
-            coil.energy_j() * 1e3
+            "fast release ({}); the clamp across the switch absorbs the coil's {:.3e} J every switching",
+            time_text(t0),
+            coil.energy_j()
         ),
     };
     Some(ClampPrediction {
