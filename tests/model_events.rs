@@ -206,3 +206,78 @@ fn bad_input_gives_none_not_a_panic() {
     let _ = fit_event(&v, f64::INFINITY, 0.0, &far, &ctx);
     let _ = kickscan::model::measure_ring(&[f64::NAN; 40], DT_S, &ctx);
 }
+
+mod fuzz {
+    use super::*;
+    use proptest::prelude::*;
+
+    proptest! {
+        #![proptest_config(ProptestConfig::with_cases(200))]
+        /// Any window, edge time, polarity, clip flag and ranges: a result or None, never a
+        /// panic, and never a NaN written into the event.
+        #[test]
+        fn fit_event_never_panics(
+            v in proptest::collection::vec(prop_oneof![-1e3f64..1e3, Just(f64::NAN), Just(5.0)], 0..400),
+            t_edge in -1e-6f64..2e-6,
+            up in any::<bool>(),
+            clipped in any::<bool>(),
+            rail in proptest::option::of(-10f64..500.0),
+            clip_level in proptest::option::of(-5f64..5.0),
+        ) {
+            let ev = Event {
+                t_edge_s: t_edge,
+                polarity: if up { Polarity::Up } else { Polarity::Down },
+                v_off: 12.0,
+                clipped,
+                ..Event::default()
+            };
+            let ctx = ModelContext {
+                inductance_h: Some(1e-3),
+                adc: rail.map(|r| AdcRange { min_v: -r.abs() - 1.0, max_v: r, step_v: None }),
+                clip_level_v: clip_level,
+            };
+            if let Some(fit) = fit_event(&v, 5e-9, 0.0, &ev, &ctx) {
+                let mut e = ev.clone();
+                apply_fit(&mut e, &fit, &ctx);
+                for x in [e.ring_alpha, e.damping_ratio, e.q_factor, e.fit_rms_v, e.c_par_f, e.peak_v_est, e.peak_v_est_lower, e.peak_v_est_upper].into_iter().flatten() {
+                    prop_assert!(!x.is_nan());
+                }
+            }
+            let _ = kickscan::model::measure_ring(&v, 5e-9, &ctx);
+        }
+
+        /// Rings of any frequency, damping and clip fraction: no panic, no NaN.
+        #[test]
+        fn fit_event_on_rings_never_panics(
+            f0 in 1e4f64..5e7,
+            zeta in 0.0f64..1.5,
+            amp in 0.1f64..1e3,
+            frac in 0.3f64..1.2,
+            seed in any::<u64>(),
+        ) {
+            let w0 = std::f64::consts::TAU * f0;
+            let wd = w0 * (1.0 - zeta.min(0.999) * zeta.min(0.999)).sqrt();
+            let nz = noise(3000, 0.01 * amp, seed);
+            let rail = 12.0 + frac * amp;
+            let v: Vec<f64> = (0..3000)
+                .map(|i| {
+                    let t = (i as f64 - 100.0) * DT_S;
+                    let x = if t < 0.0 { 0.1 } else { damped_sine([0.0, amp, zeta * w0, wd, 12.0], t) };
+                    (x + nz[i]).min(rail)
+                })
+                .collect();
+            let ev = Event { t_edge_s: 100.0 * DT_S, v_off: 12.0, clipped: frac < 1.0, ..Event::default() };
+            let ctx = ModelContext {
+                adc: Some(AdcRange { min_v: -1e4, max_v: rail, step_v: None }),
+                ..ModelContext::default()
+            };
+            if let Some(fit) = fit_event(&v, DT_S, 0.0, &ev, &ctx) {
+                let mut e = ev.clone();
+                apply_fit(&mut e, &fit, &ctx);
+                for x in [e.ring_alpha, e.damping_ratio, e.q_factor, e.fit_rms_v, e.peak_v_est, e.peak_v_est_lower, e.peak_v_est_upper].into_iter().flatten() {
+                    prop_assert!(x.is_finite());
+                }
+            }
+        }
+    }
+}
