@@ -152,6 +152,7 @@ pub fn run(cli: Cli) -> Result<ExitCode> {
             Ok(exit_for(outcome.n_errors > 0, false))
         }
         Command::Simulate(args) => crate::cli::simulate::run(args),
+        Command::Parasitics(args) => crate::cli::parasitics::run(args),
     }
 }
 

@@ -11,6 +11,7 @@ use kickscan::measure::{CurrentThrough, MeasureOptions, PolarityChoice};
 use kickscan::pipeline::Settings;
 use kickscan::units::parse_si;
 
+pub mod parasitics;
 pub mod simulate;
 
 #[derive(Parser, Debug)]
@@ -109,6 +110,8 @@ pub enum Command {
     },
     /// Synthesize captures of a coil switched off with a chosen clamp.
     Simulate(simulate::SimulateArgs),
+    /// Node capacitance and loop inductance from a bare and a loaded capture; snubber advice.
+    Parasitics(parasitics::ParasiticsArgs),
 }
 
 /// Groups `LABEL=INPUT` arguments by label, keeping the order labels first appear in.

@@ -1,0 +1,331 @@
+//! A small dense Levenberg-Marquardt solver for the handful of parameters of the switch-node
+//! models (Levenberg 1944; Marquardt 1963; scaling by the running maximum of the diagonal of
+//! J^T J as in Moré 1978). Problems here have at most a few parameters and a few thousand
+//! residuals, so the normal equations are formed and solved directly.
+
+/// Most parameters a model may have (the solver keeps its matrices on the stack).
+pub const MAX_PARAMS: usize = 6;
+
+/// Stopping rules.
+#[derive(Debug, Clone, Copy)]
+pub struct LmOptions {
+    /// Most model evaluations (residuals plus Jacobian).
+    pub max_evals: usize,
+    /// Stop when an accepted step lowers the sum of squares by less than this fraction.
+    pub ftol: f64,
+    /// Stop when every step component is below this fraction of its parameter.
+    pub xtol: f64,
+}
+
+impl Default for LmOptions {
+    fn default() -> Self {
+        LmOptions {
+            max_evals: 200,
+            ftol: 1e-10,
+            xtol: 1e-10,
+        }
+    }
+}
+
+/// Result of a fit. Standard errors come from sigma^2 (J^T J)^-1 with
+/// sigma^2 = SSR / (m - n), the usual first-order covariance of a least-squares estimate.
+#[derive(Debug, Clone, PartialEq)]
+pub struct LmFit {
+    pub params: Vec<f64>,
+    /// Row-major n x n covariance; `None` when J^T J is singular or m <= n.
+    pub covariance: Option<Vec<f64>>,
+    pub std_err: Vec<Option<f64>>,
+    /// Sum of squared residuals at the solution.
+    pub ssr: f64,
+    /// Root mean square residual.
+    pub rms: f64,
+    pub n_evals: usize,
+    /// True when a tolerance was met (not the evaluation limit).
+    pub converged: bool,
+}
+
+/// Why a fit could not run.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+pub enum LmError {
+    #[error("the fit has {n} parameters; 1 to {MAX_PARAMS} are supported")]
+    BadParamCount { n: usize },
+    #[error("the fit has {m} samples for {n} parameters; more samples than parameters are needed")]
+    TooFewSamples { m: usize, n: usize },
+    #[error("the model is not finite at the starting parameters")]
+    BadStart,
+}
+
+/// Minimises sum r_i(p)^2. `eval(p, r, jac)` fills the m residuals and, when `jac` is given,
+/// the row-major m x n Jacobian dr_i/dp_j; it returns false when the model is not finite there.
+pub fn minimize<F>(p0: &[f64], m: usize, opts: &LmOptions, mut eval: F) -> Result<LmFit, LmError>
+where
+    F: FnMut(&[f64], &mut [f64], Option<&mut [f64]>) -> bool,
+{
+    let n = p0.len();
+    if n == 0 || n > MAX_PARAMS {
+        return Err(LmError::BadParamCount { n });
+    }
+    if m <= n {
+        return Err(LmError::TooFewSamples { m, n });
+    }
+    let mut p = p0.to_vec();
+    let mut r = vec![0.0; m];
+    let mut jac = vec![0.0; m * n];
+    let mut r_try = vec![0.0; m];
+    let mut p_try = vec![0.0; n];
+    if !eval(&p, &mut r, Some(&mut jac)) || !all_finite(&r) || !all_finite(&jac) {
+        return Err(LmError::BadStart);
+    }
+    let mut n_evals = 1;
+    let mut cost = sum_sq(&r);
+    let mut lambda = 1e-3;
+    let mut diag_scale = [0.0f64; MAX_PARAMS];
+    let mut converged = false;
+    let mut jtj = [0.0f64; MAX_PARAMS * MAX_PARAMS];
+    let mut jtr = [0.0f64; MAX_PARAMS];
+    normal_equations(&jac, &r, m, n, &mut jtj, &mut jtr);
+    while n_evals < opts.max_evals {
+        for j in 0..n {
+            diag_scale[j] = diag_scale[j].max(jtj[j * n + j]).max(1e-300);
+        }
+        let mut a = [0.0f64; MAX_PARAMS * MAX_PARAMS];
+        a[..n * n].copy_from_slice(&jtj[..n * n]);
+        let mut step = [0.0f64; MAX_PARAMS];
+        for j in 0..n {
+            a[j * n + j] += lambda * diag_scale[j];
+            step[j] = -jtr[j];
+        }
+        if !solve(&mut a[..n * n], &mut step[..n], n) {
+            lambda *= 10.0;
+            if lambda > 1e20 {
+                break;
+            }
+            continue;
+        }
+        for j in 0..n {
+            p_try[j] = p[j] + step[j];
+        }
+        n_evals += 1;
+        let ok = eval(&p_try, &mut r_try, None) && all_finite(&r_try);
+        let cost_try = if ok { sum_sq(&r_try) } else { f64::INFINITY };
+        if cost_try < cost {
+            let small_step =
+                (0..n).all(|j| step[j].abs() <= opts.xtol * (p_try[j].abs() + opts.xtol));
+            let small_gain = cost - cost_try <= opts.ftol * cost;
+            // The Jacobian is evaluated at the accepted point for the next step and for the
+            // covariance; a point that is finite for r but not for J ends the fit there.
+            n_evals += 1;
+            if !eval(&p_try, &mut r, Some(&mut jac)) || !all_finite(&jac) || !all_finite(&r) {
+                // Keep the previous, fully evaluated point.
+                break;
+            }
+            p.copy_from_slice(&p_try);
+            cost = sum_sq(&r);
+            normal_equations(&jac, &r, m, n, &mut jtj, &mut jtr);
+            lambda = (lambda * 0.1).max(1e-15);
+            if small_step || small_gain || cost == 0.0 {
+                converged = true;
+                break;
+            }
+        } else {
+            lambda *= 10.0;
+            if lambda > 1e20 {
+                // No step lowers the cost: the point is a minimum to working precision.
+                converged = true;
+                break;
+            }
+        }
+    }
+    let dof = (m - n) as f64;
+    let sigma2 = cost / dof;
+    let covariance = invert(&jtj[..n * n], n).map(|mut inv| {
+        for x in inv.iter_mut() {
+            *x *= sigma2;
+        }
+        inv
+    });
+    let std_err = (0..n)
+        .map(|j| {
+            covariance
+                .as_ref()
+                .and_then(|c| c.get(j * n + j).copied())
+                .filter(|v| v.is_finite() && *v >= 0.0)
+                .map(f64::sqrt)
+        })
+        .collect();
+    Ok(LmFit {
+        params: p,
+        covariance,
+        std_err,
+        ssr: cost,
+        rms: (cost / m as f64).sqrt(),
+        n_evals,
+        converged,
+    })
+}
+
+fn all_finite(x: &[f64]) -> bool {
+    x.iter().all(|v| v.is_finite())
+}
+
+fn sum_sq(r: &[f64]) -> f64 {
+    r.iter().map(|x| x * x).sum()
+}
+
+fn normal_equations(jac: &[f64], r: &[f64], m: usize, n: usize, jtj: &mut [f64], jtr: &mut [f64]) {
+    jtj[..n * n].fill(0.0);
+    jtr[..n].fill(0.0);
+    for (row, ri) in jac.chunks_exact(n).zip(r).take(m) {
+        for a in 0..n {
+            jtr[a] += row[a] * ri;
+            for b in a..n {
+                jtj[a * n + b] += row[a] * row[b];
+            }
+        }
+    }
+    for a in 0..n {
+        for b in 0..a {
+            jtj[a * n + b] = jtj[b * n + a];
+        }
+    }
+}
+
+/// Solves a x = b in place (b becomes x) by Gaussian elimination with partial pivoting.
+/// Returns false for a singular or non-finite system.
+pub fn solve(a: &mut [f64], b: &mut [f64], n: usize) -> bool {
+    if a.len() < n * n || b.len() < n {
+        return false;
+    }
+    let scale = a[..n * n].iter().fold(0.0f64, |s, x| s.max(x.abs()));
+    if !(scale.is_finite() && scale > 0.0) {
+        return false;
+    }
+    for col in 0..n {
+        let mut piv = col;
+        for row in col + 1..n {
+            if a[row * n + col].abs() > a[piv * n + col].abs() {
+                piv = row;
+            }
+        }
+        if a[piv * n + col].abs() <= 1e-14 * scale {
+            return false;
+        }
+        if piv != col {
+            for k in 0..n {
+                a.swap(col * n + k, piv * n + k);
+            }
+            b.swap(col, piv);
+        }
+        let d = a[col * n + col];
+        for row in col + 1..n {
+            let f = a[row * n + col] / d;
+            if f != 0.0 {
+                for k in col..n {
+                    a[row * n + k] -= f * a[col * n + k];
+                }
+                b[row] -= f * b[col];
+            }
+        }
+    }
+    for col in (0..n).rev() {
+        let mut s = b[col];
+        for k in col + 1..n {
+            s -= a[col * n + k] * b[k];
+        }
+        b[col] = s / a[col * n + col];
+    }
+    b[..n].iter().all(|x| x.is_finite())
+}
+
+/// Inverse of a small symmetric matrix, column by column.
+pub fn invert(a: &[f64], n: usize) -> Option<Vec<f64>> {
+    let mut inv = vec![0.0; n * n];
+    for col in 0..n {
+        let mut work = a.to_vec();
+        let mut e = vec![0.0; n];
+        e[col] = 1.0;
+        if !solve(&mut work, &mut e, n) {
+            return None;
+        }
+        for row in 0..n {
+            inv[row * n + col] = e[row];
+        }
+    }
+    Some(inv)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn solves_a_small_system() {
+        // 2x + y = 5, x + 3y = 10 -> x = 1, y = 3 (by hand).
+        let mut a = [2.0, 1.0, 1.0, 3.0];
+        let mut b = [5.0, 10.0];
+        assert!(solve(&mut a, &mut b, 2));
+        assert!((b[0] - 1.0).abs() < 1e-12 && (b[1] - 3.0).abs() < 1e-12);
+        let mut s = [1.0, 2.0, 2.0, 4.0];
+        let mut c = [1.0, 2.0];
+        assert!(!solve(&mut s, &mut c, 2), "singular matrix refused");
+    }
+
+    #[test]
+    fn fits_the_rosenbrock_valley() {
+        // Rosenbrock as residuals (10 (y - x^2), 1 - x): minimum at (1, 1) (Rosenbrock 1960),
+        // a standard test of Moré, Garbow & Hillstrom (1981), started at (-1.2, 1).
+        let fit = minimize(&[-1.2, 1.0], 3, &LmOptions::default(), |p, r, jac| {
+            r[0] = 10.0 * (p[1] - p[0] * p[0]);
+            r[1] = 1.0 - p[0];
+            r[2] = 0.0;
+            if let Some(j) = jac {
+                j.copy_from_slice(&[-20.0 * p[0], 10.0, -1.0, 0.0, 0.0, 0.0]);
+            }
+            true
+        })
+        .unwrap();
+        assert!((fit.params[0] - 1.0).abs() < 1e-6, "{:?}", fit.params);
+        assert!((fit.params[1] - 1.0).abs() < 1e-6, "{:?}", fit.params);
+        assert!(fit.converged);
+    }
+
+    #[test]
+    fn straight_line_standard_errors_match_the_textbook_formula() {
+        // y = a + b x on x = 0..9 with residual pattern e; for ordinary least squares
+        // se(b) = s / sqrt(Sxx) with s^2 = SSR/(n-2) (any regression textbook).
+        let e = [0.1, -0.2, 0.05, 0.15, -0.1, 0.0, 0.2, -0.15, -0.05, 0.0];
+        let x: Vec<f64> = (0..10).map(f64::from).collect();
+        let y: Vec<f64> = x.iter().zip(e).map(|(x, e)| 1.0 + 2.0 * x + e).collect();
+        let fit = minimize(&[0.0, 0.0], 10, &LmOptions::default(), |p, r, jac| {
+            for i in 0..10 {
+                r[i] = p[0] + p[1] * x[i] - y[i];
+            }
+            if let Some(j) = jac {
+                for i in 0..10 {
+                    j[2 * i] = 1.0;
+                    j[2 * i + 1] = x[i];
+                }
+            }
+            true
+        })
+        .unwrap();
+        let xm = 4.5;
+        let sxx: f64 = x.iter().map(|x| (x - xm) * (x - xm)).sum();
+        let s2 = fit.ssr / 8.0;
+        let se_b = (s2 / sxx).sqrt();
+        assert!((fit.std_err[1].unwrap() - se_b).abs() < 1e-9 * se_b.max(1e-12) + 1e-12);
+    }
+
+    #[test]
+    fn refuses_bad_shapes() {
+        let f = |_: &[f64], _: &mut [f64], _: Option<&mut [f64]>| true;
+        assert_eq!(
+            minimize(&[], 5, &LmOptions::default(), f).unwrap_err(),
+            LmError::BadParamCount { n: 0 }
+        );
+        assert_eq!(
+            minimize(&[1.0, 2.0], 2, &LmOptions::default(), f).unwrap_err(),
+            LmError::TooFewSamples { m: 2, n: 2 }
+        );
+    }
+}
