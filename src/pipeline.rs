@@ -223,8 +223,11 @@ pub fn measure_file(
         t0_s: cap.t0_s,
         adc: signal.adc,
     };
-    let m = measure::measure_trace(&trace, &settings.measure)
+    let mut m = measure::measure_trace(&trace, &settings.measure)
         .map_err(|e| format!("{}: {e}", path.display()))?;
+    if !settings.no_fit {
+        fit_events(&mut m, &signal, cap.sample_interval_s, cap.t0_s, settings);
+    }
     let mut warnings = cap.warnings.clone();
     warnings.extend(m.warnings);
     let sketch = sketch.then(|| {
@@ -306,6 +309,41 @@ pub fn measure_inputs_sketched(
         errors,
     };
     (doc, sketches)
+}
+
+/// How far past the rail the switch's body diode holds the node once it conducts, less a
+/// margin for noise: samples beyond it are left out of fits (a silicon body diode conducts
+/// from about 0.5-0.7 V; common practice).
+const BODY_DIODE_CLIP_V: f64 = 0.4;
+
+/// Fits the damped RLC model (or an exponential decay) to every event and folds the results
+/// into the event: refined damping, Q, node capacitance with `--inductance`, and the
+/// reconstructed peak of clipped events.
+fn fit_events(
+    m: &mut measure::CaptureMeasurement,
+    signal: &capture::Channel,
+    dt_s: f64,
+    t0_s: f64,
+    settings: &Settings,
+) {
+    let clip_level_v = Some(match m.polarity {
+        measure::Polarity::Up => -BODY_DIODE_CLIP_V,
+        measure::Polarity::Down => m.v_on + BODY_DIODE_CLIP_V,
+    });
+    let ctx = crate::model::ModelContext {
+        inductance_h: settings.measure.inductance_h,
+        adc: signal.adc,
+        clip_level_v,
+    };
+    for (event, &(start, end)) in m.events.iter_mut().zip(&m.windows) {
+        let Some(window) = signal.samples.get(start..end) else {
+            continue;
+        };
+        let t_start_s = t0_s + start as f64 * dt_s;
+        if let Some(fit) = crate::model::fit_event(window, dt_s, t_start_s, event, &ctx) {
+            crate::model::apply_fit(event, &fit, &ctx);
+        }
+    }
 }
 
 /// The per-event metrics that summaries and comparisons cover, with their accessors.
