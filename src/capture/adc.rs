@@ -11,12 +11,14 @@ use super::AdcRange;
 const MIN_RAIL_HITS: u64 = 3;
 /// A value held by more than this share of samples is a state level, not a rail.
 const MAX_RAIL_SHARE: f64 = 0.25;
+/// Width of the band inside a rail, as a share of the range, where few samples may lie.
+const NEAR_BAND: f64 = 0.02;
 /// Values kept per channel to estimate the code step (bounded memory).
 const KEPT_VALUES: usize = 1 << 16;
 /// Share of gaps that must be whole multiples of the step to call the values gridded.
 const GRID_SHARE: f64 = 0.99;
 
-/// Running extremes of one channel.
+/// Running extremes of one channel, and a uniform subsample of its values.
 #[derive(Debug, Clone)]
 pub(crate) struct RailWatch {
     min: f64,
@@ -24,7 +26,10 @@ pub(crate) struct RailWatch {
     n_min: u64,
     n_max: u64,
     n: u64,
+    /// Every `stride`-th value; the stride doubles whenever the store fills, so it stays a
+    /// uniform subsample of the whole capture in bounded memory.
     kept: Vec<f64>,
+    stride: u64,
 }
 
 impl Default for RailWatch {
@@ -36,6 +41,7 @@ impl Default for RailWatch {
             n_max: 0,
             n: 0,
             kept: Vec::new(),
+            stride: 1,
         }
     }
 }
@@ -55,11 +61,40 @@ impl RailWatch {
             } else if x == self.min {
                 self.n_min += 1;
             }
+            if self.n % self.stride == 0 {
+                if self.kept.len() >= KEPT_VALUES {
+                    let mut k = 0;
+                    self.kept.retain(|_| {
+                        k += 1;
+                        k % 2 == 1
+                    });
+                    self.stride *= 2;
+                }
+                if self.n % self.stride == 0 {
+                    self.kept.push(x);
+                }
+            }
+            self.n += 1;
         }
-        self.n += values.len() as u64;
-        let room = KEPT_VALUES.saturating_sub(self.kept.len());
-        self.kept
-            .extend_from_slice(values.get(..room.min(values.len())).unwrap_or(&[]));
+    }
+
+    /// Whether the extreme `value`, hit `hits` times, is a rail: it repeats, it is not a
+    /// state level (held by a large share of samples), and few samples lie just inside it.
+    /// Clipped samples sit on the rail with only edge-transit samples near it; the floor
+    /// of a noisy state level has its whole noise band next to its extreme code.
+    fn is_rail(&self, value: f64, hits: u64, step: Option<f64>) -> bool {
+        if hits < MIN_RAIL_HITS || hits as f64 > MAX_RAIL_SHARE * self.n as f64 {
+            return false;
+        }
+        // At least a few codes wide, so a coarse ADC's noise band is inside it.
+        let band = (NEAR_BAND * (self.max - self.min)).max(2.5 * step.unwrap_or(0.0));
+        let near = self
+            .kept
+            .iter()
+            .filter(|&&v| v != value && (v - value).abs() <= band)
+            .count();
+        let near_est = near as f64 * self.n as f64 / self.kept.len().max(1) as f64;
+        near_est < hits as f64
     }
 
     /// Rails and step seen, with a note for `inspect`. Unseen rails are infinite.
@@ -67,11 +102,9 @@ impl RailWatch {
         if self.n == 0 || self.min >= self.max {
             return None;
         }
-        let is_rail =
-            |hits: u64| hits >= MIN_RAIL_HITS && (hits as f64) <= MAX_RAIL_SHARE * self.n as f64;
-        let upper = is_rail(self.n_max);
-        let lower = is_rail(self.n_min);
         let step = code_step(&self.kept);
+        let upper = self.is_rail(self.max, self.n_max, step);
+        let lower = self.is_rail(self.min, self.n_min, step);
         if !upper && !lower && step.is_none() {
             return None;
         }
@@ -89,7 +122,7 @@ impl RailWatch {
             ));
         }
         if let Some(s) = step {
-            parts.push(format!("code step {s:e} {unit}"));
+            parts.push(format!("code step {:e} {unit}", super::sig(s)));
         }
         let range = AdcRange {
             min_v: if lower { self.min } else { f64::NEG_INFINITY },
@@ -144,6 +177,34 @@ mod tests {
         assert_eq!(r.min_v, f64::NEG_INFINITY);
         assert_eq!(r.step_v, Some(0.5));
         assert!(note.contains("upper rail 10 V"), "{note}");
+    }
+
+    #[test]
+    fn the_floor_of_a_noisy_state_is_no_rail() {
+        // An invented quantized noise band around 0 V with its minimum -1 V hit 3 times.
+        let mut w = RailWatch::default();
+        let mut v = vec![0.0; 40];
+        for (k, x) in v.iter_mut().enumerate() {
+            *x = [0.0, 0.5, -0.5, 0.0, 0.5][k % 5];
+        }
+        v[3] = -1.0;
+        v[13] = -1.0;
+        v[23] = -1.0;
+        v.extend_from_slice(&[8.0, 20.0, 20.0, 20.0, 6.0]);
+        w.observe(&v);
+        let (r, _) = w.conclude("v", "V").unwrap();
+        assert_eq!(r.min_v, f64::NEG_INFINITY);
+        assert_eq!(r.max_v, 20.0);
+    }
+
+    #[test]
+    fn the_subsample_stays_bounded_and_uniform() {
+        let mut w = RailWatch::default();
+        let v: Vec<f64> = (0..(3 * KEPT_VALUES)).map(|k| k as f64).collect();
+        w.observe(&v);
+        assert!(w.kept.len() <= KEPT_VALUES);
+        assert_eq!(w.stride, 4);
+        assert_eq!(w.kept[1], 4.0);
     }
 
     #[test]

@@ -305,7 +305,7 @@ fn read_preamble(lines: &[SniffLine], delim: Delim, comma: bool, cap: &mut Captu
                     p.interval_s = Some(1.0 / hz);
                     cap.notes.push(format!(
                         "sample rate {hz:e} Hz stated on line {line}: interval {:e} s",
-                        1.0 / hz
+                        super::sig(1.0 / hz)
                     ));
                 }
                 None => cap.warnings.push(format!(
@@ -544,7 +544,7 @@ impl CsvStream {
                     tc.steps,
                     tc.first_jitter_line,
                     tc.max_deviation * 100.0,
-                    tc.dt_s
+                    super::sig(tc.dt_s)
                 ));
             }
         }
@@ -569,7 +569,9 @@ fn check_time(
                 line,
                 1,
                 format!(
-                    "time goes backwards or repeats ({t:e} s after {prev:e} s); expected rising time"
+                    "time goes backwards or repeats ({:e} s after {:e} s); expected rising time",
+                    super::sig(t),
+                    super::sig(prev)
                 ),
             ));
         }
@@ -582,8 +584,9 @@ fn check_time(
                     line,
                     1,
                     format!(
-                        "gap in the time column: a step of {step:e} s where the sample interval is {:e} s (missing rows before this line?)",
-                        tc.dt_s
+                        "gap in the time column: a step of {:e} s where the sample interval is {:e} s (missing rows before this line?)",
+                        super::sig(step),
+                        super::sig(tc.dt_s)
                     ),
                 ));
             }
@@ -911,16 +914,18 @@ pub(crate) fn open(
         if let Some(med) = median(&mut steps).filter(|&m| m > 0.0) {
             let span = times.last().map_or(0.0, |l| l.0) - times.first().map_or(0.0, |f| f.0);
             let mean = span / (times.len() - 1) as f64;
-            let dt_file = if (mean - med).abs() <= JITTER_FRACTION * med {
-                mean
-            } else {
-                med
-            };
+            // Evenly printed steps: the mean over the window is the finer estimate. Any
+            // jitter: the median step, which the jitter does not pull.
+            let even = times
+                .windows(2)
+                .all(|w| (w[1].0 - w[0].0 - med).abs() <= JITTER_FRACTION * med + w[0].1 + w[1].1);
+            let dt_file = if even { mean } else { med };
             let dt = dt_file * factor;
             let check_steps = coarsest <= 0.25 * dt;
             if !check_steps {
                 cap.notes.push(format!(
-                    "time column printed with a resolution of {coarsest:e} s, too coarse to check each step"
+                    "time column printed with a resolution of {:e} s, too coarse to check each step",
+                    super::sig(coarsest)
                 ));
             }
             dt_from_time = Some(dt);
@@ -940,7 +945,8 @@ pub(crate) fn open(
                 format!("'{tname}'")
             };
             cap.notes.push(format!(
-                "sample interval {dt:e} s from the time column {label}"
+                "sample interval {:e} s from the time column {label}",
+                super::sig(dt)
             ));
         }
     }
@@ -962,7 +968,8 @@ pub(crate) fn open(
             if let Some(s) = stated {
                 if ((s - dt) / dt).abs() > JITTER_FRACTION {
                     cap.warnings.push(format!(
-                        "the file states a sample interval of {s:e} s but its time column steps by {dt:e} s; the time column is used"
+                        "the file states a sample interval of {s:e} s but its time column steps by {:e} s; the time column is used",
+                        super::sig(dt)
                     ));
                 }
             }

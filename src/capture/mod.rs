@@ -263,3 +263,9 @@ pub(crate) fn apply_scale_options(
     }
     Ok(factors)
 }
+
+/// A value rounded to 6 significant digits for notes and messages, so a step computed from
+/// printed times shows as `2e-9`, not `1.9999999999999998e-9`.
+pub(crate) fn sig(x: f64) -> f64 {
+    format!("{x:.5e}").parse().unwrap_or(x)
+}

@@ -124,13 +124,15 @@ pub(crate) fn describe_channels(
                 .push(format!("sample rate {hz} Hz from the header"));
             1.0 / hz
         }
-        _ => return Err(CaptureError::Invalid {
-            file: file.to_path_buf(),
-            message: format!(
+        _ => {
+            return Err(CaptureError::Invalid {
+                file: file.to_path_buf(),
+                message: format!(
                 "no sample rate: expected 'sample_rate_hz' in the sidecar {} or --dt/--sample-rate",
                 super::sidecar::sidecar_path(file).display()
             ),
-        }),
+            })
+        }
     };
     let t0_s = sc.and_then(|s| s.t0_s).unwrap_or(0.0);
     Ok(Described {
