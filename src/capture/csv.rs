@@ -16,8 +16,9 @@ use super::columns::{self, MetaKey};
 use super::lines::{LineError, LineReader, MAX_LINE_BYTES};
 use super::{Capture, CaptureError, Channel, Format, ReadOptions};
 
-/// How much of the start of a file is read to sniff its layout.
-pub(crate) const SNIFF_BYTES: usize = 1 << 20;
+/// How much of the start of a file is read to sniff its layout: twice the longest line, so
+/// a line too long to accept that starts in the first half is seen whole enough to refuse.
+pub(crate) const SNIFF_BYTES: usize = 2 * MAX_LINE_BYTES;
 /// Most lines looked at while sniffing.
 const SNIFF_LINES: usize = 4000;
 /// A time step this much longer than the sample interval is a gap, not jitter.
@@ -134,7 +135,7 @@ fn split_lines<'a>(
             Some(k) => (start + k, start + k + 1),
             None if complete => (head.len(), head.len()),
             None => {
-                if out.is_empty() {
+                if head.len() - start >= MAX_LINE_BYTES {
                     return Err(csv_err(
                         file,
                         no,
@@ -357,14 +358,27 @@ fn read_preamble(lines: &[SniffLine], delim: Delim, comma: bool, cap: &mut Captu
     p
 }
 
-/// Time values of the first data rows, in the file's unit, with their printed resolution.
+/// Digits after the decimal mark of a number cell's mantissa.
+fn decimals(cell: &[u8]) -> usize {
+    let mantissa = cell
+        .iter()
+        .position(|&b| b == b'e' || b == b'E')
+        .map_or(cell, |k| &cell[..k]);
+    mantissa
+        .iter()
+        .position(|&b| b == b'.' || b == b',')
+        .map_or(0, |k| mantissa.len() - k - 1)
+}
+
+/// Time values of the first data rows, in the file's unit, with their printed resolution
+/// and number of decimals.
 fn window_times(
     lines: &[SniffLine],
     col: usize,
     n_fields: usize,
     delim: Delim,
     comma: bool,
-) -> Vec<(f64, f64)> {
+) -> Vec<(f64, f64, usize)> {
     let mut out = Vec::new();
     for l in lines {
         if l.text.trim().is_empty() {
@@ -378,7 +392,7 @@ fn window_times(
             break;
         };
         match parse_number(cell, comma) {
-            Ok(t) => out.push((t, last_digit_place(cell))),
+            Ok(t) => out.push((t, last_digit_place(cell), decimals(cell))),
             Err(_) => break,
         }
     }
@@ -394,7 +408,7 @@ fn median(v: &mut [f64]) -> Option<f64> {
 }
 
 /// Whether times rise in equal steps (a time column without a header says so).
-fn looks_like_time(times: &[(f64, f64)]) -> bool {
+fn looks_like_time(times: &[(f64, f64, usize)]) -> bool {
     if times.len() < 3 {
         return false;
     }
@@ -416,6 +430,8 @@ struct TimeCheck {
     dt_s: f64,
     /// False when the column is printed too coarsely for step checks.
     check_steps: bool,
+    /// Times written in full (shortest round-trip form): no rounding to allow for.
+    exact: bool,
     prev: Option<(f64, f64)>,
     steps: u64,
     jittered: u64,
@@ -560,10 +576,16 @@ fn check_time(
     line: usize,
 ) -> Result<(), CaptureError> {
     let t = t_file * tc.factor;
-    let q = q_file * tc.factor;
+    let q = if tc.exact {
+        1e-6 * tc.dt_s + 1e-12 * t.abs()
+    } else {
+        q_file * tc.factor
+    };
     if let Some((prev, prev_q)) = tc.prev {
         let step = t - prev;
-        if step <= 0.0 {
+        // Rounding to the printed resolution can make a step look zero or negative.
+        let rounding = q + prev_q;
+        if step <= 0.0 && (step < -rounding || rounding < 0.25 * tc.dt_s) {
             return Err(csv_err(
                 file,
                 line,
@@ -575,9 +597,9 @@ fn check_time(
                 ),
             ));
         }
-        if tc.check_steps {
+        if tc.check_steps && step > 0.0 {
             tc.steps += 1;
-            let tol = q + prev_q;
+            let tol = rounding;
             if step > GAP_FACTOR * tc.dt_s + tol {
                 return Err(csv_err(
                     file,
@@ -906,22 +928,49 @@ pub(crate) fn open(
             },
         };
         let times = window_times(data_lines, tc, n_fields, delim, comma);
-        if let Some(&(t0, _)) = times.first() {
+        if let Some(&(t0, _, _)) = times.first() {
             cap.t0_s = t0 * factor;
         }
         let mut steps: Vec<f64> = times.windows(2).map(|w| w[1].0 - w[0].0).collect();
-        let coarsest = times.iter().map(|t| t.1).fold(0.0, f64::max) * factor;
+        // A zero is exact in any format; it says nothing about the printed resolution.
+        let coarsest = times
+            .iter()
+            .filter(|t| t.0 != 0.0)
+            .map(|t| t.1)
+            .fold(0.0, f64::max)
+            * factor;
         if let Some(med) = median(&mut steps).filter(|&m| m > 0.0) {
-            let span = times.last().map_or(0.0, |l| l.0) - times.first().map_or(0.0, |f| f.0);
+            // Fixed formats (`%.3e`, `%.6f`) print the same number of decimals in every cell
+            // and their last digit is the resolution. Shortest round-trip output (`1e-9`,
+            // `1.1e-8`) varies and is exact, as are times that mostly sit on the grid of the
+            // median step to 1 ppm.
+            let nonzero: Vec<_> = times.iter().filter(|t| t.0 != 0.0).collect();
+            let same_decimals = nonzero.windows(2).all(|w| w[0].2 == w[1].2);
+            let t_first = times.first().map_or(0.0, |f| f.0);
+            let on_grid = times
+                .iter()
+                .enumerate()
+                .filter(|(k, t)| (t.0 - (t_first + *k as f64 * med)).abs() <= 1e-6 * med)
+                .count();
+            let exact = !same_decimals
+                || (coarsest > 0.25 * med * factor && on_grid * 5 >= times.len() * 4);
+            let q = |t: &(f64, f64, usize)| {
+                if exact {
+                    1e-6 * med + 1e-12 * t.0.abs()
+                } else {
+                    t.1
+                }
+            };
+            let span = times.last().map_or(0.0, |l| l.0) - t_first;
             let mean = span / (times.len() - 1) as f64;
             // Evenly printed steps: the mean over the window is the finer estimate. Any
             // jitter: the median step, which the jitter does not pull.
-            let even = times
-                .windows(2)
-                .all(|w| (w[1].0 - w[0].0 - med).abs() <= JITTER_FRACTION * med + w[0].1 + w[1].1);
+            let even = times.windows(2).all(|w| {
+                (w[1].0 - w[0].0 - med).abs() <= JITTER_FRACTION * med + q(&w[0]) + q(&w[1])
+            });
             let dt_file = if even { mean } else { med };
             let dt = dt_file * factor;
-            let check_steps = coarsest <= 0.25 * dt;
+            let check_steps = exact || coarsest <= 0.25 * dt;
             if !check_steps {
                 cap.notes.push(format!(
                     "time column printed with a resolution of {:e} s, too coarse to check each step",
@@ -933,6 +982,7 @@ pub(crate) fn open(
                 factor,
                 dt_s: dt,
                 check_steps,
+                exact,
                 prev: None,
                 steps: 0,
                 jittered: 0,

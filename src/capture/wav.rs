@@ -288,7 +288,11 @@ impl WavStream {
                 self.frames_declared
             );
             return Err(match failure {
-                Some(hound::Error::IoError(e)) if e.kind() != std::io::ErrorKind::UnexpectedEof => {
+                // hound reports a short read as `Other` with this text.
+                Some(hound::Error::IoError(e))
+                    if e.kind() != std::io::ErrorKind::UnexpectedEof
+                        && !e.to_string().contains("enough bytes") =>
+                {
                     CaptureError::Io {
                         file: self.file.clone(),
                         source: e,
