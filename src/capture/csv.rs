@@ -223,6 +223,31 @@ fn score(lines: &[SniffLine], delim: Delim, comma: bool) -> (usize, usize) {
         .map_or((0, 0), |(n, k)| (k, n))
 }
 
+/// Whether the line above the first row of `n` numbers has `n` cells and no number.
+fn header_agrees(lines: &[SniffLine], delim: Delim, comma: bool, n: usize) -> bool {
+    let numeric = |l: &SniffLine| {
+        let cells = row_cells(&l.text, delim);
+        cells.len() == n
+            && cells
+                .iter()
+                .all(|c| parse_number(trim_cell(c), comma).is_ok())
+    };
+    let Some(first) = lines.iter().position(numeric) else {
+        return false;
+    };
+    lines[..first]
+        .iter()
+        .rev()
+        .find(|l| !l.text.trim().is_empty())
+        .is_some_and(|l| {
+            let cells = row_cells(&l.text, delim);
+            cells.len() == n
+                && cells
+                    .iter()
+                    .all(|c| parse_number(trim_cell(c), comma).is_err())
+        })
+}
+
 /// A row that belongs to the data block: its first cell is a number, or most cells are.
 /// A text cell or a missing cell in a data row keeps it here, so the row gets an error
 /// naming its line instead of being taken for a header.
@@ -664,14 +689,18 @@ pub(crate) fn open(
     let lines = split_lines(path, &head, complete, latin1)?;
 
     // Delimiter and decimal mark: the pair under which most rows read as numbers.
-    let mut best: Option<(Delim, bool, usize, usize)> = None;
+    // Ties go to the pair under which a header above the rows has as many cells as they
+    // do: one column of `1,25` is decimal-comma numbers under a one-cell header, not two
+    // columns. Without a header that case stays ambiguous (`--decimal comma` settles it).
+    let mut best: Option<(Delim, bool, (usize, bool, usize))> = None;
     for (d, m) in candidates(opts) {
         let (k, n) = score(&lines, d, m);
-        if k > 0 && best.is_none_or(|(_, _, bk, bn)| (k, n) > (bk, bn)) {
-            best = Some((d, m, k, n));
+        let key = (k, header_agrees(&lines, d, m, n), n);
+        if k > 0 && best.is_none_or(|(_, _, b)| key > b) {
+            best = Some((d, m, key));
         }
     }
-    let Some((delim, comma, _, n_fields)) = best else {
+    let Some((delim, comma, (_, _, n_fields))) = best else {
         let last = lines.last().map_or(1, |l| l.no);
         return Err(invalid(
             path,
