@@ -61,7 +61,7 @@ impl RailWatch {
             } else if x == self.min {
                 self.n_min += 1;
             }
-            if self.n % self.stride == 0 {
+            if self.n.is_multiple_of(self.stride) {
                 if self.kept.len() >= KEPT_VALUES {
                     let mut k = 0;
                     self.kept.retain(|_| {
@@ -70,7 +70,7 @@ impl RailWatch {
                     });
                     self.stride *= 2;
                 }
-                if self.n % self.stride == 0 {
+                if self.n.is_multiple_of(self.stride) {
                     self.kept.push(x);
                 }
             }
