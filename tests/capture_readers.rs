@@ -193,8 +193,8 @@ fn csv_rails_and_code_step_seen_in_data() {
     let dir = tempfile::tempdir().unwrap();
     let mut text = String::from("t,v\n");
     let vals = [
-        24.0, 24.25, 24.0, 23.75, 24.0, 50.0, 50.0, 50.0, 50.0, 40.5, 30.25, 24.5, 24.0, 23.75,
-        24.0, 24.0, 24.25, 24.0, 23.75, 24.0,
+        24.0, 24.25, 24.0, 23.75, 35.5, 50.0, 50.0, 50.0, 50.0, 40.5, 30.25, 25.0, 24.5, 24.0,
+        23.75, 24.0, 24.0, 24.25, 24.0, 23.75, 24.0,
     ];
     for (k, v) in vals.iter().enumerate() {
         text.push_str(&format!("{},{}\n", k as f64 * 1e-9, v));

@@ -15,6 +15,8 @@ const MAX_RAIL_SHARE: f64 = 0.25;
 const NEAR_BAND: f64 = 0.02;
 /// Values kept per channel to estimate the code step (bounded memory).
 const KEPT_VALUES: usize = 1 << 16;
+/// Distinct values needed before calling them gridded.
+const MIN_GRID_VALUES: usize = 8;
 /// Share of gaps that must be whole multiples of the step to call the values gridded.
 const GRID_SHARE: f64 = 0.99;
 
@@ -142,7 +144,8 @@ pub(crate) fn code_step(values: &[f64]) -> Option<f64> {
     v.sort_by(|a, b| a.total_cmp(b));
     let n_all = v.len();
     v.dedup();
-    if v.len() < 3 || v.len() == n_all {
+    // A handful of values sits on the grid of its printed decimals by chance.
+    if v.len() < MIN_GRID_VALUES || v.len() == n_all {
         return None;
     }
     let gaps: Vec<f64> = v.windows(2).map(|w| w[1] - w[0]).collect();
@@ -169,7 +172,7 @@ mod tests {
         // An invented clipped trace on a 0.5 V grid: three samples stuck at 10 V.
         let mut w = RailWatch::default();
         let v = [
-            0.0, 0.5, 1.0, 0.0, 10.0, 10.0, 10.0, 4.5, 0.5, 0.0, 0.0, 1.5, -0.5, 0.0,
+            0.0, 0.5, 1.0, 0.0, 3.5, 10.0, 10.0, 10.0, 4.5, 2.0, 0.5, 0.0, 0.0, 1.5, -0.5, 0.0,
         ];
         w.observe(&v);
         let (r, note) = w.conclude("v", "V").unwrap();
@@ -190,7 +193,7 @@ mod tests {
         v[3] = -1.0;
         v[13] = -1.0;
         v[23] = -1.0;
-        v.extend_from_slice(&[8.0, 20.0, 20.0, 20.0, 6.0]);
+        v.extend_from_slice(&[8.0, 13.0, 20.0, 20.0, 20.0, 6.0, 2.5]);
         w.observe(&v);
         let (r, _) = w.conclude("v", "V").unwrap();
         assert_eq!(r.min_v, f64::NEG_INFINITY);
@@ -209,9 +212,11 @@ mod tests {
 
     #[test]
     fn values_off_a_grid_have_no_step() {
-        let v = [0.0, 0.1, 0.1, 0.37, 0.52, 0.9];
+        let v = [0.0, 0.1, 0.1, 0.37, 0.52, 0.9, 1.13, 1.4, 2.0, 2.5];
         assert_eq!(code_step(&v), None);
-        let g = [0.0, 0.25, 0.25, 0.75, 1.5];
+        let g = [0.0, 0.25, 0.25, 0.75, 1.5, 2.0, -0.5, -1.0, 3.0, 3.25];
         assert_eq!(code_step(&g), Some(0.25));
+        // Too few distinct values to tell a grid from chance.
+        assert_eq!(code_step(&[0.0, 0.25, 0.25, 0.75]), None);
     }
 }
