@@ -418,3 +418,26 @@ fn raw_dumps_with_sidecar_and_with_dt() {
     assert_eq!(names(&cap), ["CH1"]);
     assert_eq!(cap.channels[0].samples, [1.5, -2.25, 1e-3]);
 }
+
+#[test]
+fn csv_with_a_byte_order_mark_and_crlf_lines() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = write(
+        dir.path(),
+        "bom.csv",
+        b"\xEF\xBB\xBFTime,CH1\r\n0,1.5\r\n1e-6,2.5\r\n2e-6,3.5\r\n",
+    );
+    let cap = read_capture(&p, &ReadOptions::default()).unwrap();
+    assert_eq!(names(&cap), ["CH1"]);
+    assert_close(cap.sample_interval_s, 1e-6);
+    assert_eq!(cap.channels[0].samples, [1.5, 2.5, 3.5]);
+    assert!(has_note(&cap, "byte-order mark skipped"));
+    // Headerless: the mark must not spoil the first number either.
+    let p = write(dir.path(), "bom2.csv", b"\xEF\xBB\xBF0.5\n0.75\n1\n");
+    let opts = ReadOptions {
+        dt_s: Some(1e-9),
+        ..Default::default()
+    };
+    let cap = read_capture(&p, &opts).unwrap();
+    assert_eq!(cap.channels[0].samples, [0.5, 0.75, 1.0]);
+}

@@ -19,6 +19,7 @@ use super::{Capture, CaptureError, Channel, Format, ReadOptions};
 /// How much of the start of a file is read to sniff its layout: twice the longest line, so
 /// a line too long to accept that starts in the first half is seen whole enough to refuse.
 pub(crate) const SNIFF_BYTES: usize = 2 * MAX_LINE_BYTES;
+const UTF8_BOM: &[u8] = &[0xEF, 0xBB, 0xBF];
 /// Most lines looked at while sniffing.
 const SNIFF_LINES: usize = 4000;
 /// A time step this much longer than the sample interval is a gap, not jitter.
@@ -128,7 +129,8 @@ fn split_lines<'a>(
     latin1: bool,
 ) -> Result<Vec<SniffLine<'a>>, CaptureError> {
     let mut out = Vec::new();
-    let mut start = 0usize;
+    // A UTF-8 byte-order mark (Windows editors write one) is not part of the first cell.
+    let mut start = if head.starts_with(UTF8_BOM) { 3 } else { 0 };
     let mut no = 1usize;
     while start < head.len() && out.len() < SNIFF_LINES {
         let (end, next) = match memchr::memchr(b'\n', &head[start..]) {
@@ -539,7 +541,9 @@ impl CsvStream {
                 Role::Time => {
                     let t = parse_number(cell, self.decimal_comma)
                         .map_err(|e| csv_err(&self.file, line, count, cell_message(cell, e)))?;
-                    time = Some((t, last_digit_place(cell)));
+                    // The printed resolution matters only for fixed-format times.
+                    let fixed = self.time.as_ref().is_some_and(|tc| !tc.exact);
+                    time = Some((t, if fixed { last_digit_place(cell) } else { 0.0 }));
                 }
                 Role::Value(k) => {
                     let v = parse_number(cell, self.decimal_comma)
@@ -685,6 +689,17 @@ pub(crate) fn open(
         notes: Vec::new(),
         warnings: Vec::new(),
     };
+    if head.starts_with(&[0xFF, 0xFE]) || head.starts_with(&[0xFE, 0xFF]) {
+        return Err(CaptureError::Binary {
+            file: path.to_path_buf(),
+            offset: 0,
+            message: "the file is UTF-16 text; expected UTF-8 or ASCII text (save it as UTF-8)"
+                .to_string(),
+        });
+    }
+    if head.starts_with(UTF8_BOM) {
+        cap.notes.push("UTF-8 byte-order mark skipped".to_string());
+    }
     let latin1 = check_text(path, &head, &mut cap.notes)?;
     let lines = split_lines(path, &head, complete, latin1)?;
 
