@@ -26,7 +26,9 @@ fn fails(path: &Path, opts: &ReadOptions, parts: &[&str]) -> String {
     e
 }
 
-const GOOD_ROWS: &str = "t,v,i\n0,1,2\n1e-9,1,2\n2e-9,1,2\n3e-9,1,2\n4e-9,1,2\n5e-9,1,2\n";
+// Times printed with a fixed format, as a scope writes them: resolution 1 ps.
+const GOOD_ROWS: &str = "t,v,i\n0.000e-9,1,2\n1.000e-9,1,2\n2.000e-9,1,2\n3.000e-9,1,2\n\
+4.000e-9,1,2\n5.000e-9,1,2\n";
 
 #[test]
 fn empty_file() {
@@ -51,7 +53,7 @@ fn header_only() {
 #[test]
 fn text_cell_in_a_number_column() {
     let dir = tempfile::tempdir().unwrap();
-    let text = format!("{GOOD_ROWS}6e-9,1,2\n7e-9,open,2\n");
+    let text = format!("{GOOD_ROWS}6.000e-9,1,2\n7.000e-9,open,2\n");
     let p = write(dir.path(), "text.csv", text.as_bytes());
     fails(
         &p,
@@ -64,7 +66,7 @@ fn text_cell_in_a_number_column() {
 fn nan_and_infinite_cells() {
     let dir = tempfile::tempdir().unwrap();
     for (name, cell) in [("nan.csv", "NaN"), ("inf.csv", "-inf")] {
-        let text = format!("{GOOD_ROWS}6e-9,1,{cell}\n");
+        let text = format!("{GOOD_ROWS}6.000e-9,1,{cell}\n");
         let p = write(dir.path(), name, text.as_bytes());
         fails(
             &p,
@@ -77,14 +79,14 @@ fn nan_and_infinite_cells() {
 #[test]
 fn ragged_rows() {
     let dir = tempfile::tempdir().unwrap();
-    let short = format!("{GOOD_ROWS}6e-9,1\n");
+    let short = format!("{GOOD_ROWS}6.000e-9,1\n");
     let p = write(dir.path(), "short.csv", short.as_bytes());
     fails(
         &p,
         &ReadOptions::default(),
         &["line 8", "row has 2 cells; expected 3"],
     );
-    let long = format!("{GOOD_ROWS}6e-9,1,2,3\n");
+    let long = format!("{GOOD_ROWS}6.000e-9,1,2,3\n");
     let p = write(dir.path(), "long.csv", long.as_bytes());
     fails(
         &p,
@@ -96,7 +98,7 @@ fn ragged_rows() {
 #[test]
 fn time_going_backwards() {
     let dir = tempfile::tempdir().unwrap();
-    let text = format!("{GOOD_ROWS}4e-9,1,2\n");
+    let text = format!("{GOOD_ROWS}4.000e-9,1,2\n");
     let p = write(dir.path(), "back.csv", text.as_bytes());
     fails(
         &p,
@@ -108,7 +110,7 @@ fn time_going_backwards() {
 #[test]
 fn a_gap_in_the_time_column() {
     let dir = tempfile::tempdir().unwrap();
-    let text = format!("{GOOD_ROWS}9e-9,1,2\n");
+    let text = format!("{GOOD_ROWS}9.000e-9,1,2\n");
     let p = write(dir.path(), "gap.csv", text.as_bytes());
     fails(
         &p,
@@ -154,7 +156,7 @@ fn a_single_enormous_line() {
     // The same line after many good rows is met by the streaming reader.
     let mut text = GOOD_ROWS.as_bytes().to_vec();
     for k in 6..40_000 {
-        text.extend_from_slice(format!("{k}e-9,1,2\n").as_bytes());
+        text.extend_from_slice(format!("{k}.000e-9,1,2\n").as_bytes());
     }
     text.extend(std::iter::repeat_n(b'7', 2 << 20));
     let p = write(dir.path(), "late.csv", &text);

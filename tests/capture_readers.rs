@@ -441,3 +441,73 @@ fn csv_with_a_byte_order_mark_and_crlf_lines() {
     let cap = read_capture(&p, &opts).unwrap();
     assert_eq!(cap.channels[0].samples, [0.5, 0.75, 1.0]);
 }
+
+#[test]
+fn csv_coarsely_printed_long_time_column_reads_without_false_errors() {
+    // Six significant digits (C's %g) at 1 ns steps: from 1 ms on, times round to 10 ns,
+    // so steps print as 0 or 10 ns. That is rounding, not time running backwards.
+    let dir = tempfile::tempdir().unwrap();
+    let mut text = String::from("t,v\n");
+    for k in 0..3000u32 {
+        let t = 1e-3 + f64::from(k) * 1e-9;
+        text.push_str(&format!("{:.5e},{}\n", t, k % 5));
+    }
+    let p = write(dir.path(), "coarse.csv", text.as_bytes());
+    let cap = read_capture(&p, &ReadOptions::default()).unwrap();
+    assert_eq!(cap.n_samples(), 3000);
+    // The mean step over 3000 rows: within 10 ns / 2999 of 1 ns.
+    assert!(
+        (cap.sample_interval_s - 1e-9).abs() < 1e-11,
+        "{}",
+        cap.sample_interval_s
+    );
+    assert!(
+        has_note(&cap, "checked only that closely"),
+        "{:?}",
+        cap.notes
+    );
+}
+
+#[test]
+fn csv_preamble_line_right_above_headerless_rows_is_not_a_header() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = write(
+        dir.path(),
+        "units_above.csv",
+        b"Sample rate: 500 MS/s\nUnits,mV,mV,mV\n1,2,3,4\n5,6,7,8\n9,10,11,12\n",
+    );
+    let cap = read_capture(&p, &ReadOptions::default()).unwrap();
+    assert_eq!(names(&cap), ["CH1", "CH2", "CH3", "CH4"]);
+    assert_close(cap.sample_interval_s, 2e-9);
+    // 'Units' line applies: mV scaled to V.
+    assert_close(cap.channels[3].samples[2], 0.012);
+    assert!(
+        has_note(&cap, "sample rate 5e8 Hz stated on line 1"),
+        "{:?}",
+        cap.notes
+    );
+}
+
+#[test]
+fn csv_dt_option_overrides_the_time_column() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = write(
+        dir.path(),
+        "override.csv",
+        b"t,v
+0,1
+1,2
+2,3
+3,4
+",
+    );
+    let opts = ReadOptions {
+        dt_s: Some(1e-9),
+        ..Default::default()
+    };
+    let cap = read_capture(&p, &opts).unwrap();
+    assert_eq!(cap.sample_interval_s, 1e-9);
+    assert_eq!(cap.channels[0].samples, [1.0, 2.0, 3.0, 4.0]);
+    assert_eq!(cap.warnings.len(), 1, "{:?}", cap.warnings);
+    assert!(cap.warnings[0].contains("the option is used"));
+}

@@ -302,7 +302,8 @@ struct Preamble {
     interval_s: Option<f64>,
     t0_s: Option<f64>,
     record_length: Option<u64>,
-    units: Option<String>,
+    /// One unit for every value column, or one per column (`Units,V,mV,A`).
+    units: Vec<String>,
     time_unit_factor: Option<f64>,
 }
 
@@ -348,11 +349,17 @@ fn read_preamble(lines: &[SniffLine], delim: Delim, comma: bool, cap: &mut Captu
                 }
             }
             MetaKey::Units => {
-                let u = columns::bare_unit(&value);
-                if !u.is_empty() {
-                    cap.notes
-                        .push(format!("value unit {u} stated on line {line}"));
-                    p.units = Some(u);
+                let units: Vec<String> = value
+                    .split_whitespace()
+                    .map(columns::bare_unit)
+                    .filter(|u| !u.is_empty())
+                    .collect();
+                if !units.is_empty() {
+                    cap.notes.push(format!(
+                        "value unit {} stated on line {line}",
+                        units.join(" ")
+                    ));
+                    p.units = units;
                 }
             }
             MetaKey::TimeUnits => {
@@ -436,7 +443,7 @@ fn median(v: &mut [f64]) -> Option<f64> {
 
 /// Whether times rise in equal steps (a time column without a header says so).
 fn looks_like_time(times: &[(f64, f64, usize)]) -> bool {
-    if times.len() < 3 {
+    if times.len() < 4 {
         return false;
     }
     let mut steps: Vec<f64> = times.windows(2).map(|w| w[1].0 - w[0].0).collect();
@@ -455,8 +462,6 @@ struct TimeCheck {
     /// Seconds per unit of the time column.
     factor: f64,
     dt_s: f64,
-    /// False when the column is printed too coarsely for step checks.
-    check_steps: bool,
     /// Times written in full (shortest round-trip form): no rounding to allow for.
     exact: bool,
     prev: Option<(f64, f64)>,
@@ -543,7 +548,8 @@ impl CsvStream {
                         .map_err(|e| csv_err(&self.file, line, count, cell_message(cell, e)))?;
                     // The printed resolution matters only for fixed-format times.
                     let fixed = self.time.as_ref().is_some_and(|tc| !tc.exact);
-                    time = Some((t, if fixed { last_digit_place(cell) } else { 0.0 }));
+                    let place = if fixed { last_digit_place(cell) } else { 0.0 };
+                    time = Some((t, place));
                 }
                 Role::Value(k) => {
                     let v = parse_number(cell, self.decimal_comma)
@@ -612,9 +618,10 @@ fn check_time(
     };
     if let Some((prev, prev_q)) = tc.prev {
         let step = t - prev;
-        // Rounding to the printed resolution can make a step look zero or negative.
+        // Every check allows for rounding to the printed resolution of both times, so a
+        // coarsely printed column is checked only as far as its digits allow.
         let rounding = q + prev_q;
-        if step <= 0.0 && (step < -rounding || rounding < 0.25 * tc.dt_s) {
+        if step < -rounding || (step <= 0.0 && rounding < 0.25 * tc.dt_s) {
             return Err(csv_err(
                 file,
                 line,
@@ -626,29 +633,26 @@ fn check_time(
                 ),
             ));
         }
-        if tc.check_steps && step > 0.0 {
-            tc.steps += 1;
-            let tol = rounding;
-            if step > GAP_FACTOR * tc.dt_s + tol {
-                return Err(csv_err(
-                    file,
-                    line,
-                    1,
-                    format!(
-                        "gap in the time column: a step of {:e} s where the sample interval is {:e} s (missing rows before this line?)",
-                        super::sig(step),
-                        super::sig(tc.dt_s)
-                    ),
-                ));
+        tc.steps += 1;
+        if step > GAP_FACTOR * tc.dt_s + rounding {
+            return Err(csv_err(
+                file,
+                line,
+                1,
+                format!(
+                    "gap in the time column: a step of {:e} s where the sample interval is {:e} s (missing rows before this line?)",
+                    super::sig(step),
+                    super::sig(tc.dt_s)
+                ),
+            ));
+        }
+        let dev = (step - tc.dt_s).abs();
+        if dev > JITTER_FRACTION * tc.dt_s + rounding {
+            if tc.jittered == 0 {
+                tc.first_jitter_line = line;
             }
-            let dev = (step - tc.dt_s).abs();
-            if dev > JITTER_FRACTION * tc.dt_s + tol {
-                if tc.jittered == 0 {
-                    tc.first_jitter_line = line;
-                }
-                tc.jittered += 1;
-                tc.max_deviation = tc.max_deviation.max(dev / tc.dt_s);
-            }
+            tc.jittered += 1;
+            tc.max_deviation = tc.max_deviation.max(dev / tc.dt_s);
         }
     }
     tc.prev = Some((t, q));
@@ -776,7 +780,7 @@ pub(crate) fn open(
             && cells
                 .iter()
                 .all(|c| parse_number(trim_cell(c), comma).is_err())
-            && !(n_fields <= 2 && is_meta_key(text))
+            && !is_meta_key(text)
     };
     let above = |pos: usize| -> Option<usize> { pos.checked_sub(1).map(|p| nonblank[p]) };
     let mut header_idx = None;
@@ -839,9 +843,21 @@ pub(crate) fn open(
         let times = window_times(data_lines, 0, n_fields, delim, comma);
         if looks_like_time(&times) {
             let unit_steps = times.windows(2).all(|w| w[1].0 - w[0].0 == 1.0);
-            if unit_steps && (opts.dt_s.is_some() || pre.interval_s.is_some()) {
+            // With an interval stated, a headerless first column is time only if it steps
+            // by that interval; otherwise it is data that happens to rise evenly.
+            let stated = opts.dt_s.or(pre.interval_s);
+            let step = times.get(1).map_or(0.0, |t| t.0) - times.first().map_or(0.0, |t| t.0);
+            let matches_stated =
+                stated.is_none_or(|dt| ((step - dt) / dt).abs() <= JITTER_FRACTION);
+            let first_is_zero = times.first().is_some_and(|t| t.0 == 0.0);
+            if unit_steps && first_is_zero && stated.is_some() {
                 cap.notes
                     .push("first column counts samples (0, 1, 2, ...); left out".to_string());
+            } else if !matches_stated {
+                cap.notes.push(
+                    "first column rises evenly but not by the stated interval: taken as data"
+                        .to_string(),
+                );
             } else {
                 time_col = Some(0);
                 cap.notes
@@ -898,7 +914,16 @@ pub(crate) fn open(
         };
         let stated = hunit
             .or_else(|| unit_row.get(j).cloned().flatten())
-            .or_else(|| pre.units.clone());
+            .or_else(|| {
+                // Units listed per value column, per column, or one for all.
+                let k_value = cap.channels.len();
+                match pre.units.len() {
+                    0 => None,
+                    1 => pre.units.first().cloned(),
+                    n if n == n_fields => pre.units.get(j).cloned(),
+                    _ => pre.units.get(k_value).or(pre.units.first()).cloned(),
+                }
+            });
         let (unit, factor) = match stated {
             Some(u) => {
                 let (base, f) = columns::value_unit(&u);
@@ -983,21 +1008,22 @@ pub(crate) fn open(
             .map(|t| t.1)
             .fold(0.0, f64::max)
             * factor;
-        if let Some(med) = median(&mut steps).filter(|&m| m > 0.0) {
-            // Fixed formats (`%.3e`, `%.6f`) print the same number of decimals in every cell
-            // and their last digit is the resolution. Shortest round-trip output (`1e-9`,
-            // `1.1e-8`) varies and is exact, as are times that mostly sit on the grid of the
-            // median step to 1 ppm.
+        // A column printed more coarsely than it steps has a median step of zero; its
+        // mean step over the window still holds the interval.
+        let mean_step = match (times.first(), times.last()) {
+            (Some(f), Some(l)) if times.len() >= 2 => (l.0 - f.0) / (times.len() - 1) as f64,
+            _ => 0.0,
+        };
+        let med = median(&mut steps)
+            .filter(|&m| m > 0.0)
+            .or((mean_step > 0.0).then_some(mean_step));
+        if let Some(med) = med {
+            // The last printed digit bounds the rounding of a time (`%.3e`, `%.6f`, `%g`).
+            // Shortest round-trip output of doubles (`3.0000000000000004e-9`) is exact: it
+            // shows as a varying number of decimals, 10 or more in some cells.
             let nonzero: Vec<_> = times.iter().filter(|t| t.0 != 0.0).collect();
             let same_decimals = nonzero.windows(2).all(|w| w[0].2 == w[1].2);
-            let t_first = times.first().map_or(0.0, |f| f.0);
-            let on_grid = times
-                .iter()
-                .enumerate()
-                .filter(|(k, t)| (t.0 - (t_first + *k as f64 * med)).abs() <= 1e-6 * med)
-                .count();
-            let exact = !same_decimals
-                || (coarsest > 0.25 * med * factor && on_grid * 5 >= times.len() * 4);
+            let exact = !same_decimals && nonzero.iter().any(|t| t.2 >= 10);
             let q = |t: &(f64, f64, usize)| {
                 if exact {
                     1e-6 * med + 1e-12 * t.0.abs()
@@ -1005,8 +1031,7 @@ pub(crate) fn open(
                     t.1
                 }
             };
-            let span = times.last().map_or(0.0, |l| l.0) - t_first;
-            let mean = span / (times.len() - 1) as f64;
+            let mean = mean_step;
             // Evenly printed steps: the mean over the window is the finer estimate. Any
             // jitter: the median step, which the jitter does not pull.
             let even = times.windows(2).all(|w| {
@@ -1014,10 +1039,9 @@ pub(crate) fn open(
             });
             let dt_file = if even { mean } else { med };
             let dt = dt_file * factor;
-            let check_steps = exact || coarsest <= 0.25 * dt;
-            if !check_steps {
+            if !exact && coarsest > 0.25 * dt {
                 cap.notes.push(format!(
-                    "time column printed with a resolution of {:e} s, too coarse to check each step",
+                    "time column printed with a resolution of {:e} s; its steps are checked only that closely",
                     super::sig(coarsest)
                 ));
             }
@@ -1025,7 +1049,6 @@ pub(crate) fn open(
             time_check = Some(TimeCheck {
                 factor,
                 dt_s: dt,
-                check_steps,
                 exact,
                 prev: None,
                 steps: 0,
@@ -1050,11 +1073,17 @@ pub(crate) fn open(
         }
     }
     cap.sample_interval_s = match (opts.dt_s, dt_from_time, pre.interval_s) {
-        (Some(dt), _, _) => {
+        (Some(dt), from_time, _) => {
             cap.notes
                 .push(format!("sample interval {dt:e} s from --dt/--sample-rate"));
-            if let Some(tc) = time_check.as_mut() {
-                tc.dt_s = dt;
+            // The time column is still checked against its own step.
+            if let Some(col) = from_time {
+                if ((col - dt) / dt).abs() > JITTER_FRACTION {
+                    cap.warnings.push(format!(
+                        "--dt/--sample-rate gives {dt:e} s but the time column steps by {:e} s; the option is used",
+                        super::sig(col)
+                    ));
+                }
             }
             dt
         }
