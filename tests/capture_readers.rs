@@ -511,3 +511,22 @@ fn csv_dt_option_overrides_the_time_column() {
     assert_eq!(cap.warnings.len(), 1, "{:?}", cap.warnings);
     assert!(cap.warnings[0].contains("the option is used"));
 }
+
+#[test]
+fn csv_index_column_and_record_length_mismatch() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = write(
+        dir.path(),
+        "indexed.csv",
+        b"Points = 6\nInterval = 4 ns\nIndex,CH1\n0,1.5\n1,1.25\n2,1.0\n3,0.75\n4,0.5\n",
+    );
+    let cap = read_capture(&p, &ReadOptions::default()).unwrap();
+    assert_eq!(names(&cap), ["CH1"]);
+    assert_close(cap.sample_interval_s, 4e-9);
+    assert_eq!(cap.channels[0].samples, [1.5, 1.25, 1.0, 0.75, 0.5]);
+    assert!(has_note(&cap, "column 'Index' counts samples; left out"));
+    assert_eq!(
+        cap.warnings,
+        ["the file states a record length of 6, but 5 rows were read"]
+    );
+}
