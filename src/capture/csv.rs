@@ -464,6 +464,8 @@ struct TimeCheck {
     dt_s: f64,
     /// Times written in full (shortest round-trip form): no rounding to allow for.
     exact: bool,
+    /// How `dt_s` was found over the first rows (`median step`, `mean step`).
+    dt_from: &'static str,
     prev: Option<(f64, f64)>,
     steps: u64,
     jittered: u64,
@@ -589,12 +591,13 @@ impl CsvStream {
         if let Some(tc) = &self.time {
             if tc.jittered > 0 {
                 w.push(format!(
-                    "time steps deviate by more than {:.0} % from the sample interval at {} of {} steps (first on line {}, largest {:.1} %); the median step {:e} s is used",
+                    "time steps deviate by more than {:.0} % from the sample interval at {} of {} steps (first on line {}, largest {:.1} %); the {} of the first rows, {:e} s, is used",
                     JITTER_FRACTION * 100.0,
                     tc.jittered,
                     tc.steps,
                     tc.first_jitter_line,
                     tc.max_deviation * 100.0,
+                    tc.dt_from,
                     super::sig(tc.dt_s)
                 ));
             }
@@ -1050,6 +1053,7 @@ pub(crate) fn open(
                 factor,
                 dt_s: dt,
                 exact,
+                dt_from: if even { "mean step" } else { "median step" },
                 prev: None,
                 steps: 0,
                 jittered: 0,

@@ -4,6 +4,17 @@
 //! mark, header, metadata lines, time units) and record each guess in [`Capture::notes`], so
 //! `kickscan inspect` can show what was understood; every guess can be overridden through
 //! [`ReadOptions`].
+//!
+//! - [`read_capture`] reads a whole file; [`open_blocks`] streams it in [`Block`]s of a
+//!   bounded number of samples per channel, for captures of any length in flat memory.
+//! - Delimited text (`csv`): preamble lines, header, units, time column, checked row by row.
+//! - WAV (`wav`) and raw little-endian dumps (`raw`), described by a sidecar JSON file
+//!   ([`sidecar`] documents its schema).
+//! - [`select_channel`] picks a channel by name, number or difference (`CH1-CH2`) and
+//!   applies `--skew`; `--scale` is applied while reading.
+//!
+//! Untrusted sizes never drive allocation: lines are capped at 1 MiB, sidecars at 1 MiB,
+//! and sample vectors grow with the samples actually read, not with what a header claims.
 
 use std::io::Read;
 use std::path::{Path, PathBuf};
