@@ -1,0 +1,544 @@
+//! Delimited text captures as people have them: free-text metadata before an optional
+//! header, comma, semicolon, tab or space delimiters, decimal point or comma, a time column
+//! or a stated sample interval, units in the header.
+//!
+//! Reading happens in two passes over the start of the file: [`open`] sniffs the layout
+//! from the first lines (at most `SNIFF_BYTES`), then [`CsvStream`] reads every data row
+//! from the first one on, in blocks, checking each row as it goes.
+
+mod layout;
+mod preamble;
+mod rows;
+mod text;
+mod timebase;
+
+use std::fs::File;
+use std::io::{BufReader, Read, Seek, SeekFrom};
+use std::path::Path;
+
+use super::cells::{parse_number, trim_cell, CellError, Cells, Delim};
+use super::columns::{self, MetaKey};
+use super::lines::LineReader;
+use super::{Capture, CaptureError, Channel, Format, ReadOptions};
+use layout::{candidates, data_like, header_agrees, score};
+use preamble::{read_preamble, split_meta};
+pub(crate) use rows::CsvStream;
+use text::{check_text, split_lines, SNIFF_BYTES, UTF8_BOM};
+use timebase::{looks_like_time, median, window_times, TimeCheck, JITTER_FRACTION};
+
+/// What one column of a data row holds.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(super) enum Role {
+    Time,
+    Skip,
+    Value(usize),
+}
+
+pub(super) fn csv_err(
+    file: &Path,
+    line: usize,
+    column: usize,
+    message: impl Into<String>,
+) -> CaptureError {
+    CaptureError::Csv {
+        file: file.to_path_buf(),
+        line,
+        column,
+        message: message.into(),
+    }
+}
+
+pub(super) fn invalid(file: &Path, message: impl Into<String>) -> CaptureError {
+    CaptureError::Invalid {
+        file: file.to_path_buf(),
+        message: message.into(),
+    }
+}
+
+pub(super) fn cell_message(cell: &[u8], e: CellError) -> String {
+    let shown: String = String::from_utf8_lossy(cell).chars().take(40).collect();
+    match e {
+        CellError::Empty => "empty cell; expected a number".to_string(),
+        CellError::NotANumber => format!("'{shown}' is not a number; expected a number"),
+        CellError::NotFinite => format!(
+            "'{shown}' is not a finite number; expected a number (NaN and infinity cannot be measured)"
+        ),
+    }
+}
+
+/// Cells of a row, without the empty cell a trailing delimiter leaves.
+pub(super) fn row_cells(text: &str, delim: Delim) -> Vec<&[u8]> {
+    let mut cells: Vec<&[u8]> = Cells::new(text.as_bytes(), delim).collect();
+    if cells.len() > 1 && cells.last().is_some_and(|c| trim_cell(c).is_empty()) {
+        cells.pop();
+    }
+    cells
+}
+
+/// Sniffs the layout of a delimited text file and opens it for streaming. The returned
+/// capture has every channel with empty samples; the record length is the preamble's.
+pub(crate) fn open(
+    path: &Path,
+    opts: &ReadOptions,
+) -> Result<(Capture, CsvStream, Option<u64>), CaptureError> {
+    let io = |source| CaptureError::Io {
+        file: path.to_path_buf(),
+        source,
+    };
+    let mut f = File::open(path).map_err(io)?;
+    let mut head = Vec::new();
+    (&mut f)
+        .take(SNIFF_BYTES as u64 + 1)
+        .read_to_end(&mut head)
+        .map_err(io)?;
+    let complete = head.len() <= SNIFF_BYTES;
+    head.truncate(SNIFF_BYTES);
+    if head.iter().all(|b| b.is_ascii_whitespace()) {
+        return Err(invalid(
+            path,
+            "the file is empty; expected rows of numbers (a capture)",
+        ));
+    }
+    let mut cap = Capture {
+        source: path.to_path_buf(),
+        format: Format::Csv,
+        sample_interval_s: 0.0,
+        t0_s: 0.0,
+        channels: Vec::new(),
+        metadata: Vec::new(),
+        notes: Vec::new(),
+        warnings: Vec::new(),
+    };
+    if head.starts_with(&[0xFF, 0xFE]) || head.starts_with(&[0xFE, 0xFF]) {
+        return Err(CaptureError::Binary {
+            file: path.to_path_buf(),
+            offset: 0,
+            message: "the file is UTF-16 text; expected UTF-8 or ASCII text (save it as UTF-8)"
+                .to_string(),
+        });
+    }
+    if head.starts_with(UTF8_BOM) {
+        cap.notes.push("UTF-8 byte-order mark skipped".to_string());
+    }
+    let latin1 = check_text(path, &head, &mut cap.notes)?;
+    let lines = split_lines(path, &head, complete, latin1)?;
+
+    // Delimiter and decimal mark: the pair under which most rows read as numbers.
+    // Ties go to the pair under which a header above the rows has as many cells as they
+    // do: one column of `1,25` is decimal-comma numbers under a one-cell header, not two
+    // columns. Without a header that case stays ambiguous (`--decimal comma` settles it).
+    let mut best: Option<(Delim, bool, (usize, bool, usize))> = None;
+    for (d, m) in candidates(opts) {
+        let (k, n) = score(&lines, d, m);
+        let key = (k, header_agrees(&lines, d, m, n), n);
+        if k > 0 && best.is_none_or(|(_, _, b)| key > b) {
+            best = Some((d, m, key));
+        }
+    }
+    let Some((delim, comma, (_, _, n_fields))) = best else {
+        let last = lines.last().map_or(1, |l| l.no);
+        return Err(invalid(
+            path,
+            format!(
+                "no rows of numbers in lines 1 to {last}; expected rows of numbers (a header alone is not a capture)"
+            ),
+        ));
+    };
+    let delim = if n_fields == 1 { Delim::None } else { delim };
+    let how = |forced: bool| if forced { "(given)" } else { "(sniffed)" };
+    if n_fields > 1 {
+        cap.notes.push(format!(
+            "delimiter {} {}",
+            delim.describe(),
+            how(opts.delimiter.is_some())
+        ));
+    } else {
+        cap.notes.push("one column per row".to_string());
+    }
+    let uses_comma = comma && lines.iter().any(|l| l.text.contains(','));
+    if uses_comma || opts.decimal_comma == Some(true) {
+        cap.notes.push(format!(
+            "decimal comma {}",
+            how(opts.decimal_comma.is_some())
+        ));
+    }
+
+    // The data block starts at the first run of rows that look like data.
+    let nonblank: Vec<usize> = (0..lines.len())
+        .filter(|&k| !lines[k].text.trim().is_empty())
+        .collect();
+    let is_data: Vec<bool> = nonblank
+        .iter()
+        .map(|&k| data_like(&lines[k].text, delim, comma))
+        .collect();
+    let run = 5usize;
+    let start_pos = (0..nonblank.len()).find(|&p| {
+        let end = (p + run).min(nonblank.len());
+        is_data[p..end].iter().all(|&d| d)
+    });
+    let Some(start_pos) = start_pos else {
+        return Err(invalid(
+            path,
+            "no block of number rows found; expected rows of numbers after any header",
+        ));
+    };
+    let data_idx = nonblank[start_pos];
+    let data_line = lines[data_idx].no;
+
+    // Header (and a units row under it) directly above the data.
+    let is_meta_key = |text: &str| {
+        let (key, _) = split_meta(text, delim);
+        columns::classify_key(&key) != MetaKey::Other
+    };
+    let header_fits = |text: &str| {
+        let cells = row_cells(text, delim);
+        cells.len() == n_fields
+            && cells
+                .iter()
+                .all(|c| parse_number(trim_cell(c), comma).is_err())
+            && !is_meta_key(text)
+    };
+    let above = |pos: usize| -> Option<usize> { pos.checked_sub(1).map(|p| nonblank[p]) };
+    let mut header_idx = None;
+    let mut units_idx = None;
+    if let Some(h) = above(start_pos) {
+        if header_fits(&lines[h].text) {
+            let cells = row_cells(&lines[h].text, delim);
+            let all_units = cells
+                .iter()
+                .all(|c| columns::is_unit_cell(&String::from_utf8_lossy(trim_cell(c))));
+            let h2 = start_pos.checked_sub(1).and_then(above);
+            if all_units && h2.is_some_and(|h2| header_fits(&lines[h2].text)) {
+                units_idx = Some(h);
+                header_idx = h2;
+            } else {
+                header_idx = Some(h);
+            }
+        }
+    }
+    let preamble_end = header_idx.unwrap_or(data_idx);
+    let pre = read_preamble(&lines[..preamble_end], delim, comma, &mut cap);
+    cap.notes
+        .push(format!("first data row on line {data_line}"));
+
+    let header: Vec<(String, Option<String>)> = match header_idx {
+        Some(h) => {
+            cap.notes.push(format!(
+                "header on line {}: {}",
+                lines[h].no,
+                lines[h].text.trim()
+            ));
+            row_cells(&lines[h].text, delim)
+                .iter()
+                .map(|c| columns::split_name_unit(&String::from_utf8_lossy(trim_cell(c))))
+                .collect()
+        }
+        None => {
+            cap.notes.push("no header row".to_string());
+            vec![(String::new(), None); n_fields]
+        }
+    };
+    let unit_row: Vec<Option<String>> = match units_idx {
+        Some(u) => {
+            cap.notes.push(format!("units row on line {}", lines[u].no));
+            row_cells(&lines[u].text, delim)
+                .iter()
+                .map(|c| Some(columns::bare_unit(&String::from_utf8_lossy(c))))
+                .collect()
+        }
+        None => vec![None; n_fields],
+    };
+
+    // Column roles.
+    let data_lines = &lines[data_idx..];
+    let mut roles = vec![Role::Skip; n_fields];
+    let mut time_col = header
+        .iter()
+        .position(|(name, _)| columns::is_time_name(name));
+    if time_col.is_none() && header_idx.is_none() && n_fields >= 2 {
+        let times = window_times(data_lines, 0, n_fields, delim, comma);
+        if looks_like_time(&times) {
+            let unit_steps = times.windows(2).all(|w| w[1].0 - w[0].0 == 1.0);
+            // With an interval stated, a headerless first column is time only if it steps
+            // by that interval; otherwise it is data that happens to rise evenly.
+            let stated = opts.dt_s.or(pre.interval_s);
+            let step = times.get(1).map_or(0.0, |t| t.0) - times.first().map_or(0.0, |t| t.0);
+            let matches_stated =
+                stated.is_none_or(|dt| ((step - dt) / dt).abs() <= JITTER_FRACTION);
+            let first_is_zero = times.first().is_some_and(|t| t.0 == 0.0);
+            if unit_steps && first_is_zero && stated.is_some() {
+                cap.notes
+                    .push("first column counts samples (0, 1, 2, ...); left out".to_string());
+            } else if !matches_stated {
+                cap.notes.push(
+                    "first column rises evenly but not by the stated interval: taken as data"
+                        .to_string(),
+                );
+            } else {
+                time_col = Some(0);
+                cap.notes
+                    .push("first column rises in equal steps: taken as time (sniffed)".to_string());
+            }
+        }
+    }
+    let index_col = if time_col != Some(0) {
+        match header.first() {
+            Some((name, _)) if columns::is_index_name(name) => {
+                cap.notes
+                    .push(format!("column '{name}' counts samples; left out"));
+                Some(0)
+            }
+            _ if header_idx.is_none()
+                && cap
+                    .notes
+                    .iter()
+                    .any(|n| n.starts_with("first column counts")) =>
+            {
+                Some(0)
+            }
+            _ => None,
+        }
+    } else {
+        None
+    };
+    let mut factors = Vec::new();
+    for (j, role) in roles.iter_mut().enumerate() {
+        if Some(j) == time_col {
+            *role = Role::Time;
+            continue;
+        }
+        if Some(j) == index_col {
+            continue;
+        }
+        let k = cap.channels.len();
+        let (hname, hunit) = header.get(j).cloned().unwrap_or_default();
+        let name = if hname.is_empty() {
+            format!("CH{}", k + 1)
+        } else if cap
+            .channels
+            .iter()
+            .any(|c| c.name.eq_ignore_ascii_case(&hname))
+        {
+            let renamed = format!("{hname}_{}", k + 1);
+            cap.warnings.push(format!(
+                "two columns are named '{hname}'; column {} is called '{renamed}'",
+                j + 1
+            ));
+            renamed
+        } else {
+            hname
+        };
+        let stated = hunit
+            .or_else(|| unit_row.get(j).cloned().flatten())
+            .or_else(|| {
+                // Units listed per value column, per column, or one for all.
+                let k_value = cap.channels.len();
+                match pre.units.len() {
+                    0 => None,
+                    1 => pre.units.first().cloned(),
+                    n if n == n_fields => pre.units.get(j).cloned(),
+                    _ => pre.units.get(k_value).or(pre.units.first()).cloned(),
+                }
+            });
+        let (unit, factor) = match stated {
+            Some(u) => {
+                let (base, f) = columns::value_unit(&u);
+                if f != 1.0 {
+                    cap.notes
+                        .push(format!("'{name}' in {u}: scaled by {f:e} to {base}"));
+                }
+                (base, f)
+            }
+            None => match columns::unit_from_name(&name) {
+                Some(u) => {
+                    cap.notes
+                        .push(format!("'{name}' has no unit; taken as {u} from its name"));
+                    (u.to_string(), 1.0)
+                }
+                None => {
+                    cap.notes.push(format!("'{name}' has no unit; taken as V"));
+                    ("V".to_string(), 1.0)
+                }
+            },
+        };
+        *role = Role::Value(k);
+        factors.push(factor);
+        cap.channels.push(Channel {
+            name,
+            unit,
+            samples: Vec::new(),
+            adc: None,
+        });
+    }
+    if cap.channels.is_empty() {
+        return Err(invalid(
+            path,
+            format!("line {data_line}: the rows hold only a time column; expected at least one value column"),
+        ));
+    }
+
+    // Time base.
+    let mut time_check = None;
+    let mut dt_from_time = None;
+    if let Some(tc) = time_col {
+        let tname = header.get(tc).map(|h| h.0.clone()).unwrap_or_default();
+        let tunit = header.get(tc).and_then(|h| h.1.clone()).or_else(|| {
+            unit_row
+                .get(tc)
+                .cloned()
+                .flatten()
+                .filter(|u| columns::time_unit_factor(u).is_some())
+        });
+        let factor = match tunit.as_deref().and_then(columns::time_unit_factor) {
+            Some(f) => {
+                cap.notes.push(format!(
+                    "time column in {}",
+                    tunit.clone().unwrap_or_default()
+                ));
+                f
+            }
+            None => match pre.time_unit_factor {
+                Some(f) => f,
+                None => {
+                    if let Some(u) = &tunit {
+                        cap.warnings.push(format!(
+                            "time column unit '{u}' is not a time unit; taken as seconds"
+                        ));
+                    } else {
+                        cap.notes
+                            .push("time column has no unit; taken as seconds".to_string());
+                    }
+                    1.0
+                }
+            },
+        };
+        let times = window_times(data_lines, tc, n_fields, delim, comma);
+        if let Some(&(t0, _, _)) = times.first() {
+            cap.t0_s = t0 * factor;
+        }
+        let mut steps: Vec<f64> = times.windows(2).map(|w| w[1].0 - w[0].0).collect();
+        // A zero is exact in any format; it says nothing about the printed resolution.
+        let coarsest = times
+            .iter()
+            .filter(|t| t.0 != 0.0)
+            .map(|t| t.1)
+            .fold(0.0, f64::max)
+            * factor;
+        // A column printed more coarsely than it steps has a median step of zero; its
+        // mean step over the window still holds the interval.
+        let mean_step = match (times.first(), times.last()) {
+            (Some(f), Some(l)) if times.len() >= 2 => (l.0 - f.0) / (times.len() - 1) as f64,
+            _ => 0.0,
+        };
+        let med = median(&mut steps)
+            .filter(|&m| m > 0.0)
+            .or((mean_step > 0.0).then_some(mean_step));
+        if let Some(med) = med {
+            // The last printed digit bounds the rounding of a time (`%.3e`, `%.6f`, `%g`).
+            // Shortest round-trip output of doubles (`3.0000000000000004e-9`) is exact: it
+            // shows as a varying number of decimals, 10 or more in some cells.
+            let nonzero: Vec<_> = times.iter().filter(|t| t.0 != 0.0).collect();
+            let same_decimals = nonzero.windows(2).all(|w| w[0].2 == w[1].2);
+            let exact = !same_decimals && nonzero.iter().any(|t| t.2 >= 10);
+            let q = |t: &(f64, f64, usize)| {
+                if exact {
+                    1e-6 * med + 1e-12 * t.0.abs()
+                } else {
+                    t.1
+                }
+            };
+            let mean = mean_step;
+            // Evenly printed steps: the mean over the window is the finer estimate. Any
+            // jitter: the median step, which the jitter does not pull.
+            let even = times.windows(2).all(|w| {
+                (w[1].0 - w[0].0 - med).abs() <= JITTER_FRACTION * med + q(&w[0]) + q(&w[1])
+            });
+            let dt_file = if even { mean } else { med };
+            let dt = dt_file * factor;
+            if !exact && coarsest > 0.25 * dt {
+                cap.notes.push(format!(
+                    "time column printed with a resolution of {:e} s; its steps are checked only that closely",
+                    super::sig(coarsest)
+                ));
+            }
+            dt_from_time = Some(dt);
+            time_check = Some(TimeCheck {
+                factor,
+                dt_s: dt,
+                exact,
+                dt_from: if even { "mean step" } else { "median step" },
+                prev: None,
+                steps: 0,
+                jittered: 0,
+                first_jitter_line: 0,
+                max_deviation: 0.0,
+            });
+            let label = if tname.is_empty() {
+                "time".to_string()
+            } else {
+                format!("'{tname}'")
+            };
+            cap.notes.push(format!(
+                "sample interval {:e} s from the time column {label}",
+                super::sig(dt)
+            ));
+        }
+    }
+    if let Some(t0) = pre.t0_s {
+        if time_col.is_none() {
+            cap.t0_s = t0;
+        }
+    }
+    cap.sample_interval_s = match (opts.dt_s, dt_from_time, pre.interval_s) {
+        (Some(dt), from_time, _) => {
+            cap.notes
+                .push(format!("sample interval {dt:e} s from --dt/--sample-rate"));
+            // The time column is still checked against its own step.
+            if let Some(col) = from_time {
+                if ((col - dt) / dt).abs() > JITTER_FRACTION {
+                    cap.warnings.push(format!(
+                        "--dt/--sample-rate gives {dt:e} s but the time column steps by {:e} s; the option is used",
+                        super::sig(col)
+                    ));
+                }
+            }
+            dt
+        }
+        (None, Some(dt), stated) => {
+            if let Some(s) = stated {
+                if ((s - dt) / dt).abs() > JITTER_FRACTION {
+                    cap.warnings.push(format!(
+                        "the file states a sample interval of {s:e} s but its time column steps by {:e} s; the time column is used",
+                        super::sig(dt)
+                    ));
+                }
+            }
+            dt
+        }
+        (None, None, Some(s)) => s,
+        (None, None, None) => {
+            return Err(invalid(
+                path,
+                "no time column and no sample interval in the file; expected a time column, a 'Sample interval' line, or --dt/--sample-rate",
+            ))
+        }
+    };
+
+    // Stream from the first data row.
+    let offset = lines[data_idx].offset as u64;
+    f.seek(SeekFrom::Start(offset)).map_err(io)?;
+    let reader = BufReader::with_capacity(1 << 18, f);
+    let stream = CsvStream {
+        file: path.to_path_buf(),
+        lines: LineReader::new(reader, offset, data_line),
+        buf: Vec::with_capacity(256),
+        delim,
+        decimal_comma: comma,
+        n_fields,
+        roles,
+        factors,
+        time: time_check,
+        rows: 0,
+    };
+    Ok((cap, stream, pre.record_length))
+}
