@@ -16,15 +16,15 @@ use std::fs::File;
 use std::io::{BufReader, Read, Seek, SeekFrom};
 use std::path::Path;
 
-use super::cells::{parse_number, trim_cell, CellError, Cells, Delim};
-use super::columns::{self, MetaKey};
+use super::cells::{trim_cell, CellError, Cells, Delim};
+use super::columns;
 use super::lines::LineReader;
 use super::{Capture, CaptureError, Channel, Format, ReadOptions};
-use layout::{candidates, data_like, header_agrees, score};
-use preamble::{read_preamble, split_meta};
+use layout::{locate_rows, pick_delimiter, Located};
+use preamble::read_preamble;
 pub(crate) use rows::CsvStream;
 use text::{check_text, split_lines, SNIFF_BYTES, UTF8_BOM};
-use timebase::{looks_like_time, median, window_times, TimeCheck, JITTER_FRACTION};
+use timebase::{looks_like_time, window_times, TimeCheck, JITTER_FRACTION};
 
 /// What one column of a data row holds.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -123,19 +123,8 @@ pub(crate) fn open(
     let latin1 = check_text(path, &head, &mut cap.notes)?;
     let lines = split_lines(path, &head, complete, latin1)?;
 
-    // Delimiter and decimal mark: the pair under which most rows read as numbers.
-    // Ties go to the pair under which a header above the rows has as many cells as they
-    // do: one column of `1,25` is decimal-comma numbers under a one-cell header, not two
-    // columns. Without a header that case stays ambiguous (`--decimal comma` settles it).
-    let mut best: Option<(Delim, bool, (usize, bool, usize))> = None;
-    for (d, m) in candidates(opts) {
-        let (k, n) = score(&lines, d, m);
-        let key = (k, header_agrees(&lines, d, m, n), n);
-        if k > 0 && best.is_none_or(|(_, _, b)| key > b) {
-            best = Some((d, m, key));
-        }
-    }
-    let Some((delim, comma, (_, _, n_fields))) = best else {
+    let best = pick_delimiter(&lines, opts);
+    let Some((delim, comma, n_fields)) = best else {
         let last = lines.last().map_or(1, |l| l.no);
         return Err(invalid(
             path,
@@ -163,59 +152,18 @@ pub(crate) fn open(
         ));
     }
 
-    // The data block starts at the first run of rows that look like data.
-    let nonblank: Vec<usize> = (0..lines.len())
-        .filter(|&k| !lines[k].text.trim().is_empty())
-        .collect();
-    let is_data: Vec<bool> = nonblank
-        .iter()
-        .map(|&k| data_like(&lines[k].text, delim, comma))
-        .collect();
-    let run = 5usize;
-    let start_pos = (0..nonblank.len()).find(|&p| {
-        let end = (p + run).min(nonblank.len());
-        is_data[p..end].iter().all(|&d| d)
-    });
-    let Some(start_pos) = start_pos else {
+    let Some(found) = locate_rows(&lines, delim, comma, n_fields) else {
         return Err(invalid(
             path,
             "no block of number rows found; expected rows of numbers after any header",
         ));
     };
-    let data_idx = nonblank[start_pos];
+    let Located {
+        data_idx,
+        header_idx,
+        units_idx,
+    } = found;
     let data_line = lines[data_idx].no;
-
-    // Header (and a units row under it) directly above the data.
-    let is_meta_key = |text: &str| {
-        let (key, _) = split_meta(text, delim);
-        columns::classify_key(&key) != MetaKey::Other
-    };
-    let header_fits = |text: &str| {
-        let cells = row_cells(text, delim);
-        cells.len() == n_fields
-            && cells
-                .iter()
-                .all(|c| parse_number(trim_cell(c), comma).is_err())
-            && !is_meta_key(text)
-    };
-    let above = |pos: usize| -> Option<usize> { pos.checked_sub(1).map(|p| nonblank[p]) };
-    let mut header_idx = None;
-    let mut units_idx = None;
-    if let Some(h) = above(start_pos) {
-        if header_fits(&lines[h].text) {
-            let cells = row_cells(&lines[h].text, delim);
-            let all_units = cells
-                .iter()
-                .all(|c| columns::is_unit_cell(&String::from_utf8_lossy(trim_cell(c))));
-            let h2 = start_pos.checked_sub(1).and_then(above);
-            if all_units && h2.is_some_and(|h2| header_fits(&lines[h2].text)) {
-                units_idx = Some(h);
-                header_idx = h2;
-            } else {
-                header_idx = Some(h);
-            }
-        }
-    }
     let preamble_end = header_idx.unwrap_or(data_idx);
     let pre = read_preamble(&lines[..preamble_end], delim, comma, &mut cap);
     cap.notes
@@ -416,63 +364,16 @@ pub(crate) fn open(
         if let Some(&(t0, _, _)) = times.first() {
             cap.t0_s = t0 * factor;
         }
-        let mut steps: Vec<f64> = times.windows(2).map(|w| w[1].0 - w[0].0).collect();
-        // A zero is exact in any format; it says nothing about the printed resolution.
-        let coarsest = times
-            .iter()
-            .filter(|t| t.0 != 0.0)
-            .map(|t| t.1)
-            .fold(0.0, f64::max)
-            * factor;
-        // A column printed more coarsely than it steps has a median step of zero; its
-        // mean step over the window still holds the interval.
-        let mean_step = match (times.first(), times.last()) {
-            (Some(f), Some(l)) if times.len() >= 2 => (l.0 - f.0) / (times.len() - 1) as f64,
-            _ => 0.0,
-        };
-        let med = median(&mut steps)
-            .filter(|&m| m > 0.0)
-            .or((mean_step > 0.0).then_some(mean_step));
-        if let Some(med) = med {
-            // The last printed digit bounds the rounding of a time (`%.3e`, `%.6f`, `%g`).
-            // Shortest round-trip output of doubles (`3.0000000000000004e-9`) is exact: it
-            // shows as a varying number of decimals, 10 or more in some cells.
-            let nonzero: Vec<_> = times.iter().filter(|t| t.0 != 0.0).collect();
-            let same_decimals = nonzero.windows(2).all(|w| w[0].2 == w[1].2);
-            let exact = !same_decimals && nonzero.iter().any(|t| t.2 >= 10);
-            let q = |t: &(f64, f64, usize)| {
-                if exact {
-                    1e-6 * med + 1e-12 * t.0.abs()
-                } else {
-                    t.1
-                }
-            };
-            let mean = mean_step;
-            // Evenly printed steps: the mean over the window is the finer estimate. Any
-            // jitter: the median step, which the jitter does not pull.
-            let even = times.windows(2).all(|w| {
-                (w[1].0 - w[0].0 - med).abs() <= JITTER_FRACTION * med + q(&w[0]) + q(&w[1])
-            });
-            let dt_file = if even { mean } else { med };
-            let dt = dt_file * factor;
-            if !exact && coarsest > 0.25 * dt {
+        if let Some(check) = TimeCheck::from_first_rows(&times, factor) {
+            let dt = check.dt_s;
+            if let Some(coarsest) = check.coarse_resolution_s {
                 cap.notes.push(format!(
                     "time column printed with a resolution of {:e} s; its steps are checked only that closely",
                     super::sig(coarsest)
                 ));
             }
             dt_from_time = Some(dt);
-            time_check = Some(TimeCheck {
-                factor,
-                dt_s: dt,
-                exact,
-                dt_from: if even { "mean step" } else { "median step" },
-                prev: None,
-                steps: 0,
-                jittered: 0,
-                first_jitter_line: 0,
-                max_deviation: 0.0,
-            });
+            time_check = Some(check);
             let label = if tname.is_empty() {
                 "time".to_string()
             } else {

@@ -54,7 +54,7 @@ pub(super) fn window_times(
     out
 }
 
-pub(super) fn median(v: &mut [f64]) -> Option<f64> {
+fn median(v: &mut [f64]) -> Option<f64> {
     if v.is_empty() {
         return None;
     }
@@ -87,6 +87,8 @@ pub(super) struct TimeCheck {
     pub(super) exact: bool,
     /// How `dt_s` was found over the first rows (`median step`, `mean step`).
     pub(super) dt_from: &'static str,
+    /// The printed resolution when it is coarser than a quarter step (checks are loose).
+    pub(super) coarse_resolution_s: Option<f64>,
     pub(super) prev: Option<(f64, f64)>,
     pub(super) steps: u64,
     pub(super) jittered: u64,
@@ -148,4 +150,59 @@ pub(super) fn check_time(
     }
     tc.prev = Some((t, q));
     Ok(())
+}
+
+impl TimeCheck {
+    /// The sample interval and the checks for the rest of the column, from the times of the
+    /// first rows (in the file's unit; `factor` converts to seconds).
+    pub(super) fn from_first_rows(times: &[(f64, f64, usize)], factor: f64) -> Option<TimeCheck> {
+        let mut steps: Vec<f64> = times.windows(2).map(|w| w[1].0 - w[0].0).collect();
+        // A zero is exact in any format; it says nothing about the printed resolution.
+        let coarsest = times
+            .iter()
+            .filter(|t| t.0 != 0.0)
+            .map(|t| t.1)
+            .fold(0.0, f64::max)
+            * factor;
+        // A column printed more coarsely than it steps has a median step of zero; its mean
+        // step over the window still holds the interval.
+        let mean_step = match (times.first(), times.last()) {
+            (Some(f), Some(l)) if times.len() >= 2 => (l.0 - f.0) / (times.len() - 1) as f64,
+            _ => 0.0,
+        };
+        let med = median(&mut steps)
+            .filter(|&m| m > 0.0)
+            .or((mean_step > 0.0).then_some(mean_step))?;
+        // The last printed digit bounds the rounding of a time (`%.3e`, `%.6f`, `%g`).
+        // Shortest round-trip output of doubles (`3.0000000000000004e-9`) is exact: it shows
+        // as a varying number of decimals, 10 or more in some cells.
+        let nonzero: Vec<_> = times.iter().filter(|t| t.0 != 0.0).collect();
+        let same_decimals = nonzero.windows(2).all(|w| w[0].2 == w[1].2);
+        let exact = !same_decimals && nonzero.iter().any(|t| t.2 >= 10);
+        let q = |t: &(f64, f64, usize)| {
+            if exact {
+                1e-6 * med + 1e-12 * t.0.abs()
+            } else {
+                t.1
+            }
+        };
+        // Evenly printed steps: the mean over the window is the finer estimate. Any jitter:
+        // the median step, which the jitter does not pull.
+        let even = times
+            .windows(2)
+            .all(|w| (w[1].0 - w[0].0 - med).abs() <= JITTER_FRACTION * med + q(&w[0]) + q(&w[1]));
+        let dt = if even { mean_step } else { med } * factor;
+        Some(TimeCheck {
+            factor,
+            dt_s: dt,
+            exact,
+            dt_from: if even { "mean step" } else { "median step" },
+            coarse_resolution_s: (!exact && coarsest > 0.25 * dt).then_some(coarsest),
+            prev: None,
+            steps: 0,
+            jittered: 0,
+            first_jitter_line: 0,
+            max_deviation: 0.0,
+        })
+    }
 }
