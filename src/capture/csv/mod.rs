@@ -197,127 +197,18 @@ pub(crate) fn open(
         None => vec![None; n_fields],
     };
 
-    // Column roles.
     let data_lines = &lines[data_idx..];
-    let mut roles = vec![Role::Skip; n_fields];
-    let mut time_col = header
-        .iter()
-        .position(|(name, _)| columns::is_time_name(name));
-    if time_col.is_none() && header_idx.is_none() && n_fields >= 2 {
-        let times = window_times(data_lines, 0, n_fields, delim, comma);
-        if looks_like_time(&times) {
-            let unit_steps = times.windows(2).all(|w| w[1].0 - w[0].0 == 1.0);
-            // With an interval stated, a headerless first column is time only if it steps
-            // by that interval; otherwise it is data that happens to rise evenly.
-            let stated = opts.dt_s.or(pre.interval_s);
-            let step = times.get(1).map_or(0.0, |t| t.0) - times.first().map_or(0.0, |t| t.0);
-            let matches_stated =
-                stated.is_none_or(|dt| ((step - dt) / dt).abs() <= JITTER_FRACTION);
-            let first_is_zero = times.first().is_some_and(|t| t.0 == 0.0);
-            if unit_steps && first_is_zero && stated.is_some() {
-                cap.notes
-                    .push("first column counts samples (0, 1, 2, ...); left out".to_string());
-            } else if !matches_stated {
-                cap.notes.push(
-                    "first column rises evenly but not by the stated interval: taken as data"
-                        .to_string(),
-                );
-            } else {
-                time_col = Some(0);
-                cap.notes
-                    .push("first column rises in equal steps: taken as time (sniffed)".to_string());
-            }
-        }
-    }
-    let index_col = if time_col != Some(0) {
-        match header.first() {
-            Some((name, _)) if columns::is_index_name(name) => {
-                cap.notes
-                    .push(format!("column '{name}' counts samples; left out"));
-                Some(0)
-            }
-            _ if header_idx.is_none()
-                && cap
-                    .notes
-                    .iter()
-                    .any(|n| n.starts_with("first column counts")) =>
-            {
-                Some(0)
-            }
-            _ => None,
-        }
-    } else {
-        None
-    };
-    let mut factors = Vec::new();
-    for (j, role) in roles.iter_mut().enumerate() {
-        if Some(j) == time_col {
-            *role = Role::Time;
-            continue;
-        }
-        if Some(j) == index_col {
-            continue;
-        }
-        let k = cap.channels.len();
-        let (hname, hunit) = header.get(j).cloned().unwrap_or_default();
-        let name = if hname.is_empty() {
-            format!("CH{}", k + 1)
-        } else if cap
-            .channels
-            .iter()
-            .any(|c| c.name.eq_ignore_ascii_case(&hname))
-        {
-            let renamed = format!("{hname}_{}", k + 1);
-            cap.warnings.push(format!(
-                "two columns are named '{hname}'; column {} is called '{renamed}'",
-                j + 1
-            ));
-            renamed
-        } else {
-            hname
-        };
-        let stated = hunit
-            .or_else(|| unit_row.get(j).cloned().flatten())
-            .or_else(|| {
-                // Units listed per value column, per column, or one for all.
-                let k_value = cap.channels.len();
-                match pre.units.len() {
-                    0 => None,
-                    1 => pre.units.first().cloned(),
-                    n if n == n_fields => pre.units.get(j).cloned(),
-                    _ => pre.units.get(k_value).or(pre.units.first()).cloned(),
-                }
-            });
-        let (unit, factor) = match stated {
-            Some(u) => {
-                let (base, f) = columns::value_unit(&u);
-                if f != 1.0 {
-                    cap.notes
-                        .push(format!("'{name}' in {u}: scaled by {f:e} to {base}"));
-                }
-                (base, f)
-            }
-            None => match columns::unit_from_name(&name) {
-                Some(u) => {
-                    cap.notes
-                        .push(format!("'{name}' has no unit; taken as {u} from its name"));
-                    (u.to_string(), 1.0)
-                }
-                None => {
-                    cap.notes.push(format!("'{name}' has no unit; taken as V"));
-                    ("V".to_string(), 1.0)
-                }
-            },
-        };
-        *role = Role::Value(k);
-        factors.push(factor);
-        cap.channels.push(Channel {
-            name,
-            unit,
-            samples: Vec::new(),
-            adc: None,
-        });
-    }
+    let (time_col, index_col) = time_and_index_columns(
+        &header,
+        header_idx.is_some(),
+        data_lines,
+        (n_fields, delim, comma),
+        opts.dt_s.or(pre.interval_s),
+        &mut cap,
+    );
+    let (roles, factors) = build_channels(
+        &header, &unit_row, &pre.units, time_col, index_col, &mut cap,
+    );
     if cap.channels.is_empty() {
         return Err(invalid(
             path,
@@ -442,4 +333,141 @@ pub(crate) fn open(
         rows: 0,
     };
     Ok((cap, stream, pre.record_length))
+}
+
+/// Which column holds time and which only counts samples. A header names them; without
+/// one, a first column rising in equal steps is time (or a sample count when it steps by 1
+/// from 0 and an interval is stated), unless it disagrees with a stated interval.
+fn time_and_index_columns(
+    header: &[(String, Option<String>)],
+    has_header: bool,
+    data_lines: &[text::SniffLine],
+    (n_fields, delim, comma): (usize, Delim, bool),
+    stated: Option<f64>,
+    cap: &mut Capture,
+) -> (Option<usize>, Option<usize>) {
+    let mut time_col = header
+        .iter()
+        .position(|(name, _)| columns::is_time_name(name));
+    let mut counter = false;
+    if time_col.is_none() && !has_header && n_fields >= 2 {
+        let times = window_times(data_lines, 0, n_fields, delim, comma);
+        if looks_like_time(&times) {
+            let unit_steps = times.windows(2).all(|w| w[1].0 - w[0].0 == 1.0);
+            let step = times.get(1).map_or(0.0, |t| t.0) - times.first().map_or(0.0, |t| t.0);
+            let matches_stated =
+                stated.is_none_or(|dt| ((step - dt) / dt).abs() <= JITTER_FRACTION);
+            let first_is_zero = times.first().is_some_and(|t| t.0 == 0.0);
+            if unit_steps && first_is_zero && stated.is_some() {
+                counter = true;
+                cap.notes
+                    .push("first column counts samples (0, 1, 2, ...); left out".to_string());
+            } else if !matches_stated {
+                cap.notes.push(
+                    "first column rises evenly but not by the stated interval: taken as data"
+                        .to_string(),
+                );
+            } else {
+                time_col = Some(0);
+                cap.notes
+                    .push("first column rises in equal steps: taken as time (sniffed)".to_string());
+            }
+        }
+    }
+    let index_col = match header.first() {
+        _ if time_col == Some(0) => None,
+        _ if counter => Some(0),
+        Some((name, _)) if columns::is_index_name(name) => {
+            cap.notes
+                .push(format!("column '{name}' counts samples; left out"));
+            Some(0)
+        }
+        _ => None,
+    };
+    (time_col, index_col)
+}
+
+/// Names, units and unit factors of the value columns, and what each column holds. A
+/// unit comes from the header cell, a units row, the preamble (one for all or one per
+/// column), the name (`i_...` is a current), or is taken as V; each guess is noted.
+fn build_channels(
+    header: &[(String, Option<String>)],
+    unit_row: &[Option<String>],
+    pre_units: &[String],
+    time_col: Option<usize>,
+    index_col: Option<usize>,
+    cap: &mut Capture,
+) -> (Vec<Role>, Vec<f64>) {
+    let n_fields = header.len();
+    let mut roles = vec![Role::Skip; n_fields];
+    let mut factors = Vec::new();
+    for (j, role) in roles.iter_mut().enumerate() {
+        if Some(j) == time_col {
+            *role = Role::Time;
+            continue;
+        }
+        if Some(j) == index_col {
+            continue;
+        }
+        let k = cap.channels.len();
+        let (hname, hunit) = header.get(j).cloned().unwrap_or_default();
+        let name = if hname.is_empty() {
+            format!("CH{}", k + 1)
+        } else if cap
+            .channels
+            .iter()
+            .any(|c| c.name.eq_ignore_ascii_case(&hname))
+        {
+            let renamed = format!("{hname}_{}", k + 1);
+            cap.warnings.push(format!(
+                "two columns are named '{hname}'; column {} is called '{renamed}'",
+                j + 1
+            ));
+            renamed
+        } else {
+            hname
+        };
+        let stated = hunit
+            .or_else(|| unit_row.get(j).cloned().flatten())
+            .or_else(|| {
+                // Units listed per value column, per column, or one for all.
+                let k_value = cap.channels.len();
+                match pre_units.len() {
+                    0 => None,
+                    1 => pre_units.first().cloned(),
+                    n if n == n_fields => pre_units.get(j).cloned(),
+                    _ => pre_units.get(k_value).or(pre_units.first()).cloned(),
+                }
+            });
+        let (unit, factor) = match stated {
+            Some(u) => {
+                let (base, f) = columns::value_unit(&u);
+                if f != 1.0 {
+                    cap.notes
+                        .push(format!("'{name}' in {u}: scaled by {f:e} to {base}"));
+                }
+                (base, f)
+            }
+            None => match columns::unit_from_name(&name) {
+                Some(u) => {
+                    cap.notes
+                        .push(format!("'{name}' has no unit; taken as {u} from its name"));
+                    (u.to_string(), 1.0)
+                }
+                None => {
+                    cap.notes.push(format!("'{name}' has no unit; taken as V"));
+                    ("V".to_string(), 1.0)
+                }
+            },
+        };
+        *role = Role::Value(k);
+        factors.push(factor);
+        cap.channels.push(Channel {
+            name,
+            unit,
+            samples: Vec::new(),
+            adc: None,
+        });
+    }
+    (roles, factors)
 }
