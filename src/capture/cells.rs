@@ -149,10 +149,17 @@ pub(crate) fn last_digit_place(cell: &[u8]) -> f64 {
     let (mantissa, exponent) = match cell.iter().position(|&b| b == b'e' || b == b'E') {
         Some(k) => {
             let exp_text = cell.get(k + 1..).unwrap_or(&[]);
-            let exp: i32 = std::str::from_utf8(exp_text)
-                .ok()
-                .and_then(|s| s.trim_start_matches('+').parse().ok())
-                .unwrap_or(0);
+            let (sign, digits) = match exp_text.first() {
+                Some(b'-') => (-1, &exp_text[1..]),
+                Some(b'+') => (1, &exp_text[1..]),
+                _ => (1, exp_text),
+            };
+            let exp = digits
+                .iter()
+                .take(4)
+                .filter(|b| b.is_ascii_digit())
+                .fold(0i32, |e, &b| e * 10 + i32::from(b - b'0'));
+            let exp = sign * exp;
             (cell.get(..k).unwrap_or(&[]), exp)
         }
         None => (cell, 0),
@@ -199,5 +206,6 @@ mod tests {
         assert!((last_digit_place(b"1.25e-6") - 1e-8).abs() < 1e-20);
         assert!((last_digit_place(b"0.000123") - 1e-6).abs() < 1e-18);
         assert_eq!(last_digit_place(b"12"), 1.0);
+        assert!((last_digit_place(b"-3.50E+02") - 1.0).abs() < 1e-12);
     }
 }

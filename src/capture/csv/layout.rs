@@ -187,3 +187,53 @@ pub(super) fn locate_rows(
         units_idx,
     })
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use std::borrow::Cow;
+
+    fn lines(text: &str) -> Vec<SniffLine<'_>> {
+        text.lines()
+            .enumerate()
+            .map(|(k, l)| SniffLine {
+                no: k + 1,
+                offset: 0,
+                text: Cow::Borrowed(l),
+            })
+            .collect()
+    }
+
+    #[test]
+    fn delimiter_and_decimal_mark_are_sniffed() {
+        let o = ReadOptions::default();
+        let l = lines("a;b\n1,5;2\n-3,25;4e-3\n");
+        assert_eq!(pick_delimiter(&l, &o), Some((Delim::Byte(b';'), true, 2)));
+        let l = lines("t,v\n0,1.5\n1,2.5\n");
+        assert_eq!(pick_delimiter(&l, &o), Some((Delim::Byte(b','), false, 2)));
+        let l = lines("0.5 1.5\t2\n0.25 3 4\n");
+        assert_eq!(pick_delimiter(&l, &o), Some((Delim::Whitespace, false, 3)));
+        // A one-cell header settles a column of decimal-comma numbers.
+        let l = lines("v [V]\n1,25\n2,5\n");
+        let (_, comma, n) = pick_delimiter(&l, &o).unwrap();
+        assert!(comma);
+        assert_eq!(n, 1);
+    }
+
+    #[test]
+    fn rows_header_and_units_row_are_located() {
+        let l = lines("Sample rate: 1 GHz\ntime,v\ns,V\n0,1\n1e-9,2\n2e-9,3\n");
+        let found = locate_rows(&l, Delim::Byte(b','), false, 2).unwrap();
+        assert_eq!(found.data_idx, 3);
+        assert_eq!(found.header_idx, Some(1));
+        assert_eq!(found.units_idx, Some(2));
+        // A preamble key directly above headerless rows is not a header.
+        let l = lines("Units,V\n1,2\n3,4\n");
+        let found = locate_rows(&l, Delim::Byte(b','), false, 2).unwrap();
+        assert_eq!((found.data_idx, found.header_idx), (1, None));
+        // A text cell in the first data row keeps the row in the data block.
+        let l = lines("t,v\n0,open\n1,2\n2,3\n");
+        let found = locate_rows(&l, Delim::Byte(b','), false, 2).unwrap();
+        assert_eq!((found.data_idx, found.header_idx), (1, Some(0)));
+    }
+}

@@ -136,3 +136,29 @@ pub(super) fn read_preamble(
     }
     p
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn preamble_lines_split_into_key_and_value() {
+        let d = Delim::Byte(b',');
+        assert_eq!(
+            split_meta("Sample Interval,2e-9,s", d),
+            ("Sample Interval".to_string(), "2e-9 s".to_string())
+        );
+        assert_eq!(
+            split_meta("# Record Length: 10000", d),
+            ("Record Length".to_string(), "10000".to_string())
+        );
+        assert_eq!(
+            split_meta("units = mV", Delim::Byte(b';')),
+            ("units".to_string(), "mV".to_string())
+        );
+        assert_eq!(
+            split_meta("valve V3 bench", d),
+            ("text".to_string(), "valve V3 bench".to_string())
+        );
+    }
+}

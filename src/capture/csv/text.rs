@@ -118,3 +118,41 @@ pub(super) fn split_lines<'a>(
     }
     Ok(out)
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn text_and_binary_are_told_apart() {
+        let f = Path::new("x.csv");
+        let mut notes = Vec::new();
+        assert!(!check_text(f, b"t,v\n0,1\n", &mut notes).unwrap());
+        // One Latin-1 micro sign in a header is still text.
+        let mut latin = b"t [\xB5s],v\n".to_vec();
+        latin.extend(std::iter::repeat_n(b'1', 200));
+        assert!(check_text(f, &latin, &mut notes).unwrap());
+        assert_eq!(notes, ["text is not UTF-8; read as Latin-1"]);
+        let e = check_text(f, b"12\x00\x01", &mut notes)
+            .unwrap_err()
+            .to_string();
+        assert!(
+            e.contains("byte 2: looks like a binary file (NUL byte)"),
+            "{e}"
+        );
+    }
+
+    #[test]
+    fn lines_keep_their_numbers_and_offsets() {
+        let f = Path::new("x.csv");
+        let l = split_lines(f, b"\xEF\xBB\xBFa\r\nbb\ncc", true, false).unwrap();
+        let got: Vec<_> = l
+            .iter()
+            .map(|l| (l.no, l.offset, l.text.as_ref()))
+            .collect();
+        assert_eq!(got, [(1, 3, "a"), (2, 6, "bb"), (3, 9, "cc")]);
+        // A last line cut by the sniff limit is dropped.
+        let l = split_lines(f, b"a\nbb\ncc", false, false).unwrap();
+        assert_eq!(l.len(), 2);
+    }
+}

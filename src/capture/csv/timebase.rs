@@ -206,3 +206,49 @@ impl TimeCheck {
         })
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn fixed(times: &[f64], place: f64) -> Vec<(f64, f64, usize)> {
+        times.iter().map(|&t| (t, place, 3)).collect()
+    }
+
+    #[test]
+    fn interval_from_the_first_rows() {
+        // Times in us printed with 3 decimals: 2 ns steps.
+        let t = fixed(&[-0.004, -0.002, 0.0, 0.002, 0.004], 1e-3);
+        let c = TimeCheck::from_first_rows(&t, 1e-6).unwrap();
+        assert!((c.dt_s - 2e-9).abs() < 1e-21);
+        assert_eq!(c.dt_from, "mean step");
+        assert!(!c.exact);
+        // One step 10 % long: the median step, not the mean.
+        let t = fixed(&[0.0, 1.0, 2.0, 3.1, 4.1, 5.1], 1e-3);
+        let c = TimeCheck::from_first_rows(&t, 1.0).unwrap();
+        assert_eq!(c.dt_s, 1.0);
+        assert_eq!(c.dt_from, "median step");
+    }
+
+    #[test]
+    fn row_checks_allow_for_printed_rounding() {
+        let t = fixed(&[0.0, 1.0, 2.0, 3.0], 1e-3);
+        let mut c = TimeCheck::from_first_rows(&t, 1.0).unwrap();
+        let f = Path::new("r.csv");
+        check_time(f, &mut c, 0.0, 1e-3, 2).unwrap();
+        check_time(f, &mut c, 1.0, 1e-3, 3).unwrap();
+        // 1.5 % long beyond a 0.2 % rounding allowance: jitter, counted.
+        check_time(f, &mut c, 2.017, 1e-3, 4).unwrap();
+        assert_eq!((c.jittered, c.first_jitter_line), (1, 4));
+        let e = check_time(f, &mut c, 4.6, 1e-3, 5).unwrap_err().to_string();
+        assert!(e.contains("line 5, column 1: gap"), "{e}");
+        let mut c = TimeCheck::from_first_rows(&t, 1.0).unwrap();
+        check_time(f, &mut c, 3.0, 1e-3, 2).unwrap();
+        let e = check_time(f, &mut c, 2.0, 1e-3, 3).unwrap_err().to_string();
+        assert!(e.contains("time goes backwards"), "{e}");
+        // A repeat within the printed resolution of a coarse column is rounding.
+        let mut c = TimeCheck::from_first_rows(&t, 1.0).unwrap();
+        check_time(f, &mut c, 3.0, 1.0, 2).unwrap();
+        check_time(f, &mut c, 3.0, 1.0, 3).unwrap();
+    }
+}
