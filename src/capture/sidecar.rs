@@ -32,25 +32,29 @@
 use std::io::Read;
 use std::path::{Path, PathBuf};
 
-use serde::Deserialize;
+use serde::{Deserialize, Serialize};
 
 use super::CaptureError;
 
 /// Largest sidecar read; a description of channels is a few hundred bytes.
 const MAX_SIDECAR_BYTES: u64 = 1 << 20;
 
-/// What a sidecar says, after its values have been checked.
-#[derive(Debug, Clone, PartialEq, Deserialize)]
+/// What a sidecar says, after its values have been checked. It also serialises, so the
+/// simulator can write sidecars beside the captures it makes.
+#[derive(Debug, Clone, PartialEq, Deserialize, Serialize)]
 #[serde(deny_unknown_fields)]
 pub struct Sidecar {
+    #[serde(default, skip_serializing_if = "Option::is_none")]
     pub sample_rate_hz: Option<f64>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
     pub t0_s: Option<f64>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
     pub data_offset_bytes: Option<u64>,
     pub channels: Vec<SidecarChannel>,
 }
 
 /// One channel of a sidecar.
-#[derive(Debug, Clone, PartialEq, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Deserialize, Serialize)]
 #[serde(deny_unknown_fields)]
 pub struct SidecarChannel {
     pub name: String,
@@ -170,6 +174,10 @@ mod tests {
         assert_eq!(sc.sample_rate_hz, Some(1e9));
         assert_eq!(sc.channels[1].unit, "A");
         assert_eq!(sc.channels[1].offset_v, 0.0);
+        // What serialises reads back the same.
+        let text = serde_json::to_string(&sc).unwrap();
+        assert_eq!(parse(&text).unwrap(), sc);
+        assert!(!text.contains("t0_s"), "{text}");
     }
 
     #[test]
