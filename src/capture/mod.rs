@@ -4,11 +4,38 @@
 //! mark, header, metadata lines, time units) and record each guess in [`Capture::notes`], so
 //! `kickscan inspect` can show what was understood; every guess can be overridden through
 //! [`ReadOptions`].
+//!
+//! - [`read_capture`] reads a whole file; [`open_blocks`] streams it in [`Block`]s of a
+//!   bounded number of samples per channel, for captures of any length in flat memory.
+//! - Delimited text (`csv`): preamble lines, header, units, time column, checked row by row.
+//! - WAV (`wav`) and raw little-endian dumps (`raw`), described by a sidecar JSON file
+//!   ([`sidecar`] documents its schema).
+//! - [`select_channel`] picks a channel by name, number or difference (`CH1-CH2`) and
+//!   applies `--skew`; `--scale` is applied while reading.
+//!
+//! Untrusted sizes never drive allocation: lines are capped at 1 MiB, sidecars at 1 MiB,
+//! and sample vectors grow with the samples actually read, not with what a header claims.
 
+use std::io::Read;
 use std::path::{Path, PathBuf};
 
 use serde::Serialize;
 use thiserror::Error;
+
+mod adc;
+mod blocks;
+mod cells;
+mod channel;
+mod columns;
+mod csv;
+mod lines;
+mod raw;
+pub mod sidecar;
+mod wav;
+
+pub use blocks::{open_blocks, Block, BlockReader, DEFAULT_BLOCK_LEN};
+pub use channel::select_channel;
+pub use sidecar::{Sidecar, SidecarChannel};
 
 /// File formats kickscan reads.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
@@ -41,6 +68,9 @@ pub enum RawKind {
 }
 
 /// The vertical range of the digitiser, where known: values at these rails are clipped.
+///
+/// A rail that was not seen (a CSV channel clipped only at the top, or one whose only known
+/// property is its code step) is infinite: `min_v = -inf`, `max_v = +inf`.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
 pub struct AdcRange {
     pub min_v: f64,
@@ -138,46 +168,115 @@ pub enum CaptureError {
 }
 
 /// Reads a whole capture. The format comes from `opts.raw`, then the file's leading bytes
-/// (`RIFF....WAVE`), then its extension; anything else is tried as CSV.
+/// (`RIFF....WAVE`), then its extension; anything else is tried as delimited text.
+/// `--scale` factors are applied here; `--skew` is applied by [`select_channel`].
 pub fn read_capture(path: &Path, opts: &ReadOptions) -> Result<Capture, CaptureError> {
-    let _ = opts;
-    Err(CaptureError::Invalid {
-        file: path.to_path_buf(),
-        message: "readers are not built yet".into(),
-    })
-}
-
-/// Picks a channel by header name (case-insensitive), by number (data channels counted
-/// from 1, the time column left out), or as the difference `A-B` of two channels, and
-/// applies any `--skew` given for it. The error lists the channels that exist.
-pub fn select_channel(
-    capture: &Capture,
-    wanted: &str,
-    opts: &ReadOptions,
-) -> Result<Channel, CaptureError> {
-    let _ = opts;
-    let wanted_trim = wanted.trim();
-    let by_name = capture
+    let mut reader = open_blocks(path, opts)?;
+    let mut channels: Vec<Vec<f64>> = reader
+        .header()
         .channels
         .iter()
-        .find(|c| c.name.eq_ignore_ascii_case(wanted_trim));
-    let by_number = wanted_trim
-        .parse::<usize>()
-        .ok()
-        .and_then(|n| n.checked_sub(1))
-        .and_then(|k| capture.channels.get(k));
-    by_name
-        .or(by_number)
-        .cloned()
-        .ok_or_else(|| CaptureError::NoSuchChannel {
-            file: capture.source.clone(),
-            wanted: wanted.to_string(),
-            available: capture
-                .channels
-                .iter()
-                .enumerate()
-                .map(|(k, c)| format!("{} ({})", c.name, k + 1))
-                .collect::<Vec<_>>()
-                .join(", "),
-        })
+        .map(|_| Vec::new())
+        .collect();
+    let mut block = Block::default();
+    while reader.next_block_into(&mut block)? {
+        for (all, part) in channels.iter_mut().zip(&block.channels) {
+            all.extend_from_slice(part);
+        }
+    }
+    let mut cap = reader.finish();
+    for (ch, samples) in cap.channels.iter_mut().zip(channels) {
+        ch.samples = samples;
+    }
+    if cap.n_samples() == 0 {
+        return Err(CaptureError::Invalid {
+            file: path.to_path_buf(),
+            message: "no samples; expected at least one sample per channel".to_string(),
+        });
+    }
+    cap.notes
+        .push(format!("{} samples per channel", cap.n_samples()));
+    Ok(cap)
+}
+
+/// Which reader a file needs.
+pub(crate) fn detect_format(path: &Path, opts: &ReadOptions) -> Result<Format, CaptureError> {
+    if opts.raw.is_some() {
+        return Ok(Format::Raw);
+    }
+    let mut head = [0u8; 12];
+    let mut n = 0;
+    let mut f = std::fs::File::open(path).map_err(|source| CaptureError::Io {
+        file: path.to_path_buf(),
+        source,
+    })?;
+    while n < head.len() {
+        match f.read(&mut head[n..]) {
+            Ok(0) => break,
+            Ok(k) => n += k,
+            Err(e) if e.kind() == std::io::ErrorKind::Interrupted => {}
+            Err(source) => {
+                return Err(CaptureError::Io {
+                    file: path.to_path_buf(),
+                    source,
+                })
+            }
+        }
+    }
+    let is_wav_ext = path
+        .extension()
+        .and_then(|e| e.to_str())
+        .is_some_and(|e| e.eq_ignore_ascii_case("wav") || e.eq_ignore_ascii_case("wave"));
+    if n == 12 && &head[..4] == b"RIFF" && &head[8..12] == b"WAVE" {
+        return Ok(Format::Wav);
+    }
+    if is_wav_ext || (n >= 4 && (&head[..4] == b"RF64" || &head[..4] == b"RIFF")) {
+        return Err(CaptureError::Binary {
+            file: path.to_path_buf(),
+            offset: 0,
+            message:
+                "expected a RIFF/WAVE header ('RIFF', size, 'WAVE'); 64-bit RF64 files are not read"
+                    .to_string(),
+        });
+    }
+    Ok(Format::Csv)
+}
+
+/// Applies `--scale NAME=FACTOR` to the header (units of the ADC range) and returns the
+/// factor per channel for the samples. A name that matches no channel is an error.
+pub(crate) fn apply_scale_options(
+    cap: &mut Capture,
+    opts: &ReadOptions,
+) -> Result<Vec<f64>, CaptureError> {
+    let mut factors = vec![1.0; cap.channels.len()];
+    for (name, f) in &opts.scale {
+        if !(f.is_finite() && *f != 0.0) {
+            return Err(CaptureError::Invalid {
+                file: cap.source.clone(),
+                message: format!("--scale {name}={f}: expected a finite, non-zero factor"),
+            });
+        }
+        let k =
+            channel::find_channel(cap, name).ok_or_else(|| channel::no_such_channel(cap, name))?;
+        if let Some(x) = factors.get_mut(k) {
+            *x *= f;
+        }
+        if let Some(ch) = cap.channels.get_mut(k) {
+            if let Some(a) = ch.adc.as_mut() {
+                let (lo, hi) = (a.min_v * f, a.max_v * f);
+                a.min_v = lo.min(hi);
+                a.max_v = lo.max(hi);
+                a.step_v = a.step_v.map(|s| s * f.abs());
+            }
+            cap.notes
+                .push(format!("'{}' multiplied by {f} (--scale)", ch.name));
+        }
+    }
+    Ok(factors)
+}
+
+/// A value rounded to 6 significant digits for notes and messages, so a step computed from
+/// printed times shows as `2e-9`, not `1.9999999999999998e-9`.
+pub(crate) fn sig(x: f64) -> f64 {
+    format!("{x:.5e}").parse().unwrap_or(x)
 }

@@ -1,0 +1,222 @@
+//! ADC rails and code step seen in text data, where no header states them.
+//!
+//! A digitiser that overranges writes its extreme code for every clipped sample, so the
+//! extreme value of a channel repeating several times marks a rail (common practice; a true
+//! peak lands on one sample, rarely on the same value twice). The code step is the smallest
+//! gap between distinct values when every gap is a whole multiple of it.
+
+use super::AdcRange;
+
+/// Samples at exactly the extreme value needed to call it a rail.
+const MIN_RAIL_HITS: u64 = 3;
+/// A value held by more than this share of samples is a state level, not a rail.
+const MAX_RAIL_SHARE: f64 = 0.25;
+/// Width of the band inside a rail, as a share of the range, where few samples may lie.
+const NEAR_BAND: f64 = 0.02;
+/// Values kept per channel to estimate the code step (bounded memory).
+const KEPT_VALUES: usize = 1 << 16;
+/// Distinct values needed before calling them gridded.
+const MIN_GRID_VALUES: usize = 8;
+/// Share of gaps that must be whole multiples of the step to call the values gridded.
+const GRID_SHARE: f64 = 0.99;
+
+/// Running extremes of one channel, and a uniform subsample of its values.
+#[derive(Debug, Clone)]
+pub(crate) struct RailWatch {
+    min: f64,
+    max: f64,
+    n_min: u64,
+    n_max: u64,
+    n: u64,
+    /// Every `stride`-th value; the stride doubles whenever the store fills, so it stays a
+    /// uniform subsample of the whole capture in bounded memory.
+    kept: Vec<f64>,
+    stride: u64,
+}
+
+impl Default for RailWatch {
+    fn default() -> Self {
+        RailWatch {
+            min: f64::INFINITY,
+            max: f64::NEG_INFINITY,
+            n_min: 0,
+            n_max: 0,
+            n: 0,
+            kept: Vec::new(),
+            stride: 1,
+        }
+    }
+}
+
+impl RailWatch {
+    pub(crate) fn observe(&mut self, values: &[f64]) {
+        for &x in values {
+            if x > self.max {
+                self.max = x;
+                self.n_max = 1;
+            } else if x == self.max {
+                self.n_max += 1;
+            }
+            if x < self.min {
+                self.min = x;
+                self.n_min = 1;
+            } else if x == self.min {
+                self.n_min += 1;
+            }
+            if self.n.is_multiple_of(self.stride) {
+                if self.kept.len() >= KEPT_VALUES {
+                    let mut k = 0;
+                    self.kept.retain(|_| {
+                        k += 1;
+                        k % 2 == 1
+                    });
+                    self.stride *= 2;
+                }
+                if self.n.is_multiple_of(self.stride) {
+                    self.kept.push(x);
+                }
+            }
+            self.n += 1;
+        }
+    }
+
+    /// Whether the extreme `value`, hit `hits` times, is a rail: it repeats, it is not a
+    /// state level (held by a large share of samples), and few samples lie just inside it.
+    /// Clipped samples sit on the rail with only edge-transit samples near it; the floor
+    /// of a noisy state level has its whole noise band next to its extreme code.
+    fn is_rail(&self, value: f64, hits: u64, step: Option<f64>) -> bool {
+        if hits < MIN_RAIL_HITS || hits as f64 > MAX_RAIL_SHARE * self.n as f64 {
+            return false;
+        }
+        // At least a few codes wide, so a coarse ADC's noise band is inside it.
+        let band = (NEAR_BAND * (self.max - self.min)).max(2.5 * step.unwrap_or(0.0));
+        let near = self
+            .kept
+            .iter()
+            .filter(|&&v| v != value && (v - value).abs() <= band)
+            .count();
+        let near_est = near as f64 * self.n as f64 / self.kept.len().max(1) as f64;
+        near_est < hits as f64
+    }
+
+    /// Rails and step seen, with a note for `inspect`. Unseen rails are infinite.
+    pub(crate) fn conclude(&self, name: &str, unit: &str) -> Option<(AdcRange, String)> {
+        if self.n == 0 || self.min >= self.max {
+            return None;
+        }
+        let step = code_step(&self.kept);
+        let upper = self.is_rail(self.max, self.n_max, step);
+        let lower = self.is_rail(self.min, self.n_min, step);
+        if !upper && !lower && step.is_none() {
+            return None;
+        }
+        let mut parts = Vec::new();
+        if upper {
+            parts.push(format!(
+                "upper rail {} {unit} (the maximum repeats {} times)",
+                self.max, self.n_max
+            ));
+        }
+        if lower {
+            parts.push(format!(
+                "lower rail {} {unit} (the minimum repeats {} times)",
+                self.min, self.n_min
+            ));
+        }
+        if let Some(s) = step {
+            parts.push(format!("code step {:e} {unit}", super::sig(s)));
+        }
+        let range = AdcRange {
+            min_v: if lower { self.min } else { f64::NEG_INFINITY },
+            max_v: if upper { self.max } else { f64::INFINITY },
+            step_v: step,
+        };
+        Some((
+            range,
+            format!("'{name}': {} (seen in the data)", parts.join(", ")),
+        ))
+    }
+}
+
+/// Smallest gap between distinct values, when the values sit on a grid of that step.
+pub(crate) fn code_step(values: &[f64]) -> Option<f64> {
+    let mut v: Vec<f64> = values.to_vec();
+    v.sort_by(|a, b| a.total_cmp(b));
+    let n_all = v.len();
+    v.dedup();
+    // A handful of values sits on the grid of its printed decimals by chance.
+    if v.len() < MIN_GRID_VALUES || v.len() == n_all {
+        return None;
+    }
+    let gaps: Vec<f64> = v.windows(2).map(|w| w[1] - w[0]).collect();
+    let step = gaps.iter().copied().fold(f64::INFINITY, f64::min);
+    if !(step.is_finite() && step > 0.0) {
+        return None;
+    }
+    let on_grid = gaps
+        .iter()
+        .filter(|&&g| {
+            let k = g / step;
+            (k - k.round()).abs() <= 0.05
+        })
+        .count();
+    (on_grid as f64 >= GRID_SHARE * gaps.len() as f64).then_some(step)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn repeated_extremes_are_rails() {
+        // An invented clipped trace on a 0.5 V grid: three samples stuck at 10 V.
+        let mut w = RailWatch::default();
+        let v = [
+            0.0, 0.5, 1.0, 0.0, 3.5, 10.0, 10.0, 10.0, 4.5, 2.0, 0.5, 0.0, 0.0, 1.5, -0.5, 0.0,
+        ];
+        w.observe(&v);
+        let (r, note) = w.conclude("v", "V").unwrap();
+        assert_eq!(r.max_v, 10.0);
+        assert_eq!(r.min_v, f64::NEG_INFINITY);
+        assert_eq!(r.step_v, Some(0.5));
+        assert!(note.contains("upper rail 10 V"), "{note}");
+    }
+
+    #[test]
+    fn the_floor_of_a_noisy_state_is_no_rail() {
+        // An invented quantized noise band around 0 V with its minimum -1 V hit 3 times.
+        let mut w = RailWatch::default();
+        let mut v = vec![0.0; 40];
+        for (k, x) in v.iter_mut().enumerate() {
+            *x = [0.0, 0.5, -0.5, 0.0, 0.5][k % 5];
+        }
+        v[3] = -1.0;
+        v[13] = -1.0;
+        v[23] = -1.0;
+        v.extend_from_slice(&[8.0, 13.0, 20.0, 20.0, 20.0, 6.0, 2.5]);
+        w.observe(&v);
+        let (r, _) = w.conclude("v", "V").unwrap();
+        assert_eq!(r.min_v, f64::NEG_INFINITY);
+        assert_eq!(r.max_v, 20.0);
+    }
+
+    #[test]
+    fn the_subsample_stays_bounded_and_uniform() {
+        let mut w = RailWatch::default();
+        let v: Vec<f64> = (0..(3 * KEPT_VALUES)).map(|k| k as f64).collect();
+        w.observe(&v);
+        assert!(w.kept.len() <= KEPT_VALUES);
+        assert_eq!(w.stride, 4);
+        assert_eq!(w.kept[1], 4.0);
+    }
+
+    #[test]
+    fn values_off_a_grid_have_no_step() {
+        let v = [0.0, 0.1, 0.1, 0.37, 0.52, 0.9, 1.13, 1.4, 2.0, 2.5];
+        assert_eq!(code_step(&v), None);
+        let g = [0.0, 0.25, 0.25, 0.75, 1.5, 2.0, -0.5, -1.0, 3.0, 3.25];
+        assert_eq!(code_step(&g), Some(0.25));
+        // Too few distinct values to tell a grid from chance.
+        assert_eq!(code_step(&[0.0, 0.25, 0.25, 0.75]), None);
+    }
+}

@@ -1,0 +1,182 @@
+//! Streaming: a capture of any length read in blocks of a bounded number of samples per
+//! channel, so later stages can work in flat memory. [`super::read_capture`] is built on it.
+
+use std::path::Path;
+
+use super::adc::RailWatch;
+use super::csv::CsvStream;
+use super::raw::RawStream;
+use super::wav::WavStream;
+use super::{csv, raw, wav, Capture, CaptureError, Format, ReadOptions};
+
+/// Samples per channel in a block unless [`BlockReader::set_block_len`] says otherwise.
+pub const DEFAULT_BLOCK_LEN: usize = 1 << 16;
+
+/// Consecutive samples of every channel.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct Block {
+    /// Index of the block's first sample in the capture (time `t0_s + index * dt`).
+    pub first_sample: u64,
+    /// One vector per channel, in the order of [`Capture::channels`], all the same length.
+    pub channels: Vec<Vec<f64>>,
+}
+
+impl Block {
+    /// Samples per channel in this block.
+    pub fn len(&self) -> usize {
+        self.channels.first().map_or(0, Vec::len)
+    }
+
+    pub fn is_empty(&self) -> bool {
+        self.len() == 0
+    }
+}
+
+enum Source {
+    Csv(Box<CsvStream>),
+    Wav(Box<WavStream>),
+    Raw(Box<RawStream>),
+}
+
+/// Reads a capture block by block. The header describes the capture (channels with empty
+/// samples); rails seen in CSV data and warnings found while reading are added by
+/// [`BlockReader::finish`].
+pub struct BlockReader {
+    header: Capture,
+    source: Source,
+    block_len: usize,
+    next_sample: u64,
+    /// `--scale` factor per channel.
+    factors: Vec<f64>,
+    /// Extremes seen per channel (CSV only; WAV and raw rails come from full scale).
+    rails: Option<Vec<RailWatch>>,
+    record_length: Option<u64>,
+    done: bool,
+}
+
+/// Opens a capture for streaming. The format comes from `opts.raw`, then the file's leading
+/// bytes (`RIFF....WAVE`), then its extension; anything else is read as delimited text.
+pub fn open_blocks(path: &Path, opts: &ReadOptions) -> Result<BlockReader, CaptureError> {
+    let (mut header, source, record_length) = match super::detect_format(path, opts)? {
+        Format::Raw => {
+            let kind = opts.raw.unwrap_or(super::RawKind::F64);
+            let (c, s) = raw::open(path, kind, opts)?;
+            (c, Source::Raw(Box::new(s)), None)
+        }
+        Format::Wav => {
+            let (c, s) = wav::open(path, opts)?;
+            (c, Source::Wav(Box::new(s)), None)
+        }
+        Format::Csv => {
+            let (c, s, n) = csv::open(path, opts)?;
+            (c, Source::Csv(Box::new(s)), n)
+        }
+    };
+    let factors = super::apply_scale_options(&mut header, opts)?;
+    let rails = matches!(source, Source::Csv(_)).then(|| {
+        header
+            .channels
+            .iter()
+            .map(|_| RailWatch::default())
+            .collect()
+    });
+    Ok(BlockReader {
+        header,
+        source,
+        block_len: DEFAULT_BLOCK_LEN,
+        next_sample: 0,
+        factors,
+        rails,
+        record_length,
+        done: false,
+    })
+}
+
+impl BlockReader {
+    /// What the capture is: format, time base, channels (with empty samples), notes.
+    pub fn header(&self) -> &Capture {
+        &self.header
+    }
+
+    /// Sets the most samples per channel a block holds (at least 1).
+    pub fn set_block_len(&mut self, n: usize) {
+        self.block_len = n.max(1);
+    }
+
+    /// The next block, or `None` after the last sample.
+    pub fn next_block(&mut self) -> Result<Option<Block>, CaptureError> {
+        let mut b = Block::default();
+        Ok(self.next_block_into(&mut b)?.then_some(b))
+    }
+
+    /// Fills `block` with the next samples, reusing its buffers; `false` after the last.
+    pub fn next_block_into(&mut self, block: &mut Block) -> Result<bool, CaptureError> {
+        let nch = self.header.channels.len();
+        block.channels.resize_with(nch, Vec::new);
+        for c in &mut block.channels {
+            c.clear();
+        }
+        block.first_sample = self.next_sample;
+        if self.done {
+            return Ok(false);
+        }
+        let r = match &mut self.source {
+            Source::Csv(s) => s.fill(&mut block.channels, self.block_len),
+            Source::Wav(s) => s.fill(&mut block.channels, self.block_len),
+            Source::Raw(s) => s.fill(&mut block.channels, self.block_len),
+        };
+        let n = match r {
+            Ok(n) => n,
+            Err(e) => {
+                self.done = true;
+                return Err(e);
+            }
+        };
+        if n == 0 {
+            self.done = true;
+            return Ok(false);
+        }
+        for (k, c) in block.channels.iter_mut().enumerate() {
+            let f = self.factors.get(k).copied().unwrap_or(1.0);
+            if f != 1.0 {
+                c.iter_mut().for_each(|x| *x *= f);
+            }
+            if let Some(w) = self.rails.as_mut().and_then(|r| r.get_mut(k)) {
+                w.observe(c);
+            }
+        }
+        self.next_sample += n as u64;
+        Ok(true)
+    }
+
+    /// Samples per channel read so far.
+    pub fn samples_read(&self) -> u64 {
+        self.next_sample
+    }
+
+    /// The header completed with what reading found: ADC rails and code step seen in CSV
+    /// data, time-step warnings, a record length that does not match.
+    pub fn finish(self) -> Capture {
+        let mut cap = self.header;
+        if let Source::Csv(s) = &self.source {
+            cap.warnings.extend(s.end_warnings());
+        }
+        if let Some(n) = self.record_length {
+            if n != self.next_sample && self.done {
+                cap.warnings.push(format!(
+                    "the file states a record length of {n}, but {} rows were read",
+                    self.next_sample
+                ));
+            }
+        }
+        if let Some(rails) = self.rails {
+            for (ch, w) in cap.channels.iter_mut().zip(rails) {
+                if let Some((range, note)) = w.conclude(&ch.name, &ch.unit) {
+                    ch.adc = Some(range);
+                    cap.notes.push(note);
+                }
+            }
+        }
+        cap
+    }
+}

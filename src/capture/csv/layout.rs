@@ -1,0 +1,239 @@
+//! Which delimiter and decimal mark a file uses, and which lines are data.
+
+use super::preamble::split_meta;
+use super::row_cells;
+use super::text::SniffLine;
+use crate::capture::cells::{parse_number, trim_cell, Delim};
+use crate::capture::columns::{self, MetaKey};
+use crate::capture::ReadOptions;
+
+/// Delimiter and decimal mark candidates in order of preference.
+fn candidates(opts: &ReadOptions) -> Vec<(Delim, bool)> {
+    let delims: Vec<Delim> = match opts.delimiter {
+        Some(b' ') => vec![Delim::Whitespace],
+        Some(d) => vec![Delim::Byte(d)],
+        None => vec![
+            Delim::Byte(b','),
+            Delim::Byte(b';'),
+            Delim::Byte(b'\t'),
+            Delim::Whitespace,
+            Delim::None,
+        ],
+    };
+    let marks: Vec<bool> = match opts.decimal_comma {
+        Some(c) => vec![c],
+        None => vec![false, true],
+    };
+    let mut out = Vec::new();
+    for &d in &delims {
+        for &m in &marks {
+            // A comma cannot be both; a forced pair is kept so the user gets what was asked.
+            if m && d == Delim::Byte(b',') && opts.delimiter.is_none() {
+                continue;
+            }
+            out.push((d, m));
+        }
+    }
+    out
+}
+
+/// Number of fully numeric rows with the most common cell count, and that count.
+fn score(lines: &[SniffLine], delim: Delim, comma: bool) -> (usize, usize) {
+    let mut counts: Vec<(usize, usize)> = Vec::new();
+    for l in lines {
+        if l.text.trim().is_empty() {
+            continue;
+        }
+        let cells = row_cells(&l.text, delim);
+        if cells
+            .iter()
+            .all(|c| parse_number(trim_cell(c), comma).is_ok())
+        {
+            match counts.iter_mut().find(|(n, _)| *n == cells.len()) {
+                Some((_, k)) => *k += 1,
+                None => counts.push((cells.len(), 1)),
+            }
+        }
+    }
+    counts
+        .into_iter()
+        .max_by_key(|&(n, k)| (k, n))
+        .map_or((0, 0), |(n, k)| (k, n))
+}
+
+/// Whether the line above the first row of `n` numbers has `n` cells and no number.
+fn header_agrees(lines: &[SniffLine], delim: Delim, comma: bool, n: usize) -> bool {
+    let numeric = |l: &SniffLine| {
+        let cells = row_cells(&l.text, delim);
+        cells.len() == n
+            && cells
+                .iter()
+                .all(|c| parse_number(trim_cell(c), comma).is_ok())
+    };
+    let Some(first) = lines.iter().position(numeric) else {
+        return false;
+    };
+    lines[..first]
+        .iter()
+        .rev()
+        .find(|l| !l.text.trim().is_empty())
+        .is_some_and(|l| {
+            let cells = row_cells(&l.text, delim);
+            cells.len() == n
+                && cells
+                    .iter()
+                    .all(|c| parse_number(trim_cell(c), comma).is_err())
+        })
+}
+
+/// A row that belongs to the data block: its first cell is a number, or most cells are.
+/// A text cell or a missing cell in a data row keeps it here, so the row gets an error
+/// naming its line instead of being taken for a header.
+fn data_like(text: &str, delim: Delim, comma: bool) -> bool {
+    let cells = row_cells(text, delim);
+    let numeric = cells
+        .iter()
+        .filter(|c| parse_number(trim_cell(c), comma).is_ok())
+        .count();
+    let first = cells
+        .first()
+        .is_some_and(|c| parse_number(trim_cell(c), comma).is_ok());
+    first || numeric * 2 > cells.len()
+}
+
+/// Delimiter, decimal mark and cell count: the pair under which most rows read as numbers.
+/// Ties go to the pair under which a header above the rows has as many cells as they do:
+/// one column of `1,25` is decimal-comma numbers under a one-cell header, not two columns.
+/// Without a header that case stays ambiguous (`--decimal comma` settles it).
+pub(super) fn pick_delimiter(
+    lines: &[SniffLine],
+    opts: &ReadOptions,
+) -> Option<(Delim, bool, usize)> {
+    let mut best: Option<(Delim, bool, (usize, bool, usize))> = None;
+    for (d, m) in candidates(opts) {
+        let (k, n) = score(lines, d, m);
+        let key = (k, header_agrees(lines, d, m, n), n);
+        if k > 0 && best.is_none_or(|(_, _, b)| key > b) {
+            best = Some((d, m, key));
+        }
+    }
+    best.map(|(d, m, (_, _, n))| (d, m, n))
+}
+
+/// Where the rows are, as indices into the sniffed lines.
+pub(super) struct Located {
+    pub(super) data_idx: usize,
+    pub(super) header_idx: Option<usize>,
+    pub(super) units_idx: Option<usize>,
+}
+
+/// Rows in a row that must look like data to start the data block.
+const DATA_RUN: usize = 5;
+
+/// The data block starts at the first run of rows that look like data; a header (and a
+/// units row under it) sits directly above it: as many cells, none a number, not a
+/// preamble key.
+pub(super) fn locate_rows(
+    lines: &[SniffLine],
+    delim: Delim,
+    comma: bool,
+    n_fields: usize,
+) -> Option<Located> {
+    let nonblank: Vec<usize> = (0..lines.len())
+        .filter(|&k| !lines[k].text.trim().is_empty())
+        .collect();
+    let is_data: Vec<bool> = nonblank
+        .iter()
+        .map(|&k| data_like(&lines[k].text, delim, comma))
+        .collect();
+    let start_pos = (0..nonblank.len()).find(|&p| {
+        let end = (p + DATA_RUN).min(nonblank.len());
+        is_data[p..end].iter().all(|&d| d)
+    })?;
+    let data_idx = nonblank[start_pos];
+    let is_meta_key = |text: &str| {
+        let (key, _) = split_meta(text, delim);
+        columns::classify_key(&key) != MetaKey::Other
+    };
+    let header_fits = |text: &str| {
+        let cells = row_cells(text, delim);
+        cells.len() == n_fields
+            && cells
+                .iter()
+                .all(|c| parse_number(trim_cell(c), comma).is_err())
+            && !is_meta_key(text)
+    };
+    let above = |pos: usize| -> Option<usize> { pos.checked_sub(1).map(|p| nonblank[p]) };
+    let mut header_idx = None;
+    let mut units_idx = None;
+    if let Some(h) = above(start_pos) {
+        if header_fits(&lines[h].text) {
+            let cells = row_cells(&lines[h].text, delim);
+            let all_units = cells
+                .iter()
+                .all(|c| columns::is_unit_cell(&String::from_utf8_lossy(trim_cell(c))));
+            let h2 = start_pos.checked_sub(1).and_then(above);
+            if all_units && h2.is_some_and(|h2| header_fits(&lines[h2].text)) {
+                units_idx = Some(h);
+                header_idx = h2;
+            } else {
+                header_idx = Some(h);
+            }
+        }
+    }
+    Some(Located {
+        data_idx,
+        header_idx,
+        units_idx,
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use std::borrow::Cow;
+
+    fn lines(text: &str) -> Vec<SniffLine<'_>> {
+        text.lines()
+            .enumerate()
+            .map(|(k, l)| SniffLine {
+                no: k + 1,
+                offset: 0,
+                text: Cow::Borrowed(l),
+            })
+            .collect()
+    }
+
+    #[test]
+    fn delimiter_and_decimal_mark_are_sniffed() {
+        let o = ReadOptions::default();
+        let l = lines("a;b\n1,5;2\n-3,25;4e-3\n");
+        assert_eq!(pick_delimiter(&l, &o), Some((Delim::Byte(b';'), true, 2)));
+        let l = lines("t,v\n0,1.5\n1,2.5\n");
+        assert_eq!(pick_delimiter(&l, &o), Some((Delim::Byte(b','), false, 2)));
+        let l = lines("0.5 1.5\t2\n0.25 3 4\n");
+        assert_eq!(pick_delimiter(&l, &o), Some((Delim::Whitespace, false, 3)));
+        // A one-cell header settles a column of decimal-comma numbers.
+        let l = lines("v [V]\n1,25\n2,5\n");
+        let (_, comma, n) = pick_delimiter(&l, &o).unwrap();
+        assert!(comma);
+        assert_eq!(n, 1);
+    }
+
+    #[test]
+    fn rows_header_and_units_row_are_located() {
+        let l = lines("Sample rate: 1 GHz\ntime,v\ns,V\n0,1\n1e-9,2\n2e-9,3\n");
+        let found = locate_rows(&l, Delim::Byte(b','), false, 2).unwrap();
+        assert_eq!(found.data_idx, 3);
+        assert_eq!(found.header_idx, Some(1));
+        assert_eq!(found.units_idx, Some(2));
+        // A preamble key directly above headerless rows is not a header.
+        let l = lines("Units,V\n1,2\n3,4\n");
+        let found = locate_rows(&l, Delim::Byte(b','), false, 2).unwrap();
+        assert_eq!((found.data_idx, found.header_idx), (1, None));
+        // A text cell in the first data row keeps the row in the data block.
+        let l = lines("t,v\n0,open\n1,2\n2,3\n");
+        let found = locate_rows(&l, Delim::Byte(b','), false, 2).unwrap();
+        assert_eq!((found.data_idx, found.header_idx), (1, Some(0)));
+    }
+}

@@ -1,0 +1,158 @@
+//! The start of a text file as lines: refusing binary files, skipping a byte-order mark,
+//! bounding the bytes and lines looked at.
+
+use std::borrow::Cow;
+use std::path::Path;
+
+use super::csv_err;
+use crate::capture::lines::MAX_LINE_BYTES;
+use crate::capture::CaptureError;
+
+/// How much of the start of a file is read to sniff its layout: twice the longest line, so
+/// a line too long to accept that starts in the first half is seen whole enough to refuse.
+pub(super) const SNIFF_BYTES: usize = 2 * MAX_LINE_BYTES;
+pub(super) const UTF8_BOM: &[u8] = &[0xEF, 0xBB, 0xBF];
+/// Most lines looked at while sniffing.
+pub(super) const SNIFF_LINES: usize = 4000;
+
+/// One line of the sniffed start of the file.
+pub(super) struct SniffLine<'a> {
+    pub(super) no: usize,
+    /// Byte offset of the line in the file.
+    pub(super) offset: usize,
+    pub(super) text: Cow<'a, str>,
+}
+
+/// Refuses files that are not text: a NUL byte, control characters, or mostly invalid
+/// UTF-8 (a single Latin-1 `µ` is text, a sample dump is not).
+pub(super) fn check_text(
+    file: &Path,
+    head: &[u8],
+    notes: &mut Vec<String>,
+) -> Result<bool, CaptureError> {
+    let binary = |offset: usize, what: &str| {
+        CaptureError::Binary {
+        file: file.to_path_buf(),
+        offset: offset as u64,
+        message: format!(
+            "looks like a binary file ({what}); expected text rows of numbers (for a raw sample dump give --raw, for WAV use a .wav file)"
+        ),
+    }
+    };
+    if let Some(k) = memchr::memchr(0, head) {
+        return Err(binary(k, "NUL byte"));
+    }
+    let controls: Vec<usize> = head
+        .iter()
+        .enumerate()
+        .filter(|(_, &b)| (b < 0x20 && !matches!(b, b'\t' | b'\n' | b'\r' | 0x0c)) || b == 0x7f)
+        .map(|(k, _)| k)
+        .take(8)
+        .collect();
+    if let Some(&first) = controls.first() {
+        if controls.len() >= 4 || head.len() < 64 {
+            return Err(binary(first, "control characters"));
+        }
+    }
+    match std::str::from_utf8(head) {
+        Ok(_) => Ok(false),
+        Err(e) if e.error_len().is_none() => Ok(false),
+        Err(e) => {
+            let high = head.iter().filter(|&&b| b >= 0x80).count();
+            if high * 100 > head.len() {
+                Err(binary(e.valid_up_to(), "invalid UTF-8"))
+            } else {
+                notes.push("text is not UTF-8; read as Latin-1".to_string());
+                Ok(true)
+            }
+        }
+    }
+}
+
+/// Splits the sniffed bytes into lines, dropping a last line cut off by the sniff limit.
+pub(super) fn split_lines<'a>(
+    file: &Path,
+    head: &'a [u8],
+    complete: bool,
+    latin1: bool,
+) -> Result<Vec<SniffLine<'a>>, CaptureError> {
+    let mut out = Vec::new();
+    // A UTF-8 byte-order mark (Windows editors write one) is not part of the first cell.
+    let mut start = if head.starts_with(UTF8_BOM) { 3 } else { 0 };
+    let mut no = 1usize;
+    while start < head.len() && out.len() < SNIFF_LINES {
+        let (end, next) = match memchr::memchr(b'\n', &head[start..]) {
+            Some(k) => (start + k, start + k + 1),
+            None if complete => (head.len(), head.len()),
+            None => {
+                if head.len() - start >= MAX_LINE_BYTES {
+                    return Err(csv_err(
+                        file,
+                        no,
+                        1,
+                        format!(
+                            "line is longer than {} KiB; expected rows of numbers",
+                            MAX_LINE_BYTES / 1024
+                        ),
+                    ));
+                }
+                break;
+            }
+        };
+        let mut bytes = &head[start..end];
+        if bytes.last() == Some(&b'\r') {
+            bytes = &bytes[..bytes.len() - 1];
+        }
+        let text = match std::str::from_utf8(bytes) {
+            Ok(s) => Cow::Borrowed(s),
+            Err(_) if latin1 => Cow::Owned(bytes.iter().map(|&b| b as char).collect()),
+            Err(_) => Cow::Owned(String::from_utf8_lossy(bytes).into_owned()),
+        };
+        out.push(SniffLine {
+            no,
+            offset: start,
+            text,
+        });
+        no += 1;
+        start = next;
+    }
+    Ok(out)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn text_and_binary_are_told_apart() {
+        let f = Path::new("x.csv");
+        let mut notes = Vec::new();
+        assert!(!check_text(f, b"t,v\n0,1\n", &mut notes).unwrap());
+        // One Latin-1 micro sign in a header is still text.
+        let mut latin = b"t [\xB5s],v\n".to_vec();
+        latin.extend(std::iter::repeat_n(b'1', 200));
+        assert!(check_text(f, &latin, &mut notes).unwrap());
+        assert_eq!(notes, ["text is not UTF-8; read as Latin-1"]);
+        let e = check_text(f, b"12\x00\x01", &mut notes)
+            .unwrap_err()
+            .to_string();
+        assert!(
+            e.contains("byte 2: looks like a binary file (NUL byte)"),
+            "{e}"
+        );
+    }
+
+    #[test]
+    fn lines_keep_their_numbers_and_offsets() {
+        let f = Path::new("x.csv");
+        let l = split_lines(f, b"\xEF\xBB\xBFa\r\nbb\ncc", true, false).unwrap();
+        let got: Vec<_> = l
+            .iter()
+            .map(|l| (l.no, l.offset, l.text.as_ref()))
+            .collect();
+        assert_eq!(got, [(1, 3, "a"), (2, 6, "bb"), (3, 9, "cc")]);
+        // A last line cut by the sniff limit is dropped.
+        let l = split_lines(f, b"a\nbb\ncc", false, false).unwrap();
+        assert_eq!(l.len(), 2);
+    }
+}

@@ -1,0 +1,254 @@
+//! The time column: the sample interval it holds, and the checks on each row (backwards,
+//! gaps, jitter), allowing for the resolution the times were printed with.
+
+use std::path::Path;
+
+use super::text::SniffLine;
+use super::{csv_err, row_cells};
+use crate::capture::cells::{last_digit_place, parse_number, trim_cell, Delim};
+use crate::capture::CaptureError;
+
+/// A time step this much longer than the sample interval is a gap, not jitter.
+pub(super) const GAP_FACTOR: f64 = 1.5;
+/// Relative step deviation above which time steps count as jittered.
+pub(super) const JITTER_FRACTION: f64 = 0.01;
+
+/// Digits after the decimal mark of a number cell's mantissa.
+pub(super) fn decimals(cell: &[u8]) -> usize {
+    let mantissa = cell
+        .iter()
+        .position(|&b| b == b'e' || b == b'E')
+        .map_or(cell, |k| &cell[..k]);
+    mantissa
+        .iter()
+        .position(|&b| b == b'.' || b == b',')
+        .map_or(0, |k| mantissa.len() - k - 1)
+}
+
+/// Time values of the first data rows, in the file's unit, with their printed resolution
+/// and number of decimals.
+pub(super) fn window_times(
+    lines: &[SniffLine],
+    col: usize,
+    n_fields: usize,
+    delim: Delim,
+    comma: bool,
+) -> Vec<(f64, f64, usize)> {
+    let mut out = Vec::new();
+    for l in lines {
+        if l.text.trim().is_empty() {
+            continue;
+        }
+        let cells = row_cells(&l.text, delim);
+        if cells.len() != n_fields {
+            break;
+        }
+        let Some(cell) = cells.get(col).map(|c| trim_cell(c)) else {
+            break;
+        };
+        match parse_number(cell, comma) {
+            Ok(t) => out.push((t, last_digit_place(cell), decimals(cell))),
+            Err(_) => break,
+        }
+    }
+    out
+}
+
+fn median(v: &mut [f64]) -> Option<f64> {
+    if v.is_empty() {
+        return None;
+    }
+    v.sort_by(|a, b| a.total_cmp(b));
+    Some(v[v.len() / 2])
+}
+
+/// Whether times rise in equal steps (a time column without a header says so).
+pub(super) fn looks_like_time(times: &[(f64, f64, usize)]) -> bool {
+    if times.len() < 4 {
+        return false;
+    }
+    let mut steps: Vec<f64> = times.windows(2).map(|w| w[1].0 - w[0].0).collect();
+    let Some(m) = median(&mut steps) else {
+        return false;
+    };
+    m > 0.0
+        && times.windows(2).all(|w| {
+            let tol = JITTER_FRACTION * m + w[0].1 + w[1].1;
+            (w[1].0 - w[0].0 - m).abs() <= tol
+        })
+}
+
+/// Per-row time checks while streaming.
+pub(super) struct TimeCheck {
+    /// Seconds per unit of the time column.
+    pub(super) factor: f64,
+    pub(super) dt_s: f64,
+    /// Times written in full (shortest round-trip form): no rounding to allow for.
+    pub(super) exact: bool,
+    /// How `dt_s` was found over the first rows (`median step`, `mean step`).
+    pub(super) dt_from: &'static str,
+    /// The printed resolution when it is coarser than a quarter step (checks are loose).
+    pub(super) coarse_resolution_s: Option<f64>,
+    pub(super) prev: Option<(f64, f64)>,
+    pub(super) steps: u64,
+    pub(super) jittered: u64,
+    pub(super) first_jitter_line: usize,
+    pub(super) max_deviation: f64,
+}
+
+pub(super) fn check_time(
+    file: &Path,
+    tc: &mut TimeCheck,
+    t_file: f64,
+    q_file: f64,
+    line: usize,
+) -> Result<(), CaptureError> {
+    let t = t_file * tc.factor;
+    let q = if tc.exact {
+        1e-6 * tc.dt_s + 1e-12 * t.abs()
+    } else {
+        q_file * tc.factor
+    };
+    if let Some((prev, prev_q)) = tc.prev {
+        let step = t - prev;
+        // Every check allows for rounding to the printed resolution of both times, so a
+        // coarsely printed column is checked only as far as its digits allow.
+        let rounding = q + prev_q;
+        if step < -rounding || (step <= 0.0 && rounding < 0.25 * tc.dt_s) {
+            return Err(csv_err(
+                file,
+                line,
+                1,
+                format!(
+                    "time goes backwards or repeats ({:e} s after {:e} s); expected rising time",
+                    crate::capture::sig(t),
+                    crate::capture::sig(prev)
+                ),
+            ));
+        }
+        tc.steps += 1;
+        if step > GAP_FACTOR * tc.dt_s + rounding {
+            return Err(csv_err(
+                file,
+                line,
+                1,
+                format!(
+                    "gap in the time column: a step of {:e} s where the sample interval is {:e} s (missing rows before this line?)",
+                    crate::capture::sig(step),
+                    crate::capture::sig(tc.dt_s)
+                ),
+            ));
+        }
+        let dev = (step - tc.dt_s).abs();
+        if dev > JITTER_FRACTION * tc.dt_s + rounding {
+            if tc.jittered == 0 {
+                tc.first_jitter_line = line;
+            }
+            tc.jittered += 1;
+            tc.max_deviation = tc.max_deviation.max(dev / tc.dt_s);
+        }
+    }
+    tc.prev = Some((t, q));
+    Ok(())
+}
+
+impl TimeCheck {
+    /// The sample interval and the checks for the rest of the column, from the times of the
+    /// first rows (in the file's unit; `factor` converts to seconds).
+    pub(super) fn from_first_rows(times: &[(f64, f64, usize)], factor: f64) -> Option<TimeCheck> {
+        let mut steps: Vec<f64> = times.windows(2).map(|w| w[1].0 - w[0].0).collect();
+        // A zero is exact in any format; it says nothing about the printed resolution.
+        let coarsest = times
+            .iter()
+            .filter(|t| t.0 != 0.0)
+            .map(|t| t.1)
+            .fold(0.0, f64::max)
+            * factor;
+        // A column printed more coarsely than it steps has a median step of zero; its mean
+        // step over the window still holds the interval.
+        let mean_step = match (times.first(), times.last()) {
+            (Some(f), Some(l)) if times.len() >= 2 => (l.0 - f.0) / (times.len() - 1) as f64,
+            _ => 0.0,
+        };
+        let med = median(&mut steps)
+            .filter(|&m| m > 0.0)
+            .or((mean_step > 0.0).then_some(mean_step))?;
+        // The last printed digit bounds the rounding of a time (`%.3e`, `%.6f`, `%g`).
+        // Shortest round-trip output of doubles (`3.0000000000000004e-9`) is exact: it shows
+        // as a varying number of decimals, 10 or more in some cells.
+        let nonzero: Vec<_> = times.iter().filter(|t| t.0 != 0.0).collect();
+        let same_decimals = nonzero.windows(2).all(|w| w[0].2 == w[1].2);
+        let exact = !same_decimals && nonzero.iter().any(|t| t.2 >= 10);
+        let q = |t: &(f64, f64, usize)| {
+            if exact {
+                1e-6 * med + 1e-12 * t.0.abs()
+            } else {
+                t.1
+            }
+        };
+        // Evenly printed steps: the mean over the window is the finer estimate. Any jitter:
+        // the median step, which the jitter does not pull.
+        let even = times
+            .windows(2)
+            .all(|w| (w[1].0 - w[0].0 - med).abs() <= JITTER_FRACTION * med + q(&w[0]) + q(&w[1]));
+        let dt = if even { mean_step } else { med } * factor;
+        Some(TimeCheck {
+            factor,
+            dt_s: dt,
+            exact,
+            dt_from: if even { "mean step" } else { "median step" },
+            coarse_resolution_s: (!exact && coarsest > 0.25 * dt).then_some(coarsest),
+            prev: None,
+            steps: 0,
+            jittered: 0,
+            first_jitter_line: 0,
+            max_deviation: 0.0,
+        })
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn fixed(times: &[f64], place: f64) -> Vec<(f64, f64, usize)> {
+        times.iter().map(|&t| (t, place, 3)).collect()
+    }
+
+    #[test]
+    fn interval_from_the_first_rows() {
+        // Times in us printed with 3 decimals: 2 ns steps.
+        let t = fixed(&[-0.004, -0.002, 0.0, 0.002, 0.004], 1e-3);
+        let c = TimeCheck::from_first_rows(&t, 1e-6).unwrap();
+        assert!((c.dt_s - 2e-9).abs() < 1e-21);
+        assert_eq!(c.dt_from, "mean step");
+        assert!(!c.exact);
+        // One step 10 % long: the median step, not the mean.
+        let t = fixed(&[0.0, 1.0, 2.0, 3.1, 4.1, 5.1], 1e-3);
+        let c = TimeCheck::from_first_rows(&t, 1.0).unwrap();
+        assert_eq!(c.dt_s, 1.0);
+        assert_eq!(c.dt_from, "median step");
+    }
+
+    #[test]
+    fn row_checks_allow_for_printed_rounding() {
+        let t = fixed(&[0.0, 1.0, 2.0, 3.0], 1e-3);
+        let mut c = TimeCheck::from_first_rows(&t, 1.0).unwrap();
+        let f = Path::new("r.csv");
+        check_time(f, &mut c, 0.0, 1e-3, 2).unwrap();
+        check_time(f, &mut c, 1.0, 1e-3, 3).unwrap();
+        // 1.5 % long beyond a 0.2 % rounding allowance: jitter, counted.
+        check_time(f, &mut c, 2.017, 1e-3, 4).unwrap();
+        assert_eq!((c.jittered, c.first_jitter_line), (1, 4));
+        let e = check_time(f, &mut c, 4.6, 1e-3, 5).unwrap_err().to_string();
+        assert!(e.contains("line 5, column 1: gap"), "{e}");
+        let mut c = TimeCheck::from_first_rows(&t, 1.0).unwrap();
+        check_time(f, &mut c, 3.0, 1e-3, 2).unwrap();
+        let e = check_time(f, &mut c, 2.0, 1e-3, 3).unwrap_err().to_string();
+        assert!(e.contains("time goes backwards"), "{e}");
+        // A repeat within the printed resolution of a coarse column is rounding.
+        let mut c = TimeCheck::from_first_rows(&t, 1.0).unwrap();
+        check_time(f, &mut c, 3.0, 1.0, 2).unwrap();
+        check_time(f, &mut c, 3.0, 1.0, 3).unwrap();
+    }
+}

@@ -1,0 +1,206 @@
+//! Raw little-endian sample dumps (`--raw i8|i16|i32|f32|f64`): interleaved frames of one
+//! sample per channel, no header.
+//!
+//! The sidecar (see [`super::sidecar`]) gives the channel count, names, scaling and the
+//! sample rate. Without a sidecar the dump is one channel `CH1`, samples as fractions of full
+//! scale (integers) or as stored (floats), and `--dt`/`--sample-rate` must give the rate.
+
+use std::fs::File;
+use std::io::{BufReader, Read, Seek, SeekFrom};
+use std::path::{Path, PathBuf};
+
+use super::sidecar::read_sidecar;
+use super::wav::{describe_channels, Scaling};
+use super::{Capture, CaptureError, Format, RawKind, ReadOptions};
+
+impl RawKind {
+    /// Bytes per sample.
+    pub fn bytes(self) -> usize {
+        match self {
+            RawKind::I8 => 1,
+            RawKind::I16 => 2,
+            RawKind::I32 | RawKind::F32 => 4,
+            RawKind::F64 => 8,
+        }
+    }
+
+    fn int_bits(self) -> Option<u32> {
+        match self {
+            RawKind::I8 => Some(8),
+            RawKind::I16 => Some(16),
+            RawKind::I32 => Some(32),
+            RawKind::F32 | RawKind::F64 => None,
+        }
+    }
+
+    fn name(self) -> &'static str {
+        match self {
+            RawKind::I8 => "i8",
+            RawKind::I16 => "i16",
+            RawKind::I32 => "i32",
+            RawKind::F32 => "f32",
+            RawKind::F64 => "f64",
+        }
+    }
+
+    /// Decodes one little-endian sample; `bytes` has exactly [`RawKind::bytes`] bytes.
+    fn decode(self, b: &[u8]) -> f64 {
+        fn arr<const N: usize>(b: &[u8]) -> [u8; N] {
+            let mut a = [0u8; N];
+            for (d, s) in a.iter_mut().zip(b) {
+                *d = *s;
+            }
+            a
+        }
+        match self {
+            RawKind::I8 => f64::from(i8::from_le_bytes(arr(b))),
+            RawKind::I16 => f64::from(i16::from_le_bytes(arr(b))),
+            RawKind::I32 => f64::from(i32::from_le_bytes(arr(b))),
+            RawKind::F32 => f64::from(f32::from_le_bytes(arr(b))),
+            RawKind::F64 => f64::from_le_bytes(arr(b)),
+        }
+    }
+}
+
+/// Streaming reader of a raw dump.
+pub(crate) struct RawStream {
+    file: PathBuf,
+    reader: BufReader<File>,
+    kind: RawKind,
+    scalings: Vec<Scaling>,
+    data_offset: u64,
+    frames_total: u64,
+    frames_read: u64,
+    buf: Vec<u8>,
+}
+
+/// Opens a raw dump and describes its channels.
+pub(crate) fn open(
+    path: &Path,
+    kind: RawKind,
+    opts: &ReadOptions,
+) -> Result<(Capture, RawStream), CaptureError> {
+    let io = |source| CaptureError::Io {
+        file: path.to_path_buf(),
+        source,
+    };
+    let mut f = File::open(path).map_err(io)?;
+    let file_len = f.metadata().map_err(io)?.len();
+    let mut cap = Capture {
+        source: path.to_path_buf(),
+        format: Format::Raw,
+        sample_interval_s: 0.0,
+        t0_s: 0.0,
+        channels: Vec::new(),
+        metadata: Vec::new(),
+        notes: vec![format!("raw little-endian {} samples", kind.name())],
+        warnings: Vec::new(),
+    };
+    let sidecar = read_sidecar(path)?;
+    let n_channels = sidecar.as_ref().map_or(1, |s| s.1.channels.len());
+    let d = describe_channels(
+        path,
+        n_channels,
+        kind.int_bits(),
+        None,
+        sidecar.as_ref(),
+        opts,
+        &mut cap,
+    )?;
+    let data_offset = sidecar
+        .as_ref()
+        .and_then(|s| s.1.data_offset_bytes)
+        .unwrap_or(0);
+    if data_offset > file_len {
+        return Err(CaptureError::Binary {
+            file: path.to_path_buf(),
+            offset: file_len,
+            message: format!(
+                "the sidecar says the samples start at byte {data_offset}, past the end of the file"
+            ),
+        });
+    }
+    let frame_bytes = (kind.bytes() * n_channels) as u64;
+    let data_len = file_len - data_offset;
+    let frames_total = data_len / frame_bytes;
+    let leftover = data_len % frame_bytes;
+    if frames_total == 0 {
+        return Err(CaptureError::Binary {
+            file: path.to_path_buf(),
+            offset: data_offset,
+            message: format!(
+                "no complete frame ({frame_bytes} bytes: {n_channels} channel(s) of {}); expected sample data",
+                kind.name()
+            ),
+        });
+    }
+    if leftover != 0 {
+        cap.warnings.push(format!(
+            "byte {}: the file ends inside a frame; the last {leftover} bytes are left out (frames are {frame_bytes} bytes: {n_channels} channel(s) of {})",
+            data_offset + frames_total * frame_bytes,
+            kind.name()
+        ));
+    }
+    if data_offset > 0 {
+        cap.notes
+            .push(format!("samples start at byte {data_offset} (sidecar)"));
+    }
+    f.seek(SeekFrom::Start(data_offset)).map_err(io)?;
+    cap.channels = d.channels;
+    cap.sample_interval_s = d.sample_interval_s;
+    cap.t0_s = d.t0_s;
+    Ok((
+        cap,
+        RawStream {
+            file: path.to_path_buf(),
+            reader: BufReader::with_capacity(1 << 18, f),
+            kind,
+            scalings: d.scalings,
+            data_offset,
+            frames_total,
+            frames_read: 0,
+            buf: Vec::new(),
+        },
+    ))
+}
+
+impl RawStream {
+    /// Appends up to `max` frames; returns how many were read.
+    pub(crate) fn fill(&mut self, out: &mut [Vec<f64>], max: usize) -> Result<usize, CaptureError> {
+        let nch = self.scalings.len();
+        let sb = self.kind.bytes();
+        let frame_bytes = sb * nch;
+        let frames = (max as u64).min(self.frames_total - self.frames_read) as usize;
+        if frames == 0 {
+            return Ok(0);
+        }
+        self.buf.resize(frames * frame_bytes, 0);
+        let start = self.data_offset + self.frames_read * frame_bytes as u64;
+        self.reader
+            .read_exact(&mut self.buf)
+            .map_err(|e| CaptureError::Binary {
+                file: self.file.clone(),
+                offset: start,
+                message: format!("cannot read {} bytes of samples: {e}", self.buf.len()),
+            })?;
+        for (f, frame) in self.buf.chunks_exact(frame_bytes).enumerate() {
+            for (ch, (bytes, s)) in frame.chunks_exact(sb).zip(&self.scalings).enumerate() {
+                let x = self.kind.decode(bytes);
+                if !x.is_finite() {
+                    return Err(CaptureError::Binary {
+                        file: self.file.clone(),
+                        offset: start + (f * frame_bytes + ch * sb) as u64,
+                        message: format!(
+                            "sample is {x}; expected a finite number (NaN and infinity cannot be measured)"
+                        ),
+                    });
+                }
+                if let Some(v) = out.get_mut(ch) {
+                    v.push(x * s.gain + s.offset);
+                }
+            }
+        }
+        self.frames_read += frames as u64;
+        Ok(frames)
+    }
+}
