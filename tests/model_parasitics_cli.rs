@@ -84,7 +84,7 @@ wrdata {} v(sw)
 }
 
 #[test]
-#[ignore = "needs the CSV reader from the capture branch; run after the merge"]
+
 fn added_capacitance_from_two_csv_captures() {
     let dir = tempfile::tempdir().unwrap();
     let (Some(bare), Some(loaded)) = (
