@@ -220,21 +220,21 @@ pub fn two_state_levels(
         .iter()
         .copied()
         .find(|&k| (centre(k) - centre(first)).abs() >= min_separation_v)?;
+    // The median of the samples near the mode, re-centred a few times, undoes the bin's
+    // quantisation without being pulled by the transitions that pass through.
     let refine = |k: usize| -> f64 {
-        let c = centre(k);
-        let w = resolution_v.max(bin);
-        let (mut s, mut n) = (0.0, 0.0);
-        for &x in v {
-            if (x - c).abs() <= w {
-                s += x;
-                n += 1.0;
+        let mut c = centre(k);
+        let w = 2.0 * resolution_v.max(bin);
+        let mut near: Vec<f64> = Vec::new();
+        for _ in 0..3 {
+            near.clear();
+            near.extend(v.iter().copied().filter(|x| (x - c).abs() <= w));
+            match median_in_place(&mut near) {
+                Some(m) => c = m,
+                None => break,
             }
         }
-        if n > 0.0 {
-            s / n
-        } else {
-            c
-        }
+        c
     };
     let (a, b) = (refine(first), refine(second));
     let (ca, cb) = (smooth[first], smooth[second]);

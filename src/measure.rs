@@ -229,7 +229,9 @@ pub fn measure_trace(
         PolarityChoice::Up => Polarity::Up,
         PolarityChoice::Down => Polarity::Down,
         PolarityChoice::Auto => {
-            if hi - states.high_v >= states.low_v - lo {
+            // Low-side switching is the common case; down only when the downward
+            // excursion clearly wins.
+            if states.low_v - lo <= hi - states.high_v + resolution {
                 Polarity::Up
             } else {
                 Polarity::Down
@@ -300,7 +302,9 @@ pub fn measure_trace(
         }
 
         // Cross-check of the histogram levels with the local ones.
-        let tol = (3.0 * sigma + adc_step_v).max(0.02 * step);
+        // The local medians are precise to a fraction of the noise, so a disagreement of
+        // one noise deviation (or half a code) already biases every level-relative figure.
+        let tol = sigma.max(0.5 * adc_step_v).max(0.002 * step);
         let local_on = levels::median(&befores);
         let local_off = levels::median(&settleds);
         let mut level_notes = Vec::new();

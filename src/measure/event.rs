@@ -159,10 +159,12 @@ pub fn measure_event(cx: &Context, w: &Window) -> (Event, LocalLevels) {
     };
     let ys: Vec<f64> = (p..ae).map(|k| cx.y(k)).collect();
     let ys_smooth = moving_average(&ys, smooth_w);
-    let lobe_end = ys_smooth
-        .iter()
-        .position(|&y| y < cx.noise_band())
-        .map(|k| p + k);
+    let lobe_end = Some(
+        ys_smooth
+            .iter()
+            .position(|&y| y <= cx.noise_band())
+            .map_or(ae - 1, |k| p + k),
+    );
     let mut plateau_v: Option<f64> = None;
     let decay_end_x = lobe_end.and_then(|le| {
         let lobe = ys.get(..le - p)?;
@@ -172,18 +174,22 @@ pub fn measure_event(cx: &Context, w: &Window) -> (Event, LocalLevels) {
         let is_plateau = lobe.len() >= 10
             && med > cx.noise_band()
             && near as f64 >= PLATEAU_FRACTION * lobe.len() as f64;
-        let thr = if is_plateau {
-            plateau_v = Some(med);
-            med / 2.0
-        } else {
-            0.0
-        };
-        // Refine on the raw samples: the last time the signal was above the threshold.
+        // Refine on the raw samples: the last fall through the threshold before the lobe
+        // ended (half the plateau; zero for a lobe, or the noise band when the lobe only
+        // sinks back onto the off level without crossing it).
         let search_to = (le + smooth_w).min(ae - 1);
-        (p..search_to)
-            .rev()
-            .find(|&k| cx.y(k) >= thr && cx.y(k + 1) < thr)
-            .and_then(|k| crossing_index(v, k, cx.v_off + s * thr))
+        let last_fall = |thr: f64| {
+            (p..search_to)
+                .rev()
+                .find(|&k| cx.y(k) >= thr && cx.y(k + 1) < thr)
+                .and_then(|k| crossing_index(v, k, cx.v_off + s * thr))
+        };
+        if is_plateau {
+            plateau_v = Some(med);
+            last_fall(med / 2.0)
+        } else {
+            last_fall(0.0).or_else(|| last_fall(cx.noise_band().max(1e-9 * step)))
+        }
     });
     let decay_time_s = decay_end_x.map(|x| t_of(x) - t_edge_s);
 

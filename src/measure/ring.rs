@@ -66,6 +66,22 @@ pub fn analyse(y: &[f64], dt_s: f64, band: f64) -> Option<Ring> {
             last_opposite = Some(k);
         }
     }
+    // Once the swings have shrunk to a few percent of the first, an error in the off level
+    // moves the crossings noticeably; stop there.
+    let amp = |a: usize, b: usize| {
+        y.get(a..b.min(y.len()))
+            .map_or(0.0, |seg| seg.iter().fold(0f64, |m, x| m.max(x.abs())))
+    };
+    let first_amp = amp(0, crossings.first().map_or(0, |c| c.0 as usize + 1));
+    let keep_floor = (3.0 * band).max(0.03 * first_amp);
+    let mut keep = crossings.len();
+    for k in 1..crossings.len() {
+        if amp(crossings[k - 1].0 as usize, crossings[k].0 as usize + 1) < keep_floor {
+            keep = k;
+            break;
+        }
+    }
+    crossings.truncate(keep);
     if crossings.len() < 3 {
         return None;
     }
@@ -104,7 +120,9 @@ pub fn analyse(y: &[f64], dt_s: f64, band: f64) -> Option<Ring> {
             }
         }
     }
-    let floor = 5.0 * band;
+    // Small peaks carry the error of the off level (and the noise) as a large share of
+    // their height; the fit keeps those above a tenth of the first.
+    let floor = (5.0 * band).max(0.1 * peaks.first().copied().unwrap_or(0.0));
     let usable: Vec<f64> = peaks
         .iter()
         .copied()
