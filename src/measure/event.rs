@@ -105,8 +105,12 @@ pub fn measure_event(cx: &Context, w: &Window) -> (Event, LocalLevels) {
     let ae = ae.max(e + 2).min(n);
 
     // Peak: the extreme sample in the spike's direction.
+    // The first of equal extremes (a clipped run starts there).
     let p = (e + 1..ae)
-        .max_by(|&a, &b| cx.y(a).total_cmp(&cx.y(b)))
+        .fold(None::<usize>, |best, k| match best {
+            Some(b) if cx.y(b) >= cx.y(k) => Some(b),
+            _ => Some(k),
+        })
         .unwrap_or(e + 1)
         .min(n - 1);
     let peak_v = v[p];
@@ -132,18 +136,38 @@ pub fn measure_event(cx: &Context, w: &Window) -> (Event, LocalLevels) {
         .max_by(f64::total_cmp)
         .filter(|d| *d > 0.0);
 
+    // The lobe's shape is judged on a lightly smoothed copy when the samples are noisy (a
+    // centred moving average, unbiased on straight stretches), so a noise sample on a clamp
+    // plateau is not taken for its top; times are then refined on the raw samples.
+    let smooth_w = if cx.noisy() { 16 } else { 1 };
+    let ys: Vec<f64> = (e..ae).map(|k| cx.y(k)).collect();
+    let sm = moving_average(&ys, smooth_w);
+    let ps = sm
+        .iter()
+        .enumerate()
+        .fold(None::<(usize, f64)>, |best, (j, &y)| match best {
+            Some((b, yb)) if yb >= y => Some((b, yb)),
+            _ => Some((j, y)),
+        })
+        .map_or(0, |(j, _)| j);
+    let y_top = sm.get(ps).copied().unwrap_or(y_peak);
+    let cross_sm = |j: usize, level: f64| -> Option<f64> {
+        let (a, b) = (*sm.get(j)?, *sm.get(j + 1)?);
+        (a != b).then(|| j as f64 + (level - a) / (b - a))
+    };
+
     // Main lobe width at half its overshoot above the off level.
-    let half = y_peak / 2.0;
-    let spike_width_s = if y_peak > cx.noise_band() {
-        let left = (w.start..p)
+    let half = y_top / 2.0;
+    let spike_width_s = if y_top > cx.noise_band() {
+        let left = (0..ps)
             .rev()
-            .find(|&k| cx.y(k) < half)
-            .and_then(|k| crossing_index(v, k, cx.v_off + s * half));
-        let right = (p..ae - 1)
-            .find(|&k| cx.y(k + 1) < half)
-            .and_then(|k| crossing_index(v, k, cx.v_off + s * half));
+            .find(|&j| sm[j] < half)
+            .and_then(|j| cross_sm(j, half));
+        let right = (ps..sm.len().saturating_sub(1))
+            .find(|&j| sm[j + 1] < half)
+            .and_then(|j| cross_sm(j, half));
         match (left, right) {
-            (Some(a), Some(b)) => Some((b - a) * cx.dt_s),
+            (Some(a), Some(b)) if b > a => Some((b - a) * cx.dt_s),
             _ => None,
         }
     } else {
@@ -151,35 +175,26 @@ pub fn measure_event(cx: &Context, w: &Window) -> (Event, LocalLevels) {
     };
 
     // Decay: end of the clamp plateau, or of the first lobe.
-    let width_samples = spike_width_s.map_or(1.0, |w| w / cx.dt_s);
-    let smooth_w = if cx.noisy() {
-        ((width_samples / 8.0) as usize).clamp(1, 16)
-    } else {
-        1
-    };
-    let ys: Vec<f64> = (p..ae).map(|k| cx.y(k)).collect();
-    let ys_smooth = moving_average(&ys, smooth_w);
-    let lobe_end = Some(
-        ys_smooth
-            .iter()
-            .position(|&y| y <= cx.noise_band())
-            .map_or(ae - 1, |k| p + k),
-    );
+    let band_n = cx.noise_band();
+    let lobe_start = sm.iter().position(|&y| y > band_n).unwrap_or(0).min(ps);
+    let lobe_end = (ps..sm.len())
+        .find(|&j| sm[j] <= band_n)
+        .unwrap_or(sm.len().saturating_sub(1));
     let mut plateau_v: Option<f64> = None;
-    let decay_end_x = lobe_end.and_then(|le| {
-        let lobe = ys.get(..le - p)?;
+    let decay_end_x = (|| {
+        let lobe = ys.get(lobe_start..lobe_end)?;
         let med = median(lobe)?;
-        let tol = 0.1 * med.abs() + cx.noise_band();
+        let tol = 0.1 * med.abs() + band_n;
         let near = lobe.iter().filter(|&&y| (y - med).abs() <= tol).count();
-        let is_plateau = lobe.len() >= 10
-            && med > cx.noise_band()
-            && near as f64 >= PLATEAU_FRACTION * lobe.len() as f64;
+        let is_plateau =
+            lobe.len() >= 10 && med > band_n && near as f64 >= PLATEAU_FRACTION * lobe.len() as f64;
         // Refine on the raw samples: the last fall through the threshold before the lobe
         // ended (half the plateau; zero for a lobe, or the noise band when the lobe only
         // sinks back onto the off level without crossing it).
-        let search_to = (le + smooth_w).min(ae - 1);
+        let search_to = (e + lobe_end + smooth_w).min(ae - 1);
+        let from = e + lobe_start;
         let last_fall = |thr: f64| {
-            (p..search_to)
+            (from..search_to)
                 .rev()
                 .find(|&k| cx.y(k) >= thr && cx.y(k + 1) < thr)
                 .and_then(|k| crossing_index(v, k, cx.v_off + s * thr))
@@ -188,9 +203,9 @@ pub fn measure_event(cx: &Context, w: &Window) -> (Event, LocalLevels) {
             plateau_v = Some(med);
             last_fall(med / 2.0)
         } else {
-            last_fall(0.0).or_else(|| last_fall(cx.noise_band().max(1e-9 * step)))
+            last_fall(0.0).or_else(|| last_fall(band_n.max(1e-9 * step)))
         }
-    });
+    })();
     let decay_time_s = decay_end_x.map(|x| t_of(x) - t_edge_s);
 
     // Ring: after the peak, or after the clamp releases.
@@ -411,8 +426,9 @@ fn slope_capacitance(
 }
 
 /// Clipping: two or more consecutive samples at the known ADC rail, or, without a known
-/// range, three or more at the capture's extreme code entered or left by a jump larger
-/// than the noise (a smooth peak drifts onto its top code; a clipped one slams into it).
+/// range, three or more at the capture's extreme code, either on a noisy record or entered
+/// or left by a jump of more than a code and a half on a clean one (a smooth peak drifts
+/// onto its top code; a clipped one slams into it).
 fn is_clipped(cx: &Context, p: usize, ae: usize) -> bool {
     let s = cx.s();
     let v = cx.v;
@@ -433,6 +449,11 @@ fn is_clipped(cx: &Context, p: usize, ae: usize) -> bool {
     let run = run_at(cx.extreme_v);
     if run < 3 {
         return false;
+    }
+    // With noise of more than half a code, three equal samples at the extreme code do not
+    // happen by chance: the rail flattened the noise.
+    if cx.noisy() {
+        return true;
     }
     let jump = 1.5 * cx.adc_step_v.max(3.0 * cx.sigma_v);
     let entry = p.checked_sub(1).map_or(0.0, |k| s * (v[p] - v[k]));

@@ -56,7 +56,8 @@ pub fn analyse(y: &[f64], dt_s: f64, band: f64) -> Option<Ring> {
                 // The zero crossing lies between the last sample on the old side of zero and
                 // the next one; search back from here to the last sign change.
                 let from = last_opposite.unwrap_or(0);
-                if let Some(c) = zero_crossing_between(y, from, k) {
+                let c = line_fit_zero(y, from, k).or_else(|| zero_crossing_between(y, from, k));
+                if let Some(c) = c {
                     crossings.push((c, s > 0));
                 }
             }
@@ -158,21 +159,91 @@ fn zero_crossing_between(y: &[f64], from: usize, to: usize) -> Option<f64> {
     None
 }
 
-/// Largest value in `y[a..b]`, refined by a parabola through the three samples around it.
+/// Top of the lobe `y[a..b]`: the vertex of a least-squares parabola through the samples
+/// within a sixth of the lobe's length of its largest sample (the raw largest sample of a
+/// noisy lobe sits high by the noise, and more so on small lobes, which would bias the
+/// decrement low). The raw largest sample when the fit is not concave.
 fn lobe_peak(y: &[f64], a: usize, b: usize) -> Option<f64> {
     let seg = y.get(a..b)?;
     let (k, &m) = seg.iter().enumerate().max_by(|p, q| p.1.total_cmp(q.1))?;
     let k = a + k;
-    if k == 0 || k + 1 >= y.len() {
+    let h = ((b - a) / 6).max(1);
+    let lo = k.saturating_sub(h);
+    let hi = (k + h).min(y.len() - 1);
+    if hi - lo < 2 {
         return Some(m);
     }
-    let (l, r) = (y[k - 1], y[k + 1]);
-    let den = l - 2.0 * m + r;
-    if den >= 0.0 {
+    // Normal equations for y = c0 + c1 t + c2 t^2, t centred on k.
+    let mut s = [0f64; 5];
+    let mut r = [0f64; 3];
+    for (j, &x) in y.iter().enumerate().take(hi + 1).skip(lo) {
+        let t = j as f64 - k as f64;
+        let mut p = 1.0;
+        for (q, sq) in s.iter_mut().enumerate() {
+            *sq += p;
+            if q < 3 {
+                r[q] += p * x;
+            }
+            p *= t;
+        }
+    }
+    let mat = [[s[0], s[1], s[2]], [s[1], s[2], s[3]], [s[2], s[3], s[4]]];
+    let Some([c0, c1, c2]) = solve3(mat, r) else {
+        return Some(m);
+    };
+    if c2 >= 0.0 {
         return Some(m);
     }
-    let off = 0.5 * (l - r) / den;
-    Some(m - 0.25 * (l - r) * off)
+    let tv = (-c1 / (2.0 * c2)).clamp(-(h as f64), h as f64);
+    Some(c0 + c1 * tv + c2 * tv * tv)
+}
+
+/// Solves a 3x3 linear system by Cramer's rule; `None` when singular.
+fn solve3(m: [[f64; 3]; 3], r: [f64; 3]) -> Option<[f64; 3]> {
+    let det = |a: [[f64; 3]; 3]| {
+        a[0][0] * (a[1][1] * a[2][2] - a[1][2] * a[2][1])
+            - a[0][1] * (a[1][0] * a[2][2] - a[1][2] * a[2][0])
+            + a[0][2] * (a[1][0] * a[2][1] - a[1][1] * a[2][0])
+    };
+    let d = det(m);
+    if d.abs() < 1e-300 || !d.is_finite() {
+        return None;
+    }
+    let mut out = [0f64; 3];
+    for (c, o) in out.iter_mut().enumerate() {
+        let mut a = m;
+        for row in a.iter_mut().zip(r) {
+            row.0[c] = row.1;
+        }
+        *o = det(a) / d;
+    }
+    Some(out)
+}
+
+/// Zero of the least-squares line through `y[from..=to]`, the samples between the last one
+/// beyond the noise band on one side and the first beyond it on the other. Symmetric in
+/// time, so noise does not pull it late the way the last sign change does. Needs at least
+/// three samples and a zero inside the stretch.
+fn line_fit_zero(y: &[f64], from: usize, to: usize) -> Option<f64> {
+    let seg = y.get(from..=to)?;
+    if seg.len() < 3 {
+        return None;
+    }
+    let n = seg.len() as f64;
+    let mean_t = (n - 1.0) / 2.0;
+    let mean_y = seg.iter().sum::<f64>() / n;
+    let (mut sty, mut stt) = (0.0, 0.0);
+    for (k, &x) in seg.iter().enumerate() {
+        let dt = k as f64 - mean_t;
+        sty += dt * (x - mean_y);
+        stt += dt * dt;
+    }
+    let slope = sty / stt;
+    if slope == 0.0 || !slope.is_finite() {
+        return None;
+    }
+    let z = mean_t - mean_y / slope;
+    (0.0..=n - 1.0).contains(&z).then(|| from as f64 + z)
 }
 
 /// Logarithmic decrement per cycle from successive peaks: `-slope` of `ln(peak)` against
