@@ -301,37 +301,43 @@ pub fn measure_trace(
             evs.push(ev);
         }
 
-        // Cross-check of the histogram levels with the local ones.
-        // The local medians are precise to a fraction of the noise, so a disagreement of
-        // one noise deviation (or half a code) already biases every level-relative figure.
+        // Cross-check of the histogram levels with the local ones. The local medians are
+        // precise to a fraction of the noise: a disagreement of one noise deviation (or half
+        // a code) is worth a warning, and any disagreement beyond a quarter of the noise is
+        // corrected (one more pass with the local levels), since every level-relative
+        // figure (crossings, settling, ring peaks) inherits it.
         let tol = sigma.max(0.5 * adc_step_v).max(0.002 * step);
-        let local_on = levels::median(&befores);
-        let local_off = levels::median(&settleds);
-        let mut level_notes = Vec::new();
+        let refine_tol = (0.25 * sigma).max(1e-4 * step);
         let mut new_on = v_on;
         let mut new_off = v_off;
-        if let Some(l) = local_on.filter(|l| (l - v_on).abs() > tol) {
-            level_notes.push(format!(
-                "on level {v_on:.4} V from the histogram differs from {l:.4} V seen before the edges; using {l:.4} V"
-            ));
-            new_on = l;
-        }
-        if let Some(l) = local_off.filter(|l| (l - v_off).abs() > tol) {
-            level_notes.push(format!(
-                "off level {v_off:.4} V from the histogram differs from {l:.4} V where the events settled (a clamp plateau or ringing tail outnumbers the off state?); using {l:.4} V"
-            ));
-            new_off = l;
-        }
-        let usable = (new_off - new_on).abs() > separation;
-        if !level_notes.is_empty() && pass == 0 && usable {
-            warnings.extend(level_notes);
-            v_on = new_on;
-            v_off = new_off;
-            pass += 1;
-            continue;
-        }
-        if !level_notes.is_empty() {
-            warnings.extend(level_notes);
+        if pass == 0 {
+            if let Some(l) = levels::median(&befores) {
+                if (l - v_on).abs() > tol {
+                    warnings.push(format!(
+                        "on level {v_on:.4} V from the histogram differs from {l:.4} V seen before the edges; using {l:.4} V"
+                    ));
+                }
+                if (l - v_on).abs() > refine_tol {
+                    new_on = l;
+                }
+            }
+            if let Some(l) = levels::median(&settleds) {
+                if (l - v_off).abs() > tol {
+                    warnings.push(format!(
+                        "off level {v_off:.4} V from the histogram differs from {l:.4} V where the events settled (a clamp plateau or ringing tail outnumbers the off state?); using {l:.4} V"
+                    ));
+                }
+                if (l - v_off).abs() > refine_tol {
+                    new_off = l;
+                }
+            }
+            let usable = (new_off - new_on).abs() > separation;
+            if (new_on != v_on || new_off != v_off) && usable {
+                v_on = new_on;
+                v_off = new_off;
+                pass += 1;
+                continue;
+            }
         }
 
         capture_warnings(&mut warnings, &evs, v_on, v_off, polarity, opts);
