@@ -300,10 +300,17 @@ pub fn measure_event(cx: &Context, w: &Window) -> (Event, LocalLevels) {
     let truncated = w.cut || settle_time_s.is_none();
 
     let before_edge_v = median(v.get(w.start..k10.max(w.start + 1)).unwrap_or(&[]));
-    let settled_v = settle_idx.filter(|_| w.closed_by_turn_on).and_then(|si| {
-        let from = si + (ae.saturating_sub(si)) / 2;
-        median(v.get(from..ae)?)
-    });
+    let settled_v = settle_idx
+        .filter(|_| w.closed_by_turn_on)
+        .and_then(|si| {
+            let from = si + (ae.saturating_sub(si)) / 2;
+            median(v.get(from..ae)?)
+        })
+        .or_else(|| {
+            // An event that never settled: the centre line its ring peaks point to.
+            ring.filter(|r| r.offset != 0.0)
+                .map(|r| cx.v_off + s * r.offset)
+        });
 
     let ev = Event {
         index: w.index,

@@ -32,12 +32,81 @@ pub struct Ring {
     pub fft_freq_hz: Option<f64>,
     /// Number of zero crossings used.
     pub n_crossings: usize,
+    /// Centre line of the ring relative to the given zero, when the peaks showed the given
+    /// off level to be off (0 otherwise).
+    pub offset: f64,
 }
 
 /// Analyses `y` (signal minus the off level, spike direction positive), sampled every
 /// `dt_s`. `band` is the noise band a swing must pass through to count. `None` when fewer
 /// than three crossings (less than one full period) are found: no ring, or overdamped.
 pub fn analyse(y: &[f64], dt_s: f64, band: f64) -> Option<Ring> {
+    let (ring, peaks) = analyse_once(y, dt_s, band)?;
+    // A ring that had not died out by the end of its window leaves the off level uncertain,
+    // and the decrement of peaks measured from a wrong zero is biased: fit the zero too.
+    let Some(c) = fit_offset(&peaks) else {
+        return Some(ring);
+    };
+    if c.abs() <= band.max(0.01 * peaks.first().copied().unwrap_or(0.0)) {
+        return Some(ring);
+    }
+    let shifted: Vec<f64> = y.iter().map(|x| x - c).collect();
+    let (mut again, _) = analyse_once(&shifted, dt_s, band)?;
+    again.offset = c;
+    Some(again)
+}
+
+/// The zero `c` for which successive peaks `p_n - c` fall on one exponential best: the
+/// minimum over `c` of the residual of the straight-line fit of `ln(p_n - c)` against `n`
+/// (coarse scan, then golden-section search). Only when at least four peaks exist and the fit removes most of
+/// the residual left with `c = 0` (so noise alone never moves the zero).
+fn fit_offset(peaks: &[f64]) -> Option<f64> {
+    if peaks.len() < 4 {
+        return None;
+    }
+    let min_p = peaks.iter().copied().fold(f64::INFINITY, f64::min);
+    let max_p = peaks.iter().copied().fold(0f64, f64::max);
+    let sse = |c: f64| -> f64 {
+        let l: Vec<f64> = peaks.iter().map(|p| (p - c).max(1e-300).ln()).collect();
+        let n = l.len() as f64;
+        let mk = (n - 1.0) / 2.0;
+        let ml = l.iter().sum::<f64>() / n;
+        let (mut sxy, mut sxx) = (0.0, 0.0);
+        for (k, x) in l.iter().enumerate() {
+            sxy += (k as f64 - mk) * (x - ml);
+            sxx += (k as f64 - mk).powi(2);
+        }
+        let b = sxy / sxx;
+        l.iter()
+            .enumerate()
+            .map(|(k, x)| (x - ml - b * (k as f64 - mk)).powi(2))
+            .sum()
+    };
+    // A coarse scan first: the residual need not have a single minimum over the range.
+    let (a, b) = (-max_p, 0.9 * min_p);
+    let steps = 200;
+    let h = (b - a) / steps as f64;
+    let best = (0..=steps)
+        .map(|k| a + k as f64 * h)
+        .min_by(|x, y| sse(*x).total_cmp(&sse(*y)))?;
+    let (mut lo, mut hi) = ((best - h).max(a), (best + h).min(b));
+    let g = (5f64.sqrt() - 1.0) / 2.0;
+    for _ in 0..80 {
+        let m1 = hi - g * (hi - lo);
+        let m2 = lo + g * (hi - lo);
+        if sse(m1) < sse(m2) {
+            hi = m2;
+        } else {
+            lo = m1;
+        }
+    }
+    let c = 0.5 * (lo + hi);
+    (sse(c) * 4.0 < sse(0.0)).then_some(c)
+}
+
+/// One pass of the ring analysis with `y`'s zero taken as given; also returns the peaks
+/// used for the decrement.
+fn analyse_once(y: &[f64], dt_s: f64, band: f64) -> Option<(Ring, Vec<f64>)> {
     let band = band.max(0.0);
     // Crossings: fractional sample positions and their direction.
     let mut crossings: Vec<(f64, bool)> = Vec::new();
@@ -136,13 +205,17 @@ pub fn analyse(y: &[f64], dt_s: f64, band: f64) -> Option<Ring> {
 
     let start = crossings.first().map_or(0, |c| c.0 as usize);
     let fft_freq_hz = fft_peak_hz(y.get(start..).unwrap_or(&[]), dt_s);
-    Some(Ring {
-        freq_hz,
-        period_samples,
-        damping_ratio,
-        fft_freq_hz,
-        n_crossings: crossings.len(),
-    })
+    Some((
+        Ring {
+            freq_hz,
+            period_samples,
+            damping_ratio,
+            fft_freq_hz,
+            n_crossings: crossings.len(),
+            offset: 0.0,
+        },
+        usable,
+    ))
 }
 
 /// Fractional position of the last sign change of `y` in `[from, to]`.
@@ -346,5 +419,18 @@ mod tests {
     fn a_single_lobe_is_no_ring() {
         let y: Vec<f64> = (0..100).map(|k| (PI * k as f64 / 99.0).sin()).collect();
         assert_eq!(analyse(&y, 1.0, 0.01), None);
+    }
+}
+
+#[cfg(test)]
+mod offset_tests {
+    use super::*;
+
+    #[test]
+    fn offset_of_geometric_peaks_is_found() {
+        // Peaks 20 + 300 * 0.82^n: the zero that makes them geometric is 20 (by construction).
+        let peaks: Vec<f64> = (0..10).map(|n| 20.0 + 300.0 * 0.82f64.powi(n)).collect();
+        let c = fit_offset(&peaks).unwrap();
+        assert!((c - 20.0).abs() < 1e-3, "{c}");
     }
 }
