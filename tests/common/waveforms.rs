@@ -75,6 +75,17 @@ impl Rlc {
         let wd = self.wd();
         self.vs + (-self.alpha() * t).exp() * (a * (wd * t).cos() + b * (wd * t).sin())
     }
+    /// Coil current: `I0` before the opening, then the capacitor's current `C dv/dt`
+    /// (the switch carries nothing once open).
+    pub fn i(&self, t: f64) -> f64 {
+        if t < 0.0 {
+            return self.i0;
+        }
+        let (a, b) = self.ab();
+        let (al, wd) = (self.alpha(), self.wd());
+        let e = (-al * t).exp();
+        self.c * e * ((-al * a + wd * b) * (wd * t).cos() + (-al * b - wd * a) * (wd * t).sin())
+    }
     /// End of the first lobe: the second zero of `A cos + B sin`, `(atan(-A/B) + pi) / wd`.
     pub fn first_lobe_end_s(&self) -> f64 {
         let (a, b) = self.ab();

@@ -1,0 +1,225 @@
+//! Options and channels that change what is measured: a current channel (energies, I0,
+//! the slope capacitance), a high-side switch, supply and rating warnings, the window
+//! limit. Waveforms are the analytic series RLC response of tests/common/waveforms.rs.
+
+mod common;
+
+use common::waveforms::{max_of, Rlc, Rng};
+use kickscan::measure::{measure_trace, CurrentThrough, MeasureOptions, Polarity, RingKind, Trace};
+
+const DT: f64 = 0.5e-6;
+
+fn relay() -> Rlc {
+    Rlc {
+        vs: 24.0,
+        i0: 0.12,
+        l: 0.1,
+        r: 200.0,
+        c: 10e-9,
+    }
+}
+
+/// Two events of `relay()`: voltage and coil current (the switch current is I0 while on,
+/// zero once open).
+fn two_events(switch_probe: bool) -> (Vec<f64>, Vec<f64>) {
+    let rlc = relay();
+    let mut rng = Rng::new(1);
+    let on = 2e-3;
+    let off = 8e-3;
+    let period = on + off;
+    let n = ((2.0 * period + on) / DT) as usize;
+    let opens: Vec<f64> = (0..2)
+        .map(|k| k as f64 * period + on + rng.uniform() * DT)
+        .collect();
+    let (mut v, mut i) = (Vec::with_capacity(n), Vec::with_capacity(n));
+    for j in 0..n {
+        let t = j as f64 * DT;
+        let k = opens.partition_point(|&o| o <= t);
+        let since = if k == 0 { -1.0 } else { t - opens[k - 1] };
+        let (vv, ii) = if since < 0.0 || since >= off {
+            (0.0, rlc.i0)
+        } else if switch_probe {
+            (rlc.v(since), 0.0)
+        } else {
+            (rlc.v(since), rlc.i(since))
+        };
+        v.push(vv);
+        i.push(ii);
+    }
+    (v, i)
+}
+
+#[test]
+fn coil_probe_gives_i0_energies_and_slope_capacitance() {
+    let rlc = relay();
+    let (v, i) = two_events(false);
+    let opts = MeasureOptions {
+        inductance_h: Some(rlc.l),
+        current_through: CurrentThrough::Coil,
+        ..MeasureOptions::default()
+    };
+    let trace = Trace {
+        v: &v,
+        i: Some(&i),
+        dt_s: DT,
+        t0_s: 0.0,
+        adc: None,
+    };
+    let m = measure_trace(&trace, &opts).unwrap();
+    assert_eq!(m.events.len(), 2);
+    let (_, peak) = max_of(&|t| rlc.v(t), 0.0, 2e-4, 2000);
+    for e in &m.events {
+        assert!((e.i0_a.unwrap() - 0.12).abs() < 1e-9);
+        // 1/2 L I0^2 = 0.5 * 0.1 * 0.12^2 = 0.72 mJ.
+        assert!((e.coil_energy_j.unwrap() - 0.72e-3).abs() < 1e-9);
+        // With i = C dv/dt, the integral of v i from the 50 % instant (12 V) to the peak is
+        // C (Vpk^2 - 12^2) / 2 (energy in a capacitor).
+        let want = 0.5 * rlc.c * (peak * peak - 144.0);
+        let got = e.energy_to_peak_j.unwrap();
+        assert!(
+            (got - want).abs() / want < 0.01,
+            "energy to peak {got} vs {want}"
+        );
+        assert!(e.clamp_energy_j.is_some() && e.energy_j.is_none());
+        let c = e.c_par_slope_f.unwrap();
+        assert!((c - rlc.c).abs() / rlc.c < 0.01, "slope capacitance {c}");
+        let [lo, hi] = e.c_par_slope_range_v.unwrap();
+        assert!(lo < hi && hi <= peak);
+        let c_ring = e.c_par_f.unwrap();
+        assert!(
+            (c_ring - rlc.c).abs() / rlc.c < 0.01,
+            "ring capacitance {c_ring}"
+        );
+        assert_eq!(e.ring_kind, Some(RingKind::Coil));
+    }
+}
+
+#[test]
+fn switch_probe_gives_the_switch_energy() {
+    let (v, i) = two_events(true);
+    let opts = MeasureOptions {
+        current_through: CurrentThrough::Switch,
+        ..MeasureOptions::default()
+    };
+    let trace = Trace {
+        v: &v,
+        i: Some(&i),
+        dt_s: DT,
+        t0_s: 0.0,
+        adc: None,
+    };
+    let m = measure_trace(&trace, &opts).unwrap();
+    for e in &m.events {
+        // The switch carries nothing once open, so it absorbs (almost) nothing.
+        assert!(e.energy_j.unwrap().abs() < 1e-9);
+        assert!(e.clamp_energy_j.is_none());
+        // Slope capacitance with I0 taken as the coil current over the first third of
+        // the rise: the coil current falls by under 5 % there, so within 5 %.
+        let c = e.c_par_slope_f.unwrap();
+        assert!((c - 10e-9).abs() / 10e-9 < 0.05, "slope capacitance {c}");
+    }
+}
+
+#[test]
+fn high_side_switch_flies_below_ground() {
+    // Mirror of the low-side case: the node sits at the supply while on, and 24 V minus the
+    // low-side response once open.
+    let rlc = relay();
+    let (v_low, _) = two_events(false);
+    let v: Vec<f64> = v_low.iter().map(|x| 24.0 - x).collect();
+    let m = measure_trace(
+        &Trace {
+            v: &v,
+            i: None,
+            dt_s: DT,
+            t0_s: 0.0,
+            adc: None,
+        },
+        &MeasureOptions::default(),
+    )
+    .unwrap();
+    assert_eq!(m.polarity, Polarity::Down);
+    assert_eq!(m.events.len(), 2);
+    let (_, peak) = max_of(&|t| rlc.v(t), 0.0, 2e-4, 2000);
+    for e in &m.events {
+        assert!(
+            (e.v_on - 24.0).abs() < 1e-3 && e.v_off.abs() < 1e-3,
+            "{} {} {:?}",
+            e.v_on,
+            e.v_off,
+            m.warnings
+        );
+        assert!((e.peak_v - (24.0 - peak)).abs() < 0.005 * peak);
+        // Rail of a high-side switch is the supply: stress = |peak - 24|.
+        assert!((e.switch_stress_v - peak).abs() < 0.005 * peak);
+        assert!((e.ring_freq_hz.unwrap() - rlc.ring_hz()).abs() / rlc.ring_hz() < 0.002);
+    }
+}
+
+#[test]
+fn supply_and_rating_warnings_and_the_window_limit() {
+    let (v, _) = two_events(false);
+    let opts = MeasureOptions {
+        supply_v: Some(27.0),
+        rating_v: Some(60.0),
+        max_window_s: Some(1e-3),
+        ..MeasureOptions::default()
+    };
+    let m = measure_trace(
+        &Trace {
+            v: &v,
+            i: None,
+            dt_s: DT,
+            t0_s: 0.0,
+            adc: None,
+        },
+        &opts,
+    )
+    .unwrap();
+    assert!(
+        m.warnings
+            .iter()
+            .any(|w| w.contains("differs from --supply 27 V")),
+        "{:?}",
+        m.warnings
+    );
+    assert_eq!(
+        m.warnings
+            .iter()
+            .filter(|w| w.contains("exceeds the rating 60 V"))
+            .count(),
+        2
+    );
+    for (e, &(a, b)) in m.events.iter().zip(&m.windows) {
+        assert!(e.truncated);
+        assert!((b - a) as f64 * DT <= 1e-3 + e.t_edge_s - a as f64 * DT + DT);
+    }
+}
+
+#[test]
+fn flat_signal_is_an_error_not_a_panic() {
+    let v = vec![3.0; 1000];
+    let r = measure_trace(
+        &Trace {
+            v: &v,
+            i: None,
+            dt_s: 1e-6,
+            t0_s: 0.0,
+            adc: None,
+        },
+        &MeasureOptions::default(),
+    );
+    assert!(r.is_err());
+    let nan = vec![f64::NAN; 100];
+    assert!(measure_trace(
+        &Trace {
+            v: &nan,
+            i: None,
+            dt_s: 1e-6,
+            t0_s: 0.0,
+            adc: None
+        },
+        &MeasureOptions::default()
+    )
+    .is_err());
+}
