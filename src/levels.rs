@@ -193,7 +193,7 @@ pub fn two_state_levels(
         if k < nbins {
             acc += counts[k];
         }
-        if k >= 2 * half_k + 1 {
+        if k > 2 * half_k {
             acc -= counts[k - 2 * half_k - 1];
         }
         if k >= half_k && k - half_k < nbins {

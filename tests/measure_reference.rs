@@ -105,9 +105,9 @@ fn logarithmic_decrement_for_zeta_005_and_02() {
     // delta = 2 pi zeta / sqrt(1 - zeta^2) (Thomson & Dahleh, Theory of Vibration); the
     // analytic response has exactly that decrement, so zeta must come back.
     for zeta in [0.05, 0.2] {
-        let l = 0.1;
+        let l: f64 = 0.1;
         let c = 10e-6;
-        let w0 = 1.0 / (l * c as f64).sqrt();
+        let w0 = 1.0 / (l * c).sqrt();
         let r = 2.0 * l * zeta * w0;
         let rlc = Rlc {
             vs: 24.0,

@@ -316,7 +316,7 @@ fn line_fit_zero(y: &[f64], from: usize, to: usize) -> Option<f64> {
         return None;
     }
     let z = mean_t - mean_y / slope;
-    (0.0..=n - 1.0).contains(&z).then(|| from as f64 + z)
+    (0.0..=n - 1.0).contains(&z).then_some(from as f64 + z)
 }
 
 /// Logarithmic decrement per cycle from successive peaks: `-slope` of `ln(peak)` against
