@@ -217,17 +217,17 @@ pub fn event_windows(
 ) -> Vec<(usize, usize, bool)> {
     let mut out = Vec::with_capacity(scan.edges.len());
     for &e in &scan.edges {
-        let next_on = scan.turn_ons.iter().copied().find(|&t| t > e).unwrap_or(n);
+        // Turn-ons come in order, so both neighbours are found by bisection.
+        let after = scan.turn_ons.partition_point(|&t| t <= e);
+        let next_on = scan.turn_ons.get(after).copied().unwrap_or(n);
         let (end, cut) = match max_samples {
             Some(m) if e.saturating_add(m) < next_on => (e + m, true),
             _ => (next_on, false),
         };
-        let prev_on = scan
-            .turn_ons
-            .iter()
+        let prev_on = after
+            .checked_sub(1)
+            .and_then(|k| scan.turn_ons.get(k))
             .copied()
-            .rev()
-            .find(|&t| t <= e)
             .unwrap_or(0);
         let on_run = e.saturating_sub(prev_on);
         let pre = (on_run / 2).min(((end - e) / 10).max(16));

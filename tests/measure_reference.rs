@@ -192,3 +192,49 @@ fn unclamped_relay_spike_is_hundreds_of_volts_tens_of_microseconds_wide() {
         );
     }
 }
+
+#[test]
+fn parasitic_ring_on_a_diode_plateau_is_kept_apart() {
+    // Invented scenario: a diode plateau with a fast ring (2 MHz, 5 V, decaying in 2 us)
+    // where the node meets the clamp; the fast ring dominates, so it is the one reported
+    // and named parasitic, and the plateau still sets the decay.
+    let d = DiodeClamp {
+        vs: 24.0,
+        vf: 0.8,
+        i0: 0.12,
+        l: 0.1,
+        r: 200.0,
+        rise_s: 0.1e-6,
+    };
+    let f_par = 2e6;
+    let shape = |t: f64| {
+        let base = d.v(t);
+        if t > d.rise_s {
+            let s = t - d.rise_s;
+            base + 5.0 * (-s / 2e-6).exp() * (2.0 * std::f64::consts::PI * f_par * s).sin()
+        } else {
+            base
+        }
+    };
+    let dt = 10e-9;
+    let mut rng = Rng::new(17);
+    let tr = train(&|_, t| shape(t), 3, 1e-3, 2.5e-3, dt, &mut rng);
+    let m = measure(&tr.v, dt, &MeasureOptions::default());
+    assert_eq!(m.events.len(), 3, "{:?}", m.warnings);
+    let t50 = d.rise_s * 12.0 / 24.8;
+    let truth = d.rise_s + d.plateau_s() - t50;
+    for e in &m.events {
+        assert_eq!(
+            e.ring_kind,
+            Some(kickscan::measure::RingKind::Parasitic),
+            "{e:?}"
+        );
+        let f = e.ring_freq_hz.unwrap();
+        assert!((f - f_par).abs() / f_par < 0.005, "ring {f}");
+        let decay = e.decay_time_s.unwrap();
+        assert!(
+            (decay - truth).abs() / truth < 0.02,
+            "decay {decay} vs {truth}"
+        );
+    }
+}

@@ -177,9 +177,10 @@ pub fn measure_event(cx: &Context, w: &Window) -> (Event, LocalLevels) {
     // Decay: end of the clamp plateau, or of the first lobe.
     let band_n = cx.noise_band();
     let lobe_start = sm.iter().position(|&y| y > band_n).unwrap_or(0).min(ps);
-    let lobe_end = (ps..sm.len())
+    let first_dip = (ps..sm.len())
         .find(|&j| sm[j] <= band_n)
         .unwrap_or(sm.len().saturating_sub(1));
+    let lobe_end = plateau_through_dips(&ys, lobe_start, first_dip, band_n).unwrap_or(first_dip);
     let mut plateau_v: Option<f64> = None;
     let decay_end_x = (|| {
         let lobe = ys.get(lobe_start..lobe_end)?;
@@ -214,8 +215,27 @@ pub fn measure_event(cx: &Context, w: &Window) -> (Event, LocalLevels) {
         _ => p,
     };
     let ring_y: Vec<f64> = (ring_start..ae).map(|k| cx.y(k)).collect();
-    let ring = ring::analyse(&ring_y, cx.dt_s, cx.noise_band());
+    let after_ring = ring::analyse(&ring_y, cx.dt_s, cx.noise_band());
+    // A fast ring on the clamp plateau (the clamp's own loop inductance with the node
+    // capacitance) is looked for around the plateau level; the larger of the two rings is
+    // the one reported.
+    let plateau_ring = match (plateau_v, decay_end_x) {
+        (Some(level), Some(xe)) => {
+            let to = (xe.floor() as usize).min(ae);
+            let seg: Vec<f64> = (e + lobe_start..to).map(|k| cx.y(k) - level).collect();
+            ring::analyse(&seg, cx.dt_s, band_n).filter(|r| r.amplitude > 5.0 * band_n)
+        }
+        _ => None,
+    };
+    let (ring, on_plateau) = match (after_ring, plateau_ring) {
+        (Some(a), Some(b)) if b.amplitude > a.amplitude => (Some(b), true),
+        (None, Some(b)) => (Some(b), true),
+        (a, _) => (a, false),
+    };
     let ring_kind = ring.map(|r| {
+        if on_plateau {
+            return RingKind::Parasitic;
+        }
         if plateau_v.is_some() {
             return RingKind::Coil;
         }
@@ -308,7 +328,7 @@ pub fn measure_event(cx: &Context, w: &Window) -> (Event, LocalLevels) {
         })
         .or_else(|| {
             // An event that never settled: the centre line its ring peaks point to.
-            ring.filter(|r| r.offset != 0.0)
+            ring.filter(|r| r.offset != 0.0 && !on_plateau)
                 .map(|r| cx.v_off + s * r.offset)
         });
 
@@ -353,6 +373,31 @@ pub fn measure_event(cx: &Context, w: &Window) -> (Event, LocalLevels) {
             settled_v,
         },
     )
+}
+
+/// A clamp plateau carrying a fast ring dips through the off level long before the clamp
+/// lets go. When the signal over 64 times the first lobe's length (at least 8) stays mostly above
+/// the off level (three quarters of the samples, median above twice the noise band; a coil
+/// ring spends half its time below), the lobe instead ends where a moving average four first
+/// lobes long falls to half that median, plus half the averaging length (the caller then
+/// finds the release on the raw samples).
+fn plateau_through_dips(ys: &[f64], start: usize, first_dip: usize, band: f64) -> Option<usize> {
+    let lobe = first_dip.checked_sub(start)?.max(4);
+    let span = ys.get(start..(start + 64 * lobe).min(ys.len()))?;
+    if span.len() < 8 * lobe {
+        return None;
+    }
+    let above = span.iter().filter(|&&y| y > 0.0).count();
+    let m = median(span)?;
+    if !(m > 2.0 * band && m > 0.0 && above * 4 >= span.len() * 3) {
+        return None;
+    }
+    let w = 4 * lobe;
+    let smooth = moving_average(ys, w);
+    let end = (start + w..ys.len())
+        .find(|&j| smooth[j] <= m / 2.0)
+        .unwrap_or(ys.len() - 1);
+    Some((end + w / 2).min(ys.len() - 1))
 }
 
 /// Centred moving average over `w` samples (shorter at the ends); `w <= 1` copies.

@@ -32,6 +32,9 @@ pub struct Ring {
     pub fft_freq_hz: Option<f64>,
     /// Number of zero crossings used.
     pub n_crossings: usize,
+    /// Largest swing before the first crossing (the ring's size, for telling which of two
+    /// rings dominates).
+    pub amplitude: f64,
     /// Centre line of the ring relative to the given zero, when the peaks showed the given
     /// off level to be off (0 otherwise).
     pub offset: f64,
@@ -212,6 +215,7 @@ fn analyse_once(y: &[f64], dt_s: f64, band: f64) -> Option<(Ring, Vec<f64>)> {
             damping_ratio,
             fft_freq_hz,
             n_crossings: crossings.len(),
+            amplitude: first_amp,
             offset: 0.0,
         },
         usable,
