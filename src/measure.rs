@@ -286,6 +286,7 @@ pub fn measure_trace(
         let mut evs = Vec::with_capacity(windows.len());
         let mut befores = Vec::new();
         let mut settleds = Vec::new();
+        let mut notes = Vec::new();
         for (index, (&(start, end, cut), &edge)) in windows.iter().zip(&scan.edges).enumerate() {
             let w = event::Window {
                 index,
@@ -298,6 +299,7 @@ pub fn measure_trace(
             let (ev, local) = event::measure_event(&cx, &w);
             befores.extend(local.before_edge_v);
             settleds.extend(local.settled_v);
+            notes.extend(local.notes);
             evs.push(ev);
         }
 
@@ -340,6 +342,7 @@ pub fn measure_trace(
             }
         }
 
+        warnings.extend(notes);
         capture_warnings(&mut warnings, &evs, v_on, v_off, polarity, opts);
         let windows = windows.iter().map(|&(a, b, _)| (a, b)).collect();
         return Ok(CaptureMeasurement {

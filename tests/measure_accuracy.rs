@@ -18,7 +18,15 @@ fn measure(v: &[f64], dt: f64, adc: Option<AdcRange>) -> CaptureMeasurement {
         t0_s: 0.0,
         adc,
     };
-    measure_trace(&trace, &MeasureOptions::default()).expect("measurable")
+    let m = measure_trace(&trace, &MeasureOptions::default()).expect("measurable");
+    println!("warnings: {:?}", m.warnings);
+    // None of these scenarios has two overlapping rings.
+    assert!(
+        !m.warnings.iter().any(|w| w.contains("two rings")),
+        "{:?}",
+        m.warnings
+    );
+    m
 }
 
 /// A small relay coil switched off with nothing across it; `scale[k]` sets event k's

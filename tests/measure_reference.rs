@@ -14,7 +14,15 @@ fn measure(v: &[f64], dt: f64, opts: &MeasureOptions) -> CaptureMeasurement {
         t0_s: 0.0,
         adc: None,
     };
-    measure_trace(&trace, opts).expect("measurable")
+    let m = measure_trace(&trace, opts).expect("measurable");
+    println!("warnings: {:?}", m.warnings);
+    // None of these scenarios has two overlapping rings.
+    assert!(
+        !m.warnings.iter().any(|w| w.contains("two rings")),
+        "{:?}",
+        m.warnings
+    );
+    m
 }
 
 #[test]
@@ -157,6 +165,8 @@ fn diode_clamp_holds_the_node_a_forward_drop_above_the_supply() {
             "decay {decay} vs {truth}"
         );
         assert_eq!(e.damping_ratio, None);
+        // A flat plateau at the record's top is not a clipped peak.
+        assert!(!e.clipped);
     }
 }
 

@@ -13,6 +13,9 @@ use crate::measure::{CurrentThrough, Event, MeasureOptions, Polarity, RingKind};
 const MIN_SAMPLES_PER_FEATURE: f64 = 10.0;
 /// A lobe is a clamp plateau when this fraction of its samples sit near its median.
 const PLATEAU_FRACTION: f64 = 0.6;
+/// Relative disagreement between the zero-crossing and spectrum-peak frequencies above
+/// which two rings are taken to overlap.
+const FFT_DISAGREEMENT: f64 = 0.25;
 /// Ratio of ring to main-lobe frequency above which the ring is a parasitic one.
 const PARASITIC_RATIO: f64 = 2.5;
 
@@ -51,11 +54,13 @@ pub struct Window {
     pub closed_by_turn_on: bool,
 }
 
-/// Levels seen around the event, for the capture-wide cross-check of the state levels.
-#[derive(Debug, Clone, Copy, Default)]
+/// Levels seen around the event, for the capture-wide cross-check of the state levels,
+/// and notes for the capture's warnings.
+#[derive(Debug, Clone, Default)]
 pub struct LocalLevels {
     pub before_edge_v: Option<f64>,
     pub settled_v: Option<f64>,
+    pub notes: Vec<String>,
 }
 
 impl Context<'_> {
@@ -251,6 +256,17 @@ pub fn measure_event(cx: &Context, w: &Window) -> (Event, LocalLevels) {
         }
     });
     let ring_freq_hz = ring.map(|r| r.freq_hz);
+    let mut notes = Vec::new();
+    if let Some((f, g)) = ring.and_then(|r| Some((r.freq_hz, r.fft_freq_hz?))) {
+        if (f - g).abs() > FFT_DISAGREEMENT * f {
+            notes.push(format!(
+                "event {}: the ring's zero crossings give {} but its spectrum peaks at {}; two rings overlap and ring_freq_hz follows the larger swing",
+                w.index,
+                hz(f),
+                hz(g)
+            ));
+        }
+    }
     let damping_ratio = ring.and_then(|r| r.damping_ratio);
 
     // Settling: band around v_off, judged on a smoothed envelope.
@@ -371,6 +387,7 @@ pub fn measure_event(cx: &Context, w: &Window) -> (Event, LocalLevels) {
         LocalLevels {
             before_edge_v,
             settled_v,
+            notes,
         },
     )
 }
@@ -398,6 +415,17 @@ fn plateau_through_dips(ys: &[f64], start: usize, first_dip: usize, band: f64) -
         .find(|&j| smooth[j] <= m / 2.0)
         .unwrap_or(ys.len() - 1);
     Some((end + w / 2).min(ys.len() - 1))
+}
+
+/// A frequency with a prefix, for messages.
+fn hz(f: f64) -> String {
+    if f >= 1e6 {
+        format!("{:.3} MHz", f / 1e6)
+    } else if f >= 1e3 {
+        format!("{:.3} kHz", f / 1e3)
+    } else {
+        format!("{f:.2} Hz")
+    }
 }
 
 /// Centred moving average over `w` samples (shorter at the ends); `w <= 1` copies.
@@ -478,9 +506,10 @@ fn slope_capacitance(
 }
 
 /// Clipping: two or more consecutive samples at the known ADC rail, or, without a known
-/// range, three or more at the capture's extreme code, either on a noisy record or entered
-/// or left by a jump of more than a code and a half on a clean one (a smooth peak drifts
-/// onto its top code; a clipped one slams into it).
+/// range, three or more at the capture's extreme code, either on a noisy record (the rail
+/// flattened the noise) or, on a clean record on an ADC grid, entered and left by jumps of
+/// more than a code and a half (a smooth peak drifts onto its top code; a clipped one slams
+/// into it and out again).
 fn is_clipped(cx: &Context, p: usize, ae: usize) -> bool {
     let s = cx.s();
     let v = cx.v;
@@ -507,10 +536,15 @@ fn is_clipped(cx: &Context, p: usize, ae: usize) -> bool {
     if cx.noisy() {
         return true;
     }
-    let jump = 1.5 * cx.adc_step_v.max(3.0 * cx.sigma_v);
+    // Noise-free samples off any grid (simulated data) cannot tell a rail from a clamp
+    // plateau; only a known range flags them.
+    if cx.adc_step_v <= 0.0 {
+        return false;
+    }
+    let jump = 1.5 * cx.adc_step_v;
     let entry = p.checked_sub(1).map_or(0.0, |k| s * (v[p] - v[k]));
     let exit = v.get(p + run).map_or(0.0, |&x| s * (v[p + run - 1] - x));
-    entry > jump || exit > jump
+    entry > jump && exit > jump
 }
 
 #[cfg(test)]

@@ -206,8 +206,13 @@ fn analyse_once(y: &[f64], dt_s: f64, band: f64) -> Option<(Ring, Vec<f64>)> {
         (z > 0.0 && z < 1.0).then_some(z)
     });
 
+    // The spectrum of the same stretch of ring the crossings came from.
     let start = crossings.first().map_or(0, |c| c.0 as usize);
-    let fft_freq_hz = fft_peak_hz(y.get(start..).unwrap_or(&[]), dt_s);
+    let stop = crossings
+        .last()
+        .map_or(y.len(), |c| (c.0 + half_period) as usize)
+        .min(y.len());
+    let fft_freq_hz = fft_peak_hz(y.get(start..stop).unwrap_or(&[]), dt_s);
     Some((
         Ring {
             freq_hz,
