@@ -197,6 +197,33 @@ fn supply_and_rating_warnings_and_the_window_limit() {
 }
 
 #[test]
+fn min_on_time_overrides_the_derived_dwell() {
+    // The on states last 2 ms: a 1 ms dwell keeps both edges, a 3 ms one none.
+    let (v, _) = two_events(false);
+    let run = |t: f64| {
+        let opts = MeasureOptions {
+            min_on_time_s: Some(t),
+            ..MeasureOptions::default()
+        };
+        measure_trace(
+            &Trace {
+                v: &v,
+                i: None,
+                dt_s: DT,
+                t0_s: 0.0,
+                adc: None,
+            },
+            &opts,
+        )
+        .unwrap()
+        .events
+        .len()
+    };
+    assert_eq!(run(1e-3), 2);
+    assert_eq!(run(3e-3), 0);
+}
+
+#[test]
 fn flat_signal_is_an_error_not_a_panic() {
     let v = vec![3.0; 1000];
     let r = measure_trace(
@@ -222,4 +249,65 @@ fn flat_signal_is_an_error_not_a_panic() {
         &MeasureOptions::default()
     )
     .is_err());
+}
+
+mod no_panics {
+    use kickscan::capture::AdcRange;
+    use kickscan::measure::{measure_trace, CurrentThrough, MeasureOptions, Trace};
+    use proptest::prelude::*;
+
+    proptest! {
+        #![proptest_config(ProptestConfig::with_cases(200))]
+
+        #[test]
+        fn any_samples_give_a_result_or_an_error(
+            v in prop::collection::vec(any::<f64>(), 0..300),
+            dt in any::<f64>(),
+            window in prop::option::of(any::<f64>()),
+            dwell in prop::option::of(any::<f64>()),
+        ) {
+            let i: Vec<f64> = v.iter().map(|x| x * 0.01).collect();
+            let opts = MeasureOptions {
+                max_window_s: window,
+                min_on_time_s: dwell,
+                inductance_h: Some(0.1),
+                current_through: CurrentThrough::Coil,
+                ..MeasureOptions::default()
+            };
+            let trace = Trace { v: &v, i: Some(&i), dt_s: dt, t0_s: 0.0, adc: None };
+            let _ = measure_trace(&trace, &opts);
+        }
+
+        #[test]
+        fn square_waves_with_spikes_and_noise_never_panic(
+            levels in (-50.0f64..50.0, -50.0f64..50.0),
+            spikes in prop::collection::vec((0usize..2000, -500.0f64..500.0), 0..20),
+            noise in prop::collection::vec(-1.0f64..1.0, 2000),
+            period in 4usize..400,
+            step in prop::option::of(0.01f64..2.0),
+        ) {
+            let mut v: Vec<f64> = (0..2000)
+                .map(|k| if (k / period) % 2 == 0 { levels.0 } else { levels.1 } + noise[k])
+                .collect();
+            for (k, s) in spikes {
+                v[k] += s;
+            }
+            let adc = step.map(|s| AdcRange { min_v: -100.0, max_v: 100.0, step_v: Some(s) });
+            let trace = Trace { v: &v, i: None, dt_s: 1e-6, t0_s: 0.0, adc };
+            if let Ok(m) = measure_trace(&trace, &MeasureOptions::default()) {
+                for e in &m.events {
+                    // Nulls, never NaN.
+                    prop_assert!(e.peak_v.is_finite() && e.t_edge_s.is_finite());
+                    for x in [e.rise_time_s, e.settle_time_s, e.decay_time_s, e.ring_freq_hz,
+                              e.damping_ratio, e.spike_width_s, e.slew_v_per_s, e.overshoot_pct]
+                        .into_iter()
+                        .flatten()
+                    {
+                        prop_assert!(x.is_finite(), "{e:?}");
+                    }
+                }
+                prop_assert_eq!(m.windows.len(), m.events.len());
+            }
+        }
+    }
 }
