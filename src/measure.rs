@@ -159,7 +159,10 @@ pub struct CaptureMeasurement {
     pub polarity: Polarity,
     pub events: Vec<Event>,
     pub warnings: Vec<String>,
-    /// Sample index range `[start, end)` of each event's window, for plots and fits.
+    /// Sample index range `[start, end)` of each event's window, for plots and fits: from a
+    /// little before the edge (half the preceding on run, at most a tenth of the window
+    /// after the edge and at least 16 samples, so the pre-edge on level is in it) to the
+    /// next turn-on, the end of the capture or `max_window_s` after the edge.
     pub windows: Vec<(usize, usize)>,
 }
 

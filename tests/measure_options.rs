@@ -81,6 +81,23 @@ fn coil_probe_gives_i0_energies_and_slope_capacitance() {
             "energy to peak {got} vs {want}"
         );
         assert!(e.clamp_energy_j.is_some() && e.energy_j.is_none());
+        // Volt-seconds: the integral of v - Vs from the 50 % instant over the event
+        // (trapezoid rule on the formula, 0.1 us steps).
+        let t50 = common::waveforms::first_crossing(&|t| rlc.v(t), 12.0, 0.0, 1e-4, 1000).unwrap();
+        let h = 1e-7;
+        let steps = ((8e-3 - t50) / h) as usize;
+        let vs_truth: f64 = (0..steps)
+            .map(|k| {
+                let t = t50 + k as f64 * h;
+                0.5 * (rlc.v(t) + rlc.v(t + h)) - 24.0
+            })
+            .sum::<f64>()
+            * h;
+        assert!(
+            (e.volt_seconds - vs_truth).abs() / vs_truth.abs() < 0.01,
+            "{} vs {vs_truth}",
+            e.volt_seconds
+        );
         let c = e.c_par_slope_f.unwrap();
         assert!((c - rlc.c).abs() / rlc.c < 0.01, "slope capacitance {c}");
         let [lo, hi] = e.c_par_slope_range_v.unwrap();

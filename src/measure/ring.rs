@@ -146,7 +146,7 @@ fn analyse_once(y: &[f64], dt_s: f64, band: f64) -> Option<(Ring, Vec<f64>)> {
             .map_or(0.0, |seg| seg.iter().fold(0f64, |m, x| m.max(x.abs())))
     };
     let first_amp = amp(0, crossings.first().map_or(0, |c| c.0 as usize + 1));
-    let keep_floor = (3.0 * band).max(0.03 * first_amp);
+    let keep_floor = (2.0 * band).max(0.03 * first_amp);
     let mut keep = crossings.len();
     for k in 1..crossings.len() {
         if amp(crossings[k - 1].0 as usize, crossings[k].0 as usize + 1) < keep_floor {
