@@ -131,6 +131,19 @@ pub fn adc_step_estimate(v: &[f64]) -> Option<f64> {
     (n >= 8 && on_grid * 100 >= n * 95).then_some(d_min)
 }
 
+/// Median of the samples within `half_width_v` of `target_v`; `None` with fewer than 16.
+pub fn level_near(v: &[f64], target_v: f64, half_width_v: f64) -> Option<f64> {
+    let mut near: Vec<f64> = v
+        .iter()
+        .copied()
+        .filter(|x| (x - target_v).abs() <= half_width_v)
+        .collect();
+    if near.len() < 16 {
+        return None;
+    }
+    median_in_place(&mut near)
+}
+
 /// Smallest and largest finite sample.
 pub fn finite_range(v: &[f64]) -> Option<(f64, f64)> {
     let mut lo = f64::INFINITY;

@@ -227,6 +227,22 @@ pub fn measure_trace(
     let separation = (6.0 * rough_sigma + 2.0 * adc_step_v).max(range * 1e-3);
     let states = levels::two_state_levels(v, resolution, separation)
         .ok_or(MeasureError::NoStates { spread_v: range })?;
+    // With the supply known the two states are ground and the supply, whichever side the
+    // switch is on: take the level the samples hold near each (within 15 %, so a sagging
+    // supply is still found). This also serves a record that ends before its only event
+    // settles, where no off state is in the histogram at all.
+    let (low_v, high_v) = match opts
+        .supply_v
+        .filter(|s| s.is_finite() && s.abs() > separation)
+    {
+        Some(sup) => {
+            let hw = 0.15 * sup.abs();
+            let g = levels::level_near(v, 0.0, hw).unwrap_or(0.0);
+            let s = levels::level_near(v, sup, hw).unwrap_or(sup);
+            (g.min(s), g.max(s))
+        }
+        None => (states.low_v, states.high_v),
+    };
 
     let polarity = match opts.polarity {
         PolarityChoice::Up => Polarity::Up,
@@ -234,7 +250,7 @@ pub fn measure_trace(
         PolarityChoice::Auto => {
             // Low-side switching is the common case; down only when the downward
             // excursion clearly wins.
-            if states.low_v - lo <= hi - states.high_v + resolution {
+            if low_v - lo <= hi - high_v + resolution {
                 Polarity::Up
             } else {
                 Polarity::Down
@@ -242,8 +258,8 @@ pub fn measure_trace(
         }
     };
     let (mut v_on, mut v_off) = match polarity {
-        Polarity::Up => (states.low_v, states.high_v),
-        Polarity::Down => (states.high_v, states.low_v),
+        Polarity::Up => (low_v, high_v),
+        Polarity::Down => (high_v, low_v),
     };
 
     let mut pass = 0;

@@ -241,6 +241,55 @@ fn min_on_time_overrides_the_derived_dwell() {
 }
 
 #[test]
+fn coarse_sampling_and_short_records_are_flagged() {
+    // 20 us samples on a 200 us ring period give 10 per period but only about 3 across the
+    // 66 us main lobe: undersampled (DESIGN.md: fewer than 10 across the lobe or a period).
+    let rlc = relay();
+    let dt = 20e-6;
+    let mut v = vec![0.0; 200];
+    v.extend((0..400).map(|k| rlc.v(k as f64 * dt + 0.3 * dt)));
+    let m = measure_trace(
+        &Trace {
+            v: &v,
+            i: None,
+            dt_s: dt,
+            t0_s: 0.0,
+            adc: None,
+        },
+        &MeasureOptions::default(),
+    )
+    .unwrap();
+    assert_eq!(m.events.len(), 1);
+    assert!(m.events[0].undersampled);
+    // The record stops 1 ms after the opening, while the ring is still far outside the
+    // settle band (380 V * exp(-1000 * 1 ms) = 140 V): truncated, no settle time. No off
+    // state is in such a record, so the supply is given.
+    let dt = 0.5e-6;
+    let mut v = vec![0.0; 2000];
+    v.extend((0..2000).map(|k| rlc.v(k as f64 * dt)));
+    let opts = MeasureOptions {
+        supply_v: Some(24.0),
+        ..MeasureOptions::default()
+    };
+    let m = measure_trace(
+        &Trace {
+            v: &v,
+            i: None,
+            dt_s: dt,
+            t0_s: 0.0,
+            adc: None,
+        },
+        &opts,
+    )
+    .unwrap();
+    // The ring's centre line puts the off level back on the supply.
+    assert!((m.v_off - 24.0).abs() < 0.5, "{} {:?}", m.v_off, m.warnings);
+    assert_eq!(m.events.len(), 1);
+    assert!(m.events[0].truncated && m.events[0].settle_time_s.is_none());
+    assert!(!m.events[0].undersampled);
+}
+
+#[test]
 fn flat_signal_is_an_error_not_a_panic() {
     let v = vec![3.0; 1000];
     let r = measure_trace(
