@@ -144,6 +144,21 @@ pub fn level_near(v: &[f64], target_v: f64, half_width_v: f64) -> Option<f64> {
     median_in_place(&mut near)
 }
 
+/// Longest stretch of consecutive samples within `half_width_v` of `level_v`: a true state
+/// holds for a while, the turning points of a ring only for a few samples.
+pub fn longest_run_near(v: &[f64], level_v: f64, half_width_v: f64) -> usize {
+    let (mut best, mut run) = (0, 0);
+    for &x in v {
+        if (x - level_v).abs() <= half_width_v {
+            run += 1;
+            best = best.max(run);
+        } else {
+            run = 0;
+        }
+    }
+    best
+}
+
 /// Smallest and largest finite sample.
 pub fn finite_range(v: &[f64]) -> Option<(f64, f64)> {
     let mut lo = f64::INFINITY;

@@ -189,6 +189,8 @@ pub fn measure_trace(
     opts: &MeasureOptions,
 ) -> Result<CaptureMeasurement, MeasureError> {
     const MIN_SAMPLES: usize = 16;
+    // A state holds for at least this many consecutive samples.
+    const MIN_STATE_RUN: usize = 32;
     let v = trace.v;
     if v.len() < MIN_SAMPLES {
         return Err(MeasureError::TooShort {
@@ -362,6 +364,15 @@ pub fn measure_trace(
         }
 
         warnings.extend(notes);
+        for (which, level) in [("on", v_on), ("off", v_off)] {
+            if opts.supply_v.is_none()
+                && levels::longest_run_near(v, level, 2.0 * resolution) < MIN_STATE_RUN
+            {
+                warnings.push(format!(
+                    "the signal never holds near the {which} level {level:.3} V for {MIN_STATE_RUN} samples: the record may end before the events settle; give --supply for dependable levels"
+                ));
+            }
+        }
         capture_warnings(&mut warnings, &evs, v_on, v_off, polarity, opts);
         let windows = windows.iter().map(|&(a, b, _)| (a, b)).collect();
         return Ok(CaptureMeasurement {

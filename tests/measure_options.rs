@@ -282,6 +282,23 @@ fn coarse_sampling_and_short_records_are_flagged() {
         &opts,
     )
     .unwrap();
+    // Without the supply the record has no off state to find, and says so.
+    let m0 = measure_trace(
+        &Trace {
+            v: &v,
+            i: None,
+            dt_s: dt,
+            t0_s: 0.0,
+            adc: None,
+        },
+        &MeasureOptions::default(),
+    )
+    .unwrap();
+    assert!(
+        m0.warnings.iter().any(|w| w.contains("give --supply")),
+        "{:?}",
+        m0.warnings
+    );
     // The ring's centre line puts the off level back on the supply.
     assert!((m.v_off - 24.0).abs() < 0.5, "{} {:?}", m.v_off, m.warnings);
     assert_eq!(m.events.len(), 1);
