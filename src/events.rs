@@ -1,1 +1,315 @@
 //! Turn-off edges: 50 % reference-level crossings after an on-state dwell.
+//!
+//! The node rings back through the middle level many times after turn-off; those crossings
+//! are not new switchings. Samples are classified with hysteresis around the 50 % level
+//! (in units of the step: 0 is the on level, 1 the off level, the spike goes beyond 1
+//! whatever the polarity), and an edge counts only when the on state ("low" in these units)
+//! held for a dwell time. The dwell comes from the data: ringing dips into the on state last
+//! at most half a ring period, true on states last far longer, so the lengths of the on runs
+//! fall in two groups and the dwell sits in the gap between them.
+//!
+//! [`EdgeDetector`] is a state machine fed block by block with absolute sample indices, so
+//! it can run on a stream.
+
+/// Smallest ratio between two groups of on-run lengths for them to count as different kinds
+/// (ringing dips against true on states).
+const DWELL_GAP_RATIO: f64 = 4.0;
+
+/// Settings of the edge detector.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct EdgeParams {
+    pub v_on: f64,
+    pub v_off: f64,
+    /// Half-width of the hysteresis band around the 50 % level, as a fraction of the step.
+    pub hysteresis_f: f64,
+    /// Samples the on state must hold before an upward crossing counts as an edge.
+    pub dwell_samples: usize,
+}
+
+impl EdgeParams {
+    /// Position of `v` in units of the step: 0 at the on level, 1 at the off level.
+    fn unit(&self, v: f64) -> f64 {
+        (v - self.v_on) / (self.v_off - self.v_on)
+    }
+}
+
+/// What the detector reports, with absolute sample indices.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Mark {
+    /// A turn-off edge: the 50 % level is crossed between samples `index` and `index + 1`.
+    Edge { index: usize },
+    /// An on state that held for the dwell began at `index` (first sample below 50 %):
+    /// the turn-on that closes the event before it.
+    TurnOn { index: usize },
+}
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum State {
+    Unknown,
+    Low,
+    High,
+}
+
+/// Streaming edge detector (see the module notes).
+#[derive(Debug, Clone)]
+pub struct EdgeDetector {
+    p: EdgeParams,
+    state: State,
+    /// Where the current low run entered the low band.
+    low_start: usize,
+    /// First sample below 50 % since the signal was last at or above it.
+    below_mid_start: usize,
+    /// Last sample below 50 %.
+    last_below_mid: Option<usize>,
+    was_below_mid: bool,
+    qualified: bool,
+    next_index: usize,
+}
+
+impl EdgeDetector {
+    pub fn new(p: EdgeParams) -> Self {
+        EdgeDetector {
+            p,
+            state: State::Unknown,
+            low_start: 0,
+            below_mid_start: 0,
+            last_below_mid: None,
+            was_below_mid: false,
+            qualified: false,
+            next_index: 0,
+        }
+    }
+
+    /// Feeds the next block of samples; marks found are appended to `out`.
+    pub fn push(&mut self, block: &[f64], out: &mut Vec<Mark>) {
+        let h = self.p.hysteresis_f;
+        for &v in block {
+            let k = self.next_index;
+            self.next_index += 1;
+            let x = self.p.unit(v);
+            if !x.is_finite() {
+                continue;
+            }
+            if x < 0.5 {
+                if !self.was_below_mid {
+                    self.below_mid_start = k;
+                }
+                self.was_below_mid = true;
+                self.last_below_mid = Some(k);
+            } else {
+                self.was_below_mid = false;
+            }
+            if x < 0.5 - h {
+                if self.state != State::Low {
+                    // A record that opens in the on state counts its run from sample 0.
+                    self.low_start = if self.state == State::Unknown { 0 } else { k };
+                    self.state = State::Low;
+                    self.qualified = false;
+                }
+            } else if x > 0.5 + h {
+                if self.state == State::Low && self.qualified {
+                    if let Some(i) = self.last_below_mid {
+                        out.push(Mark::Edge { index: i });
+                    }
+                }
+                self.state = State::High;
+                self.qualified = false;
+            }
+            if self.state == State::Low
+                && !self.qualified
+                && k + 1 - self.low_start >= self.p.dwell_samples
+            {
+                self.qualified = true;
+                out.push(Mark::TurnOn {
+                    index: self.below_mid_start.min(self.low_start),
+                });
+            }
+        }
+    }
+}
+
+/// Lengths (in samples) of the runs spent in the low (on) band, hysteresis as in
+/// [`EdgeDetector`]. A run cut by the start or the end of the record is included: its
+/// length is a lower bound, and a long one still marks a true on state.
+pub fn low_run_lengths(v: &[f64], v_on: f64, v_off: f64, hysteresis_f: f64) -> Vec<usize> {
+    let span = v_off - v_on;
+    let mut runs = Vec::new();
+    let mut start: Option<usize> = None;
+    for (k, &x) in v.iter().enumerate() {
+        let u = (x - v_on) / span;
+        if u < 0.5 - hysteresis_f {
+            if start.is_none() {
+                start = Some(k);
+            }
+        } else if u > 0.5 + hysteresis_f {
+            if let Some(s) = start.take() {
+                runs.push(k - s);
+            }
+        }
+    }
+    if let Some(s) = start {
+        runs.push(v.len() - s);
+    }
+    runs
+}
+
+/// The dwell that separates ringing dips from true on states: the geometric middle of the
+/// widest gap (ratio at least [`DWELL_GAP_RATIO`]) between sorted run lengths; half the
+/// shortest run when all runs are of one kind.
+pub fn derive_dwell(runs: &[usize]) -> usize {
+    let mut r: Vec<usize> = runs.iter().copied().filter(|&n| n > 0).collect();
+    r.sort_unstable();
+    let Some(&shortest) = r.first() else {
+        return 2;
+    };
+    let mut best: Option<(f64, usize, usize)> = None;
+    for w in r.windows(2) {
+        let (a, b) = (w[0] as f64, w[1] as f64);
+        let ratio = b / a;
+        if ratio >= DWELL_GAP_RATIO && best.is_none_or(|(q, _, _)| ratio > q) {
+            best = Some((ratio, w[0], w[1]));
+        }
+    }
+    match best {
+        Some((_, a, b)) => (((a as f64) * (b as f64)).sqrt().ceil() as usize).max(2),
+        None => (shortest / 2).max(2),
+    }
+}
+
+/// Edges and turn-ons of a whole record.
+#[derive(Debug, Clone, PartialEq)]
+pub struct EdgeScan {
+    /// Sample index before each turn-off 50 % crossing.
+    pub edges: Vec<usize>,
+    /// First sample below 50 % of each on state that held for the dwell.
+    pub turn_ons: Vec<usize>,
+    pub dwell_samples: usize,
+}
+
+/// Runs the detector over a whole record.
+pub fn scan_edges(v: &[f64], p: EdgeParams) -> EdgeScan {
+    let mut det = EdgeDetector::new(p);
+    let mut marks = Vec::new();
+    det.push(v, &mut marks);
+    let mut scan = EdgeScan {
+        edges: Vec::new(),
+        turn_ons: Vec::new(),
+        dwell_samples: p.dwell_samples,
+    };
+    for m in marks {
+        match m {
+            Mark::Edge { index } => scan.edges.push(index),
+            Mark::TurnOn { index } => scan.turn_ons.push(index),
+        }
+    }
+    scan
+}
+
+/// Sample range `[start, end)` of each event window: from a little before the edge (half
+/// the on run before it, at most a tenth of the window after the edge and at least 16
+/// samples, so the pre-edge on level is included) to the next turn-on, the end of the record
+/// or `max_samples` after the edge, whichever comes first. The flag says the window was cut
+/// by `max_samples`.
+pub fn event_windows(
+    scan: &EdgeScan,
+    n: usize,
+    max_samples: Option<usize>,
+) -> Vec<(usize, usize, bool)> {
+    let mut out = Vec::with_capacity(scan.edges.len());
+    for &e in &scan.edges {
+        // Turn-ons come in order, so both neighbours are found by bisection.
+        let after = scan.turn_ons.partition_point(|&t| t <= e);
+        let next_on = scan.turn_ons.get(after).copied().unwrap_or(n);
+        let (end, cut) = match max_samples {
+            Some(m) if e.saturating_add(m) < next_on => (e + m, true),
+            _ => (next_on, false),
+        };
+        let prev_on = after
+            .checked_sub(1)
+            .and_then(|k| scan.turn_ons.get(k))
+            .copied()
+            .unwrap_or(0);
+        let on_run = e.saturating_sub(prev_on);
+        let pre = (on_run / 2).min(((end - e) / 10).max(16));
+        out.push((e.saturating_sub(pre), end.min(n), cut));
+    }
+    out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn params(dwell: usize) -> EdgeParams {
+        EdgeParams {
+            v_on: 0.0,
+            v_off: 10.0,
+            hysteresis_f: 0.1,
+            dwell_samples: dwell,
+        }
+    }
+
+    /// On for 200 samples, a spike, then a ring around the off level swinging through the
+    /// on level (amplitude 15 V on a 10 V step, 40-sample period), off for a while.
+    fn ringing_cycle(v: &mut Vec<f64>) {
+        v.extend(std::iter::repeat_n(0.0, 200));
+        for k in 0..600 {
+            let t = k as f64;
+            v.push(
+                10.0 + 15.0 * (-t / 150.0).exp() * (2.0 * std::f64::consts::PI * t / 40.0).sin(),
+            );
+        }
+    }
+
+    #[test]
+    fn ringing_through_the_middle_is_not_an_edge() {
+        let mut v = Vec::new();
+        for _ in 0..5 {
+            ringing_cycle(&mut v);
+        }
+        let runs = low_run_lengths(&v, 0.0, 10.0, 0.1);
+        let dwell = derive_dwell(&runs);
+        // Ring dips last under half the 40-sample period; on states 200 samples.
+        assert!(dwell > 20 && dwell < 200, "dwell {dwell} from {runs:?}");
+        let scan = scan_edges(&v, params(dwell));
+        assert_eq!(scan.edges, vec![199, 999, 1799, 2599, 3399]);
+        assert_eq!(scan.turn_ons.len(), 5);
+    }
+
+    #[test]
+    fn block_feeding_gives_the_same_marks_as_one_slice() {
+        let mut v = Vec::new();
+        for _ in 0..3 {
+            ringing_cycle(&mut v);
+        }
+        let mut whole = Vec::new();
+        EdgeDetector::new(params(60)).push(&v, &mut whole);
+        let mut det = EdgeDetector::new(params(60));
+        let mut blocks = Vec::new();
+        for chunk in v.chunks(37) {
+            det.push(chunk, &mut blocks);
+        }
+        assert_eq!(whole, blocks);
+    }
+
+    #[test]
+    fn windows_end_at_the_next_turn_on_or_the_limit() {
+        let scan = EdgeScan {
+            edges: vec![100, 500],
+            turn_ons: vec![0, 400],
+            dwell_samples: 50,
+        };
+        let w = event_windows(&scan, 900, None);
+        assert_eq!(w[0], (100 - 30, 400, false));
+        assert_eq!(w[1].1, 900);
+        let w = event_windows(&scan, 900, Some(100));
+        assert_eq!(w[0].1, 200);
+        assert!(w[0].2);
+    }
+
+    #[test]
+    fn dwell_without_ring_dips_is_half_the_shortest_on_run() {
+        assert_eq!(derive_dwell(&[300, 320, 310]), 150);
+        assert_eq!(derive_dwell(&[]), 2);
+    }
+}

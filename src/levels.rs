@@ -1,2 +1,346 @@
 //! State levels (IEEE Std 181-2011 histogram method, made robust to spikes) and reference
 //! levels.
+//!
+//! The textbook method splits the histogram of the whole record at the middle of its range
+//! and takes the mode of each half. Flyback spikes are often 10 to 100 times the switching
+//! step, so both states end up in the lower half and the bins can be wider than the step.
+//! Here the bin width comes from the noise and the ADC code step, and two modes count as
+//! separate states when they lie apart by many noise standard deviations, whatever the range.
+
+/// Largest number of histogram bins; beyond it the bin width grows (memory stays bounded).
+const MAX_BINS: usize = 1 << 20;
+/// Largest number of first differences kept for a noise estimate (a strided subset beyond).
+const MAX_NOISE_SAMPLES: usize = 1 << 20;
+/// Consistency constant of the median absolute deviation for Gaussian data
+/// (Rousseeuw & Croux 1993).
+const MAD_TO_SIGMA: f64 = 1.482_602_218_505_602;
+
+/// Reference level at `pct` percent of the way from `base_v` to `top_v`
+/// (IEEE Std 181-2011, 5.3.3: x% reference level = base + x/100 * amplitude).
+pub fn reference_level(base_v: f64, top_v: f64, pct: f64) -> f64 {
+    base_v + pct / 100.0 * (top_v - base_v)
+}
+
+/// Instant where the straight line through `(t0, v0)` and `(t1, v1)` crosses `level_v`
+/// (IEEE Std 181-2011, 5.3.4: linear interpolation between the two samples that bracket the
+/// crossing). `None` when the two samples do not bracket the level.
+pub fn crossing_time(t0_s: f64, v0: f64, t1_s: f64, v1: f64, level_v: f64) -> Option<f64> {
+    let lo = v0.min(v1);
+    let hi = v0.max(v1);
+    if !(lo <= level_v && level_v <= hi) {
+        return None;
+    }
+    if v1 == v0 {
+        return Some(t0_s);
+    }
+    Some(t0_s + (level_v - v0) / (v1 - v0) * (t1_s - t0_s))
+}
+
+/// Fractional sample index where `v[k] -> v[k+1]` crosses `level_v`, if it does.
+pub fn crossing_index(v: &[f64], k: usize, level_v: f64) -> Option<f64> {
+    let a = *v.get(k)?;
+    let b = *v.get(k + 1)?;
+    crossing_time(k as f64, a, k as f64 + 1.0, b, level_v)
+}
+
+/// Overshoot aberration in percent of the amplitude (IEEE Std 181-2011, 5.3.6.2 applied to
+/// the level just after the transition): `|peak - top| / |top - base| * 100`.
+pub fn overshoot_pct(base_v: f64, top_v: f64, peak_v: f64) -> Option<f64> {
+    let amp = (top_v - base_v).abs();
+    (amp > 0.0).then(|| (peak_v - top_v).abs() / amp * 100.0)
+}
+
+/// Median of a buffer, reordering it. `None` when empty or when it holds a NaN.
+pub fn median_in_place(buf: &mut [f64]) -> Option<f64> {
+    if buf.is_empty() || buf.iter().any(|x| x.is_nan()) {
+        return None;
+    }
+    let mid = buf.len() / 2;
+    let (_, m, _) = buf.select_nth_unstable_by(mid, f64::total_cmp);
+    Some(*m)
+}
+
+/// Median of a slice (copies it).
+pub fn median(v: &[f64]) -> Option<f64> {
+    let mut buf = v.to_vec();
+    median_in_place(&mut buf)
+}
+
+/// Noise standard deviation from first differences: `MAD(diff) * 1.4826 / sqrt(2)`.
+///
+/// Differencing removes slow signal, and the median ignores the few large differences at
+/// edges and spikes, so this holds on a whole record as long as most of it is quiet. Only
+/// the differences where `keep(v[k-1], v[k])` holds enter (e.g. samples in the on state).
+pub fn noise_sigma_where(v: &[f64], keep: impl Fn(f64, f64) -> bool) -> Option<f64> {
+    let stride = (v.len() / MAX_NOISE_SAMPLES).max(1);
+    let mut d: Vec<f64> = Vec::with_capacity((v.len() / stride).min(MAX_NOISE_SAMPLES + 1));
+    let mut k = 1;
+    while k < v.len() {
+        let (a, b) = (v[k - 1], v[k]);
+        if a.is_finite() && b.is_finite() && keep(a, b) {
+            d.push((b - a).abs());
+        }
+        k += stride;
+    }
+    if d.len() < 8 {
+        return None;
+    }
+    // The differences are absolute values of a zero-centred quantity, so their median is
+    // the MAD of the differences.
+    median_in_place(&mut d).map(|m| m * MAD_TO_SIGMA / std::f64::consts::SQRT_2)
+}
+
+/// Noise standard deviation over the whole record (see [`noise_sigma_where`]).
+pub fn noise_sigma(v: &[f64]) -> Option<f64> {
+    noise_sigma_where(v, |_, _| true)
+}
+
+/// The ADC code step, when the samples sit on a regular grid: the smallest non-zero first
+/// difference, accepted when (nearly) every difference is a whole multiple of it.
+pub fn adc_step_estimate(v: &[f64]) -> Option<f64> {
+    let stride = (v.len() / MAX_NOISE_SAMPLES).max(1);
+    let mut d_min = f64::INFINITY;
+    let mut k = 1;
+    let (lo, hi) = finite_range(v)?;
+    let tiny = (hi - lo).abs() * 1e-9;
+    while k < v.len() {
+        let d = (v[k] - v[k - 1]).abs();
+        if d.is_finite() && d > tiny && d < d_min {
+            d_min = d;
+        }
+        k += stride;
+    }
+    if !d_min.is_finite() {
+        return None;
+    }
+    let (mut n, mut on_grid) = (0usize, 0usize);
+    let mut k = 1;
+    while k < v.len() && n < 4096 {
+        let d = (v[k] - v[k - 1]).abs();
+        if d.is_finite() && d > tiny {
+            n += 1;
+            let r = d / d_min;
+            if (r - r.round()).abs() < 0.02 {
+                on_grid += 1;
+            }
+        }
+        k += stride.max(1);
+    }
+    // Unquantised data with noise gives ratios spread evenly, so about 4 % land within
+    // 0.02 of an integer by chance; a grid gives nearly all.
+    (n >= 8 && on_grid * 100 >= n * 95).then_some(d_min)
+}
+
+/// Median of the samples within `half_width_v` of `target_v`; `None` with fewer than 16.
+pub fn level_near(v: &[f64], target_v: f64, half_width_v: f64) -> Option<f64> {
+    let mut near: Vec<f64> = v
+        .iter()
+        .copied()
+        .filter(|x| (x - target_v).abs() <= half_width_v)
+        .collect();
+    if near.len() < 16 {
+        return None;
+    }
+    median_in_place(&mut near)
+}
+
+/// Longest stretch of consecutive samples within `half_width_v` of `level_v`: a true state
+/// holds for a while, the turning points of a ring only for a few samples.
+pub fn longest_run_near(v: &[f64], level_v: f64, half_width_v: f64) -> usize {
+    let (mut best, mut run) = (0, 0);
+    for &x in v {
+        if (x - level_v).abs() <= half_width_v {
+            run += 1;
+            best = best.max(run);
+        } else {
+            run = 0;
+        }
+    }
+    best
+}
+
+/// Smallest and largest finite sample.
+pub fn finite_range(v: &[f64]) -> Option<(f64, f64)> {
+    let mut lo = f64::INFINITY;
+    let mut hi = f64::NEG_INFINITY;
+    for &x in v {
+        if x.is_finite() {
+            lo = lo.min(x);
+            hi = hi.max(x);
+        }
+    }
+    (lo <= hi).then_some((lo, hi))
+}
+
+/// The two state levels found in a record, lower one first, with how many samples each
+/// histogram mode holds (after smoothing).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct StateLevels {
+    pub low_v: f64,
+    pub high_v: f64,
+    pub low_count: f64,
+    pub high_count: f64,
+    /// Histogram bin width used.
+    pub bin_v: f64,
+}
+
+/// The two most populated histogram modes that lie apart by at least `min_separation_v`.
+///
+/// `resolution_v` is the finest detail the bins must resolve (noise, ADC step); the bins are
+/// half of it wide (never narrower than the range / `MAX_BINS`), and the counts are smoothed
+/// with a kernel about `resolution_v` wide so the noise of one state makes one mode. Each
+/// mode's level is the mean of the samples within one resolution of its bin, which undoes
+/// the bin's quantisation.
+pub fn two_state_levels(
+    v: &[f64],
+    resolution_v: f64,
+    min_separation_v: f64,
+) -> Option<StateLevels> {
+    let (lo, hi) = finite_range(v)?;
+    let range = hi - lo;
+    if range <= 0.0 {
+        return None;
+    }
+    let bin = (resolution_v / 2.0).max(range / MAX_BINS as f64);
+    if !(bin > 0.0 && bin.is_finite()) {
+        return None;
+    }
+    let nbins = ((range / bin).floor() as usize + 1).min(MAX_BINS + 1);
+    let mut counts = vec![0f64; nbins];
+    for &x in v {
+        if x.is_finite() {
+            let b = (((x - lo) / bin) as usize).min(nbins - 1);
+            counts[b] += 1.0;
+        }
+    }
+    // Box smoothing over +-half_k bins (about one resolution wide).
+    let half_k = ((resolution_v / bin).round() as usize / 2).max(1);
+    let mut smooth = vec![0f64; nbins];
+    let mut acc = 0.0;
+    for k in 0..nbins + half_k {
+        if k < nbins {
+            acc += counts[k];
+        }
+        if k > 2 * half_k {
+            acc -= counts[k - 2 * half_k - 1];
+        }
+        if k >= half_k && k - half_k < nbins {
+            smooth[k - half_k] = acc;
+        }
+    }
+    // Local maxima (plateaus of equal counts take their first bin).
+    let mut peaks: Vec<usize> = Vec::new();
+    for k in 0..nbins {
+        let c = smooth[k];
+        if c <= 0.0 {
+            continue;
+        }
+        let left = if k > 0 { smooth[k - 1] } else { 0.0 };
+        let right = if k + 1 < nbins { smooth[k + 1] } else { 0.0 };
+        if c > left && c >= right {
+            peaks.push(k);
+        }
+    }
+    peaks.sort_by(|a, b| smooth[*b].total_cmp(&smooth[*a]));
+    let first = *peaks.first()?;
+    let centre = |k: usize| lo + (k as f64 + 0.5) * bin;
+    let second = peaks
+        .iter()
+        .copied()
+        .find(|&k| (centre(k) - centre(first)).abs() >= min_separation_v)?;
+    // The median of the samples near the mode, re-centred a few times, undoes the bin's
+    // quantisation without being pulled by the transitions that pass through.
+    let refine = |k: usize| -> f64 {
+        let mut c = centre(k);
+        let w = 2.0 * resolution_v.max(bin);
+        let mut near: Vec<f64> = Vec::new();
+        for _ in 0..3 {
+            near.clear();
+            near.extend(v.iter().copied().filter(|x| (x - c).abs() <= w));
+            match median_in_place(&mut near) {
+                Some(m) => c = m,
+                None => break,
+            }
+        }
+        c
+    };
+    let (a, b) = (refine(first), refine(second));
+    let (ca, cb) = (smooth[first], smooth[second]);
+    Some(if a <= b {
+        StateLevels {
+            low_v: a,
+            high_v: b,
+            low_count: ca,
+            high_count: cb,
+            bin_v: bin,
+        }
+    } else {
+        StateLevels {
+            low_v: b,
+            high_v: a,
+            low_count: cb,
+            high_count: ca,
+            bin_v: bin,
+        }
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn reference_levels_of_the_standard_example() {
+        // IEEE Std 181-2011 formulas: base 0 V, top 12 V -> 10/50/90 % at 1.2/6.0/10.8 V.
+        assert!((reference_level(0.0, 12.0, 10.0) - 1.2).abs() < 1e-12);
+        assert!((reference_level(0.0, 12.0, 50.0) - 6.0).abs() < 1e-12);
+        assert!((reference_level(0.0, 12.0, 90.0) - 10.8).abs() < 1e-12);
+        // Overshoot aberration: peak 30 V over a 12 V step -> (30-12)/12 = 150 %.
+        assert!((overshoot_pct(0.0, 12.0, 30.0).unwrap() - 150.0).abs() < 1e-9);
+    }
+
+    #[test]
+    fn crossing_is_interpolated_between_bracketing_samples() {
+        // IEEE Std 181-2011 linear interpolation: (0 ns, 1.0 V), (1 ns, 2.0 V), level 1.2 V
+        // -> 0.2 ns.
+        let t = crossing_time(0.0, 1.0, 1e-9, 2.0, 1.2).unwrap();
+        assert!((t - 0.2e-9).abs() < 1e-21);
+        assert_eq!(crossing_time(0.0, 1.0, 1e-9, 2.0, 2.5), None);
+    }
+
+    #[test]
+    fn noise_from_differences_ignores_steps() {
+        // A square wave with a deterministic +-1 alternating ripple: diffs are 2 except at
+        // edges, so MAD = 2 and sigma = 2 * 1.4826 / sqrt(2) (formula of the estimator).
+        let v: Vec<f64> = (0..1000)
+            .map(|k| if (k / 100) % 2 == 0 { 0.0 } else { 50.0 } + if k % 2 == 0 { 1.0 } else { -1.0 })
+            .collect();
+        let s = noise_sigma(&v).unwrap();
+        assert!((s - 2.0 * MAD_TO_SIGMA / 2f64.sqrt()).abs() < 1e-9);
+    }
+
+    #[test]
+    fn adc_step_found_on_a_grid_and_not_off_it() {
+        let grid: Vec<f64> = (0..500)
+            .map(|k| ((k as f64 * 0.05).sin() * 40.0).round() * 0.25 + 3.0)
+            .collect();
+        assert!((adc_step_estimate(&grid).unwrap() - 0.25).abs() < 1e-12);
+        let off: Vec<f64> = (0..500).map(|k| (k as f64 * 0.7).sin() * 3.3).collect();
+        assert_eq!(adc_step_estimate(&off), None);
+    }
+
+    #[test]
+    fn modes_survive_a_spike_a_hundred_times_the_step() {
+        // 24 V step, rare spikes to 2.4 kV: the two-halves method would put both states
+        // below the middle of the range; the separated modes must stay at 0 and 24 V.
+        let mut v = Vec::new();
+        for cycle in 0..20 {
+            v.extend(std::iter::repeat_n(0.0, 400));
+            v.extend((0..5).map(|k| 2400.0 - 100.0 * k as f64 + cycle as f64));
+            v.extend(std::iter::repeat_n(24.0, 300));
+        }
+        let s = two_state_levels(&v, 0.5, 5.0).unwrap();
+        assert!((s.low_v - 0.0).abs() < 1e-9, "{s:?}");
+        assert!((s.high_v - 24.0).abs() < 1e-9, "{s:?}");
+    }
+}

@@ -6,6 +6,10 @@
 use serde::Serialize;
 
 use crate::capture::AdcRange;
+use crate::{events, levels};
+
+mod event;
+pub mod ring;
 
 /// Which way the spike goes.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Default)]
@@ -155,7 +159,10 @@ pub struct CaptureMeasurement {
     pub polarity: Polarity,
     pub events: Vec<Event>,
     pub warnings: Vec<String>,
-    /// Sample index range `[start, end)` of each event's window, for plots and fits.
+    /// Sample index range `[start, end)` of each event's window, for plots and fits: from a
+    /// little before the edge (half the preceding on run, at most a tenth of the window
+    /// after the edge and at least 16 samples, so the pre-edge on level is in it) to the
+    /// next turn-on, the end of the capture or `max_window_s` after the edge.
     pub windows: Vec<(usize, usize)>,
 }
 
@@ -171,10 +178,264 @@ pub enum MeasureError {
 }
 
 /// Finds and measures every turn-off event of one capture.
+///
+/// Steps: noise and ADC step; the two state levels (histogram modes resolving the step);
+/// polarity; edges after an on-state dwell; each window measured; then the state levels
+/// cross-checked against the level just before each edge and where each event settled.
+/// When they disagree (a clamp plateau or a ringing tail outnumbering the off state) a
+/// warning says so and the events are found and measured again with the local levels.
 pub fn measure_trace(
     trace: &Trace,
     opts: &MeasureOptions,
 ) -> Result<CaptureMeasurement, MeasureError> {
-    let _ = (trace, opts);
-    Err(MeasureError::Invalid("measurement is not built yet".into()))
+    const MIN_SAMPLES: usize = 16;
+    // A state holds for at least this many consecutive samples.
+    const MIN_STATE_RUN: usize = 32;
+    let v = trace.v;
+    if v.len() < MIN_SAMPLES {
+        return Err(MeasureError::TooShort {
+            n: v.len(),
+            min: MIN_SAMPLES,
+        });
+    }
+    if !(trace.dt_s > 0.0 && trace.dt_s.is_finite()) {
+        return Err(MeasureError::Invalid(format!(
+            "the sample interval must be a positive number of seconds, not {}",
+            trace.dt_s
+        )));
+    }
+    let mut warnings = Vec::new();
+    let current = match trace.i {
+        Some(i) if i.len() != v.len() => {
+            warnings.push(format!(
+                "the current channel has {} samples and the voltage {}; energies left out",
+                i.len(),
+                v.len()
+            ));
+            None
+        }
+        other => other,
+    };
+    let (lo, hi) = levels::finite_range(v).ok_or(MeasureError::NoStates { spread_v: 0.0 })?;
+    let adc_step_v = trace
+        .adc
+        .and_then(|a| a.step_v)
+        .or_else(|| levels::adc_step_estimate(v))
+        .unwrap_or(0.0);
+    let rough_sigma = levels::noise_sigma(v).unwrap_or(0.0);
+    let range = hi - lo;
+    let resolution = (2.0 * rough_sigma).max(adc_step_v).max(range * 1e-5);
+    // "Separate" means many noise deviations apart, not a fraction of the range.
+    let separation = (6.0 * rough_sigma + 2.0 * adc_step_v).max(range * 1e-3);
+    let states = levels::two_state_levels(v, resolution, separation)
+        .ok_or(MeasureError::NoStates { spread_v: range })?;
+    // With the supply known the two states are ground and the supply, whichever side the
+    // switch is on: take the level the samples hold near each (within 15 %, so a sagging
+    // supply is still found). This also serves a record that ends before its only event
+    // settles, where no off state is in the histogram at all.
+    let (low_v, high_v) = match opts
+        .supply_v
+        .filter(|s| s.is_finite() && s.abs() > separation)
+    {
+        Some(sup) => {
+            let hw = 0.15 * sup.abs();
+            let g = levels::level_near(v, 0.0, hw).unwrap_or(0.0);
+            let s = levels::level_near(v, sup, hw).unwrap_or(sup);
+            (g.min(s), g.max(s))
+        }
+        None => (states.low_v, states.high_v),
+    };
+
+    let polarity = match opts.polarity {
+        PolarityChoice::Up => Polarity::Up,
+        PolarityChoice::Down => Polarity::Down,
+        PolarityChoice::Auto => {
+            // Low-side switching is the common case; down only when the downward
+            // excursion clearly wins.
+            if low_v - lo <= hi - high_v + resolution {
+                Polarity::Up
+            } else {
+                Polarity::Down
+            }
+        }
+    };
+    let (mut v_on, mut v_off) = match polarity {
+        Polarity::Up => (low_v, high_v),
+        Polarity::Down => (high_v, low_v),
+    };
+
+    let mut pass = 0;
+    loop {
+        let step = (v_off - v_on).abs();
+        let sigma = levels::noise_sigma_where(v, |a, b| {
+            (a - v_on).abs() < 0.25 * step && (b - v_on).abs() < 0.25 * step
+        })
+        .unwrap_or(rough_sigma);
+        let hysteresis_f = (4.0 * sigma.max(adc_step_v) / step).clamp(0.05, 0.35);
+        let dwell = match opts.min_on_time_s {
+            Some(t) if t > 0.0 => ((t / trace.dt_s).ceil() as usize).max(1),
+            _ => events::derive_dwell(&events::low_run_lengths(v, v_on, v_off, hysteresis_f)),
+        };
+        let params = events::EdgeParams {
+            v_on,
+            v_off,
+            hysteresis_f,
+            dwell_samples: dwell,
+        };
+        let scan = events::scan_edges(v, params);
+        let max_samples = opts
+            .max_window_s
+            .filter(|m| *m > 0.0)
+            .map(|m| (m / trace.dt_s).ceil() as usize);
+        let windows = events::event_windows(&scan, v.len(), max_samples);
+        let s = if polarity == Polarity::Up { 1.0 } else { -1.0 };
+        let extreme_v = if s > 0.0 { hi } else { lo };
+        let cx = event::Context {
+            v,
+            i: current,
+            dt_s: trace.dt_s,
+            t0_s: trace.t0_s,
+            v_on,
+            v_off,
+            polarity,
+            sigma_v: sigma,
+            adc_step_v,
+            adc_rail_v: trace.adc.map(|a| if s > 0.0 { a.max_v } else { a.min_v }),
+            extreme_v,
+            opts,
+        };
+        let mut evs = Vec::with_capacity(windows.len());
+        let mut befores = Vec::new();
+        let mut settleds = Vec::new();
+        let mut notes = Vec::new();
+        for (index, (&(start, end, cut), &edge)) in windows.iter().zip(&scan.edges).enumerate() {
+            let w = event::Window {
+                index,
+                start,
+                end,
+                edge,
+                cut,
+                closed_by_turn_on: !cut && end < v.len(),
+            };
+            let (ev, local) = event::measure_event(&cx, &w);
+            befores.extend(local.before_edge_v);
+            settleds.extend(local.settled_v);
+            notes.extend(local.notes);
+            evs.push(ev);
+        }
+
+        // Cross-check of the histogram levels with the local ones. The local medians are
+        // precise to a fraction of the noise: a disagreement of one noise deviation (or half
+        // a code) is worth a warning, and any disagreement beyond a quarter of the noise is
+        // corrected (one more pass with the local levels), since every level-relative
+        // figure (crossings, settling, ring peaks) inherits it.
+        let tol = sigma.max(0.5 * adc_step_v).max(0.002 * step);
+        let refine_tol = (0.25 * sigma).max(1e-4 * step);
+        let mut new_on = v_on;
+        let mut new_off = v_off;
+        if pass == 0 {
+            if let Some(l) = levels::median(&befores) {
+                if (l - v_on).abs() > tol {
+                    warnings.push(format!(
+                        "on level {v_on:.4} V from the histogram differs from {l:.4} V seen before the edges; using {l:.4} V"
+                    ));
+                }
+                if (l - v_on).abs() > refine_tol {
+                    new_on = l;
+                }
+            }
+            if let Some(l) = levels::median(&settleds) {
+                if (l - v_off).abs() > tol {
+                    warnings.push(format!(
+                        "off level {v_off:.4} V from the histogram differs from {l:.4} V where the events settled (a clamp plateau or ringing tail outnumbers the off state?); using {l:.4} V"
+                    ));
+                }
+                if (l - v_off).abs() > refine_tol {
+                    new_off = l;
+                }
+            }
+            let usable = (new_off - new_on).abs() > separation;
+            if (new_on != v_on || new_off != v_off) && usable {
+                v_on = new_on;
+                v_off = new_off;
+                pass += 1;
+                continue;
+            }
+        }
+
+        warnings.extend(notes);
+        for (which, level) in [("on", v_on), ("off", v_off)] {
+            if opts.supply_v.is_none()
+                && levels::longest_run_near(v, level, 2.0 * resolution) < MIN_STATE_RUN
+            {
+                warnings.push(format!(
+                    "the signal never holds near the {which} level {level:.3} V for {MIN_STATE_RUN} samples: the record may end before the events settle; give --supply for dependable levels"
+                ));
+            }
+        }
+        capture_warnings(&mut warnings, &evs, v_on, v_off, polarity, opts);
+        let windows = windows.iter().map(|&(a, b, _)| (a, b)).collect();
+        return Ok(CaptureMeasurement {
+            v_on,
+            v_off,
+            polarity,
+            events: evs,
+            warnings,
+            windows,
+        });
+    }
+}
+
+/// Things the user should know about a capture's events.
+fn capture_warnings(
+    warnings: &mut Vec<String>,
+    evs: &[Event],
+    v_on: f64,
+    v_off: f64,
+    polarity: Polarity,
+    opts: &MeasureOptions,
+) {
+    if evs.is_empty() {
+        warnings.push(format!(
+            "no turn-off edge found between the on level {v_on:.3} V and the off level {v_off:.3} V"
+        ));
+    }
+    if let Some(supply) = opts.supply_v {
+        let seen = match polarity {
+            Polarity::Up => v_off,
+            Polarity::Down => v_on,
+        };
+        let which = match polarity {
+            Polarity::Up => "off",
+            Polarity::Down => "on",
+        };
+        if supply != 0.0 && ((seen - supply) / supply).abs() > 0.05 {
+            warnings.push(format!(
+                "{which} level {seen:.2} V differs from --supply {supply} V by {:.0} %",
+                ((seen - supply) / supply).abs() * 100.0
+            ));
+        }
+    }
+    for ev in evs {
+        if let Some(r) = opts.rating_v {
+            if ev.switch_stress_v > r {
+                warnings.push(format!(
+                    "event {}: switch stress {:.1} V exceeds the rating {r} V",
+                    ev.index, ev.switch_stress_v
+                ));
+            }
+        }
+        if ev.clipped {
+            warnings.push(format!(
+                "event {}: the peak sits on the ADC rail; peak_v {:.2} V is a lower bound",
+                ev.index, ev.peak_v
+            ));
+        }
+    }
+    let n_under = evs.iter().filter(|e| e.undersampled).count();
+    if n_under > 0 {
+        warnings.push(format!(
+            "{n_under} event(s) have fewer than 10 samples across the main lobe or a ring period; times and frequencies are coarse"
+        ));
+    }
 }
