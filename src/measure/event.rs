@@ -77,8 +77,13 @@ impl Context<'_> {
         (self.v_off - self.v_on).abs()
     }
     /// Band a swing must leave to be more than noise: 3 sigma plus one code.
+    /// Narrowest band noise allows: 3 sigma plus one ADC step (DESIGN.md). On a coarse grid
+    /// the difference-based sigma can read zero while samples still flip between two codes,
+    /// so sigma is never taken below the quantization noise step/sqrt(12) (Widrow's
+    /// uniform-quantization model), and a sample exactly one code off stays inside.
     fn noise_band(&self) -> f64 {
-        3.0 * self.sigma_v + self.adc_step_v
+        let sigma = self.sigma_v.max(self.adc_step_v / 12f64.sqrt());
+        (3.0 * sigma + self.adc_step_v) * (1.0 + 1e-9)
     }
     fn noisy(&self) -> bool {
         self.sigma_v > 0.5 * self.adc_step_v && self.sigma_v > 1e-9 * self.step()
