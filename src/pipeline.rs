@@ -347,7 +347,10 @@ fn fit_events(
 }
 
 /// The per-event metrics that summaries and comparisons cover, with their accessors.
-pub const METRICS: &[(&str, fn(&Event) -> Option<f64>)] = &[
+/// Reads one metric off an event.
+pub type MetricGetter = fn(&Event) -> Option<f64>;
+
+pub const METRICS: &[(&str, MetricGetter)] = &[
     ("switch_stress_v", |e| Some(e.switch_stress_v)),
     ("peak_v", |e| Some(e.peak_v)),
     ("overshoot_v", |e| Some(e.overshoot_v)),
@@ -372,7 +375,7 @@ pub const METRICS: &[(&str, fn(&Event) -> Option<f64>)] = &[
 /// Values of one metric over every event, in input order, leaving out events without it.
 pub fn metric_values<'a>(
     events: impl Iterator<Item = &'a Event>,
-    get: fn(&Event) -> Option<f64>,
+    get: MetricGetter,
 ) -> Vec<f64> {
     events.filter_map(get).filter(|v| v.is_finite()).collect()
 }
