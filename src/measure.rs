@@ -124,6 +124,9 @@ pub struct Event {
     pub ring_kind: Option<RingKind>,
     pub damping_ratio: Option<f64>,
     pub settle_time_s: Option<f64>,
+    /// Half-width of the settle band actually used around `v_off` (the percentage of the
+    /// step, widened to what noise and ADC resolution allow).
+    pub settle_band_v: Option<f64>,
     pub volt_seconds: f64,
     pub energy_j: Option<f64>,
     pub clamp_energy_j: Option<f64>,

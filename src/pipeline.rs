@@ -125,8 +125,9 @@ pub fn inspect_file(path: &Path, read: &ReadOptions) -> Result<InspectFile, Stri
                     unit: c.unit.clone(),
                     min,
                     max,
-                    adc_min_v: c.adc.map(|a| a.min_v),
-                    adc_max_v: c.adc.map(|a| a.max_v),
+                    // A rail not seen is stored as infinite by the readers.
+                    adc_min_v: c.adc.map(|a| a.min_v).filter(|v| v.is_finite()),
+                    adc_max_v: c.adc.map(|a| a.max_v).filter(|v| v.is_finite()),
                 }
             })
             .collect(),
@@ -241,6 +242,12 @@ pub fn measure_file(
             SKETCH_POINTS,
         );
         sk.label = settings.label.clone();
+        // The widest band any event used: what the overlay should shade.
+        sk.settle_band_v = m
+            .events
+            .iter()
+            .filter_map(|e| e.settle_band_v)
+            .reduce(f64::max);
         sk
     });
     let doc = CaptureDoc {

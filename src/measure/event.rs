@@ -372,6 +372,7 @@ pub fn measure_event(cx: &Context, w: &Window) -> (Event, LocalLevels) {
         ring_kind,
         damping_ratio,
         settle_time_s,
+        settle_band_v: Some(band),
         volt_seconds,
         energy_j,
         clamp_energy_j,

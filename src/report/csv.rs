@@ -28,6 +28,7 @@ const ORDER: &[&str] = &[
     "ring_kind",
     "damping_ratio",
     "settle_time_s",
+    "settle_band_v",
     "volt_seconds",
     "energy_j",
     "clamp_energy_j",
