@@ -105,6 +105,12 @@ fn check_rlc(opts: SolverOptions) {
     );
     let f = crossing_frequency(&v[a..b], sc.dt_s, sc.supply_v).unwrap();
     let expect_f = rlc.wd / std::f64::consts::TAU;
+    eprintln!(
+        "shortcut {}: peak {peak:.4} V vs {expect_peak:.4} V ({:+.2e}), ring {f:.3} Hz vs {expect_f:.3} Hz ({:+.2e})",
+        opts.linear_shortcut,
+        peak / expect_peak - 1.0,
+        f / expect_f - 1.0
+    );
     assert!(
         (f / expect_f - 1.0).abs() < 1e-3,
         "ring {f} Hz vs analytic {expect_f} Hz"
@@ -143,6 +149,13 @@ fn balance(clamp: Clamp, body_diode: bool, linear_shortcut: bool) {
     let sim = simulate(&sc).unwrap();
     let e = sim.events[0].energy;
     let coil = 0.5 * sc.inductance_h * e.i0_a * e.i0_a;
+    eprintln!(
+        "{clamp:?} shortcut {linear_shortcut}: imbalance {:+.2e} of 1/2 L I0^2, clamp {:.3}, switch {:.3}, supply {:.3}",
+        e.imbalance_j() / coil,
+        e.clamp_j / coil,
+        e.switch_j / coil,
+        e.supply_j / coil
+    );
     // Conservation of energy: stored at the start + supplied = stored at the end +
     // dissipated (coil and loss resistances, clamp, switch); required within 1 % of 1/2 L I0^2.
     assert!(
@@ -223,6 +236,7 @@ fn avalanche_energy_against_the_clamped_decay_formula() {
     let vs = sc.supply_v;
     let factor = 2.0 * (vc / vs) * (1.0 - ((vc - vs) / vs) * (vc / (vc - vs)).ln());
     let ratio = e.switch_j / coil;
+    eprintln!("avalanche: switch energy {ratio:.4} x 1/2 L I0^2, formula {factor:.4}, Vc {vc:.3} V");
     assert!(
         (ratio / factor - 1.0).abs() < 0.02,
         "switch energy {ratio} x 1/2 L I0^2, formula {factor} (Vc {vc} V)"

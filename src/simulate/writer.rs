@@ -512,3 +512,237 @@ fn write_raw(capture: &Capture, path: &Path, kind: RawKind) -> Result<Vec<PathBu
     })?;
     Ok(vec![path.to_path_buf(), side])
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::capture::{AdcRange, Format};
+
+    fn capture() -> Capture {
+        let v: Vec<f64> = (0..200)
+            .map(|k| 12.0 + 300.0 * (k as f64 * 0.1).sin() * (-(k as f64) * 0.01).exp())
+            .collect();
+        let i: Vec<f64> = (0..200).map(|k| 0.075 - k as f64 * 3.0e-4).collect();
+        Capture {
+            source: PathBuf::from("t"),
+            format: Format::Csv,
+            sample_interval_s: 1e-7,
+            t0_s: -5e-6,
+            channels: vec![
+                Channel {
+                    name: "v_sw".into(),
+                    unit: "V".into(),
+                    samples: v,
+                    adc: Some(AdcRange {
+                        min_v: -300.0,
+                        max_v: 350.0,
+                        step_v: None,
+                    }),
+                },
+                Channel {
+                    name: "i_coil".into(),
+                    unit: "A".into(),
+                    samples: i,
+                    adc: None,
+                },
+            ],
+            metadata: vec![("clamp".into(), "RC snubber 1000 ohm, 4.7e-9 F".into())],
+            notes: vec![],
+            warnings: vec![],
+        }
+    }
+
+    /// Parses the rendered CSV back with std only: skips the preamble (lines whose first
+    /// field is not a number), reads the data rows.
+    fn parse(text: &str, d: char, comma: bool) -> (Vec<String>, Vec<Vec<f64>>) {
+        let mut header = Vec::new();
+        let mut rows = Vec::new();
+        for line in text.lines() {
+            let fields: Vec<String> = line
+                .split(d)
+                .map(|f| if comma { f.replace(',', ".") } else { f.to_string() })
+                .collect();
+            let nums: Result<Vec<f64>, _> = fields.iter().map(|f| f.parse::<f64>()).collect();
+            match nums {
+                Ok(n) if !rows.is_empty() || n.len() == fields.len() && n.len() > 1 => rows.push(n),
+                _ if rows.is_empty() => header = fields,
+                _ => panic!("bad row {line}"),
+            }
+        }
+        (header, rows)
+    }
+
+    #[test]
+    fn csv_round_trips_in_every_style() {
+        let cap = capture();
+        for (d, comma, time, unit) in [
+            (b',', false, true, TimeUnit::S),
+            (b';', true, true, TimeUnit::Us),
+            (b'\t', false, false, TimeUnit::S),
+            (b';', false, true, TimeUnit::Ns),
+        ] {
+            let style = CsvStyle {
+                delimiter: d,
+                decimal_comma: comma,
+                time_column: time,
+                time_unit: unit,
+                ..CsvStyle::default()
+            };
+            let mut buf = Vec::new();
+            write_csv(&cap, &style, &mut buf).unwrap();
+            let text = String::from_utf8(buf).unwrap();
+            assert!(text.contains("sample interval [s]"), "{text}");
+            let (header, rows) = parse(&text, d as char, comma);
+            assert_eq!(rows.len(), 200);
+            let first = usize::from(time);
+            assert_eq!(header[first], "v_sw [V]");
+            if time {
+                assert_eq!(header[0], format!("t [{}]", unit.symbol()));
+                let t = rows[3][0] / unit.per_second();
+                assert!((t - (-5e-6 + 3e-7)).abs() < 1e-12, "{t}");
+            }
+            for (k, row) in rows.iter().enumerate() {
+                let (v, i) = (row[first], row[first + 1]);
+                // Seven significant digits are written.
+                assert!((v - cap.channels[0].samples[k]).abs() <= 1e-6 * v.abs().max(1.0));
+                assert!((i - cap.channels[1].samples[k]).abs() <= 1e-6 * i.abs().max(1e-3));
+            }
+        }
+        // The comma in the clamp text does not break a comma-separated preamble.
+        let mut buf = Vec::new();
+        write_csv(&cap, &CsvStyle::default(), &mut buf).unwrap();
+        let text = String::from_utf8(buf).unwrap();
+        assert!(text.lines().any(|l| l == "clamp,RC snubber 1000 ohm  4.7e-9 F"));
+        let bad = CsvStyle {
+            decimal_comma: true,
+            ..CsvStyle::default()
+        };
+        assert!(write_csv(&cap, &bad, &mut Vec::new()).is_err());
+    }
+
+    #[test]
+    fn numbers_are_short_and_exact_enough() {
+        let cases = [
+            (24.0, "24"),
+            (0.075, "0.075"),
+            (-1.5e-9, "-1.5e-9"),
+            (586.10512345, "586.1051"),
+            (2.5e7, "2.5e7"),
+            (0.0, "0"),
+        ];
+        for (x, s) in cases {
+            let mut out = String::new();
+            push_number(&mut out, x, false);
+            assert_eq!(out, s);
+        }
+        let mut out = String::new();
+        push_number(&mut out, 12.25, true);
+        assert_eq!(out, "12,25");
+    }
+
+    #[test]
+    fn wav_round_trips_through_hound_with_its_sidecar() {
+        let cap = capture();
+        let dir = tempfile::tempdir().unwrap();
+        for (fmt, bits) in [
+            (OutputFormat::WavInt(8), 8u32),
+            (OutputFormat::WavInt(16), 16),
+            (OutputFormat::WavInt(24), 24),
+            (OutputFormat::WavInt(32), 32),
+            (OutputFormat::WavF32, 0),
+        ] {
+            let path = dir.path().join(format!("run{bits}.wav"));
+            let files = write_capture(&cap, &path, &fmt).unwrap();
+            assert_eq!(files[1], dir.path().join(format!("run{bits}.json")));
+            let side: serde_json::Value =
+                serde_json::from_str(&std::fs::read_to_string(&files[1]).unwrap()).unwrap();
+            assert_eq!(side["sample_rate_hz"].as_f64(), Some(1e7));
+            let chans = side["channels"].as_array().unwrap();
+            assert_eq!(chans[0]["name"], "v_sw");
+            assert_eq!(chans[1]["unit"], "A");
+            let mut reader = hound::WavReader::open(&path).unwrap();
+            assert_eq!(reader.spec().channels, 2);
+            assert_eq!(reader.spec().sample_rate, 10_000_000);
+            let frac: Vec<f64> = if bits == 0 {
+                reader.samples::<f32>().map(|s| f64::from(s.unwrap())).collect()
+            } else {
+                let top = 2f64.powi(bits as i32 - 1);
+                reader
+                    .samples::<i32>()
+                    .map(|s| f64::from(s.unwrap()) / top)
+                    .collect()
+            };
+            assert_eq!(frac.len(), 400);
+            for (c, ch) in cap.channels.iter().enumerate() {
+                let fs = chans[c]["volts_per_full_scale"].as_f64().unwrap();
+                let off = chans[c]["offset_v"].as_f64().unwrap();
+                // Quantization error is at most half a code of the full scale.
+                let tol = if bits == 0 { 1e-6 } else { 2f64.powi(-(bits as i32)) } * fs * 1.01;
+                for k in 0..200 {
+                    let v = off + frac[2 * k + c] * fs;
+                    assert!(
+                        (v - ch.samples[k]).abs() <= tol + 1e-9,
+                        "{bits} bits, ch {c}, k {k}: {v} vs {}",
+                        ch.samples[k]
+                    );
+                }
+            }
+            // The ADC rails of v_sw land on the extreme codes.
+            let fs = chans[0]["volts_per_full_scale"].as_f64().unwrap();
+            let off = chans[0]["offset_v"].as_f64().unwrap();
+            if bits > 0 {
+                let top = 2f64.powi(bits as i32 - 1);
+                assert!((off + fs * (top - 1.0) / top - 350.0).abs() < 1e-9);
+            }
+        }
+    }
+
+    #[test]
+    fn raw_dump_is_interleaved_little_endian() {
+        let cap = capture();
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("dump.raw");
+        write_capture(&cap, &path, &OutputFormat::Raw(RawKind::F64)).unwrap();
+        let bytes = std::fs::read(&path).unwrap();
+        assert_eq!(bytes.len(), 200 * 2 * 8);
+        let at = |k: usize| f64::from_le_bytes(bytes[8 * k..8 * k + 8].try_into().unwrap());
+        assert_eq!(at(2 * 7), cap.channels[0].samples[7]);
+        assert_eq!(at(2 * 7 + 1), cap.channels[1].samples[7]);
+        let path16 = dir.path().join("dump16.bin");
+        let files = write_capture(&cap, &path16, &OutputFormat::Raw(RawKind::I16)).unwrap();
+        let side: serde_json::Value =
+            serde_json::from_str(&std::fs::read_to_string(&files[1]).unwrap()).unwrap();
+        let fs = side["channels"][0]["volts_per_full_scale"].as_f64().unwrap();
+        let off = side["channels"][0]["offset_v"].as_f64().unwrap();
+        let bytes = std::fs::read(&path16).unwrap();
+        let code = i16::from_le_bytes([bytes[4 * 7], bytes[4 * 7 + 1]]);
+        let v = off + f64::from(code) / 32768.0 * fs;
+        assert!((v - cap.channels[0].samples[7]).abs() < fs / 32768.0);
+        // No temporary files are left behind.
+        let names: Vec<_> = std::fs::read_dir(dir.path())
+            .unwrap()
+            .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+            .collect();
+        assert!(names.iter().all(|n| !n.contains("partial")), "{names:?}");
+    }
+
+    #[test]
+    fn formats_by_name_and_extension() {
+        assert_eq!(
+            OutputFormat::from_path(Path::new("a/b.WAV")),
+            Some(OutputFormat::WavInt(16))
+        );
+        assert!(matches!(
+            OutputFormat::from_name("csv-semicolon"),
+            Some(OutputFormat::Csv(CsvStyle {
+                delimiter: b';',
+                decimal_comma: true,
+                ..
+            }))
+        ));
+        for n in OutputFormat::NAMES {
+            assert!(OutputFormat::from_name(n).is_some(), "{n}");
+        }
+        assert!(OutputFormat::from_path(Path::new("x.json")).is_none());
+    }
+}
