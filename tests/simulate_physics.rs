@@ -236,7 +236,9 @@ fn avalanche_energy_against_the_clamped_decay_formula() {
     let vs = sc.supply_v;
     let factor = 2.0 * (vc / vs) * (1.0 - ((vc - vs) / vs) * (vc / (vc - vs)).ln());
     let ratio = e.switch_j / coil;
-    eprintln!("avalanche: switch energy {ratio:.4} x 1/2 L I0^2, formula {factor:.4}, Vc {vc:.3} V");
+    eprintln!(
+        "avalanche: switch energy {ratio:.4} x 1/2 L I0^2, formula {factor:.4}, Vc {vc:.3} V"
+    );
     assert!(
         (ratio / factor - 1.0).abs() < 0.02,
         "switch energy {ratio} x 1/2 L I0^2, formula {factor} (Vc {vc} V)"
@@ -258,7 +260,10 @@ fn diode_clamp_holds_node_within_a_diode_drop_of_the_supply() {
         .iter()
         .cloned()
         .fold(f64::MIN, f64::max);
-    assert!(peak > sc.supply_v + 0.5 && peak < sc.supply_v + 1.2, "{peak}");
+    assert!(
+        peak > sc.supply_v + 0.5 && peak < sc.supply_v + 1.2,
+        "{peak}"
+    );
 }
 
 #[test]

@@ -201,7 +201,8 @@ fn si(name: &str, text: &str, unit: &str) -> Result<f64> {
 }
 
 fn pct(name: &str, text: &str) -> Result<f64> {
-    let v = parse_si(text.trim().trim_end_matches('%'), None).with_context(|| format!("--{name}"))?;
+    let v =
+        parse_si(text.trim().trim_end_matches('%'), None).with_context(|| format!("--{name}"))?;
     if v < 0.0 {
         bail!("--{name}: expected a percentage of zero or more");
     }
@@ -254,7 +255,11 @@ impl SimulateArgs {
                 .as_deref()
                 .map(|r| si("parallel-resistance", r, "ohm"))
                 .transpose()?,
-            side: if self.high_side { Side::High } else { Side::Low },
+            side: if self.high_side {
+                Side::High
+            } else {
+                Side::Low
+            },
             clamp,
             body_diode: !self.no_body_diode,
             r_on_ohm: si("r-on", &self.r_on, "ohm")?,

@@ -328,7 +328,10 @@ mod tests {
             assert!(g >= 0.0);
             let (i2, _) = j.current(v + 1e-6);
             let numeric = (i2 - i) / 1e-6;
-            assert!((numeric - g).abs() <= 1e-3 * g + 1e-15, "v={v} g={g} num={numeric}");
+            assert!(
+                (numeric - g).abs() <= 1e-3 * g + 1e-15,
+                "v={v} g={g} num={numeric}"
+            );
         }
         // At 2 V the series resistance carries most of the drop: i ~ (2 - ~0.9)/0.3.
         let (i, _) = j.current(2.0);

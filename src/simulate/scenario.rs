@@ -27,13 +27,25 @@ pub enum Clamp {
     /// Freewheel diode across the coil.
     Diode,
     /// Diode in series with a zener across the coil.
-    DiodeZener { zener_v: f64, zener_ohm: f64 },
+    DiodeZener {
+        zener_v: f64,
+        zener_ohm: f64,
+    },
     /// Unidirectional TVS across the switch.
-    Tvs { breakdown_v: f64, dynamic_ohm: f64 },
+    Tvs {
+        breakdown_v: f64,
+        dynamic_ohm: f64,
+    },
     /// RC snubber across the switch.
-    Snubber { r_ohm: f64, c_f: f64 },
+    Snubber {
+        r_ohm: f64,
+        c_f: f64,
+    },
     /// The switch's own avalanche breakdown.
-    Avalanche { breakdown_v: f64, dynamic_ohm: f64 },
+    Avalanche {
+        breakdown_v: f64,
+        dynamic_ohm: f64,
+    },
 }
 
 /// Per-event randomness. Spreads are relative standard deviations.
@@ -178,7 +190,11 @@ impl Scenario {
         check("noise", self.noise_v, self.noise_v >= 0.0)?;
         check("current-noise", self.noise_a, self.noise_a >= 0.0)?;
         let v = &self.variation;
-        check("turn-off-spread", v.turn_off_spread, v.turn_off_spread >= 0.0)?;
+        check(
+            "turn-off-spread",
+            v.turn_off_spread,
+            v.turn_off_spread >= 0.0,
+        )?;
         check("supply-ripple", v.supply_ripple_v, v.supply_ripple_v >= 0.0)?;
         check("on-time-spread", v.on_time_spread, v.on_time_spread >= 0.0)?;
         check("current-spread", v.current_spread, v.current_spread >= 0.0)?;
@@ -199,10 +215,7 @@ impl Scenario {
             }
         }
         match self.clamp {
-            Clamp::DiodeZener {
-                zener_v,
-                zener_ohm,
-            } => {
+            Clamp::DiodeZener { zener_v, zener_ohm } => {
                 check("zener-v", zener_v, zener_v > 0.0)?;
                 check("zener-r", zener_ohm, zener_ohm >= 0.0)?;
             }
@@ -240,10 +253,7 @@ impl Scenario {
                 placement: Placement::AcrossCoil,
                 role: Role::Clamp,
             }),
-            Clamp::DiodeZener {
-                zener_v,
-                zener_ohm,
-            } => junctions.push(Placed {
+            Clamp::DiodeZener { zener_v, zener_ohm } => junctions.push(Placed {
                 junction: Junction::in_series(self.diode, Junction::breakdown(zener_v, zener_ohm)),
                 placement: Placement::AcrossCoil,
                 role: Role::Clamp,
@@ -419,9 +429,18 @@ pub fn simulate(sc: &Scenario) -> Result<Simulated, SimError> {
         ("sample interval [s]".to_string(), format!("{:e}", sc.dt_s)),
         ("record length".to_string(), n.to_string()),
         ("supply [V]".to_string(), sc.supply_v.to_string()),
-        ("inductance [H]".to_string(), format!("{:e}", sc.inductance_h)),
-        ("resistance [ohm]".to_string(), sc.resistance_ohm.to_string()),
-        ("capacitance [F]".to_string(), format!("{:e}", sc.capacitance_f)),
+        (
+            "inductance [H]".to_string(),
+            format!("{:e}", sc.inductance_h),
+        ),
+        (
+            "resistance [ohm]".to_string(),
+            sc.resistance_ohm.to_string(),
+        ),
+        (
+            "capacitance [F]".to_string(),
+            format!("{:e}", sc.capacitance_f),
+        ),
         ("clamp".to_string(), clamp),
         (
             "switch".to_string(),

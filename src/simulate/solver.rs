@@ -516,7 +516,20 @@ pub fn run(
     let mut cache: [Option<(usize, Propagator)>; 2] = [None, None];
     let t_end = sample_time(n_samples - 1);
 
+    // Guard against a loop that stops advancing (it would hang a batch run): many passes
+    // without time or sample progress is reported as a convergence failure.
+    let mut stalled = 0usize;
+    let mut last = (t, next);
     while next < n_samples {
+        if (t, next) == last {
+            stalled += 1;
+            if stalled > 10_000 {
+                return Err(SimError::StepTooSmall { t_s: t });
+            }
+        } else {
+            stalled = 0;
+            last = (t, next);
+        }
         k = plan.cycle_at(t, k);
         let op = cycles[k].op;
         let tb = sample_time(next);
@@ -560,12 +573,11 @@ pub fn run(
         let span = limit - t;
         if !(span > 0.0) {
             // Nothing left before the limit: only rounding separates t from it.
-            t = limit;
-            t_on_grid = (t - tb).abs() <= 1e-9 * dt_s;
-            if t_on_grid {
-                t = tb;
-                rec.sample(k, t, &x);
+            t = t.max(limit);
+            if (t - tb).abs() <= 1e-9 * dt_s {
+                rec.sample(k, tb, &x);
                 next += 1;
+                t_on_grid = true;
             }
             continue;
         }
@@ -602,12 +614,9 @@ pub fn run(
             next += 1;
         }
         rec.energy(k, t, &x, t_new, &res.x);
+        // Never snap t back onto the grid: that could step behind a breakpoint just passed.
         t_on_grid = (t_new - sample_time(next - 1)).abs() <= 1e-9 * dt_s;
-        t = if t_on_grid {
-            sample_time(next - 1)
-        } else {
-            t_new
-        };
+        t = t_new;
         x = res.x;
         let grow = if res.err > 0.0 {
             (0.9 * res.err.powf(-1.0 / 3.0)).min(4.0)

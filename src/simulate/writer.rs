@@ -188,7 +188,9 @@ pub fn write_capture(
     }
     match format {
         OutputFormat::Csv(style) => {
-            atomic(path, |w| write_csv(capture, style, w).map_err(|e| io_err(path, e)))?;
+            atomic(path, |w| {
+                write_csv(capture, style, w).map_err(|e| io_err(path, e))
+            })?;
             Ok(vec![path.to_path_buf()])
         }
         OutputFormat::WavInt(bits) => write_wav(capture, path, Some(*bits)),
@@ -322,7 +324,8 @@ pub fn write_csv(capture: &Capture, style: &CsvStyle, w: &mut impl Write) -> std
             let start = line.len();
             let _ = write!(line, "{t:.decimals$}");
             trim_zeros(&mut line, start);
-            if line[start..].starts_with("-0") && line[start..].trim_start_matches(['-', '0']).is_empty()
+            if line[start..].starts_with("-0")
+                && line[start..].trim_start_matches(['-', '0']).is_empty()
             {
                 line.replace_range(start..start + 1, "");
             }
@@ -336,7 +339,11 @@ pub fn write_csv(capture: &Capture, style: &CsvStyle, w: &mut impl Write) -> std
             if k > 0 || style.time_column {
                 line.push(d);
             }
-            push_number(&mut line, c.samples.get(j).copied().unwrap_or(0.0), style.decimal_comma);
+            push_number(
+                &mut line,
+                c.samples.get(j).copied().unwrap_or(0.0),
+                style.decimal_comma,
+            );
         }
         line.push('\n');
         w.write_all(line.as_bytes())?;
@@ -413,7 +420,11 @@ fn to_code(v: f64, offset: f64, fs: f64, bits: u32) -> i64 {
     ((v - offset) / fs * top).round().clamp(-top, top - 1.0) as i64
 }
 
-fn write_wav(capture: &Capture, path: &Path, bits: Option<u16>) -> Result<Vec<PathBuf>, WriteError> {
+fn write_wav(
+    capture: &Capture,
+    path: &Path,
+    bits: Option<u16>,
+) -> Result<Vec<PathBuf>, WriteError> {
     let wav_err = |e: hound::Error| WriteError::Wav {
         file: path.to_path_buf(),
         message: e.to_string(),
@@ -496,12 +507,8 @@ fn write_raw(capture: &Capture, path: &Path, kind: RawKind) -> Result<Vec<PathBu
                 let v = c.samples.get(j).copied().unwrap_or(0.0);
                 let r = match kind {
                     RawKind::I8 => w.write_all(&(to_code(v, offset, fs, 8) as i8).to_le_bytes()),
-                    RawKind::I16 => {
-                        w.write_all(&(to_code(v, offset, fs, 16) as i16).to_le_bytes())
-                    }
-                    RawKind::I32 => {
-                        w.write_all(&(to_code(v, offset, fs, 32) as i32).to_le_bytes())
-                    }
+                    RawKind::I16 => w.write_all(&(to_code(v, offset, fs, 16) as i16).to_le_bytes()),
+                    RawKind::I32 => w.write_all(&(to_code(v, offset, fs, 32) as i32).to_le_bytes()),
                     RawKind::F32 => w.write_all(&(v as f32).to_le_bytes()),
                     RawKind::F64 => w.write_all(&v.to_le_bytes()),
                 };
@@ -560,7 +567,13 @@ mod tests {
         for line in text.lines() {
             let fields: Vec<String> = line
                 .split(d)
-                .map(|f| if comma { f.replace(',', ".") } else { f.to_string() })
+                .map(|f| {
+                    if comma {
+                        f.replace(',', ".")
+                    } else {
+                        f.to_string()
+                    }
+                })
                 .collect();
             let nums: Result<Vec<f64>, _> = fields.iter().map(|f| f.parse::<f64>()).collect();
             match nums {
@@ -612,7 +625,9 @@ mod tests {
         let mut buf = Vec::new();
         write_csv(&cap, &CsvStyle::default(), &mut buf).unwrap();
         let text = String::from_utf8(buf).unwrap();
-        assert!(text.lines().any(|l| l == "clamp,RC snubber 1000 ohm  4.7e-9 F"));
+        assert!(text
+            .lines()
+            .any(|l| l == "clamp,RC snubber 1000 ohm  4.7e-9 F"));
         let bad = CsvStyle {
             decimal_comma: true,
             ..CsvStyle::default()
@@ -664,7 +679,10 @@ mod tests {
             assert_eq!(reader.spec().channels, 2);
             assert_eq!(reader.spec().sample_rate, 10_000_000);
             let frac: Vec<f64> = if bits == 0 {
-                reader.samples::<f32>().map(|s| f64::from(s.unwrap())).collect()
+                reader
+                    .samples::<f32>()
+                    .map(|s| f64::from(s.unwrap()))
+                    .collect()
             } else {
                 let top = 2f64.powi(bits as i32 - 1);
                 reader
@@ -677,7 +695,12 @@ mod tests {
                 let fs = chans[c]["volts_per_full_scale"].as_f64().unwrap();
                 let off = chans[c]["offset_v"].as_f64().unwrap();
                 // Quantization error is at most half a code of the full scale.
-                let tol = if bits == 0 { 1e-6 } else { 2f64.powi(-(bits as i32)) } * fs * 1.01;
+                let tol = if bits == 0 {
+                    1e-6
+                } else {
+                    2f64.powi(-(bits as i32))
+                } * fs
+                    * 1.01;
                 for k in 0..200 {
                     let v = off + frac[2 * k + c] * fs;
                     assert!(
@@ -712,7 +735,9 @@ mod tests {
         let files = write_capture(&cap, &path16, &OutputFormat::Raw(RawKind::I16)).unwrap();
         let side: serde_json::Value =
             serde_json::from_str(&std::fs::read_to_string(&files[1]).unwrap()).unwrap();
-        let fs = side["channels"][0]["volts_per_full_scale"].as_f64().unwrap();
+        let fs = side["channels"][0]["volts_per_full_scale"]
+            .as_f64()
+            .unwrap();
         let off = side["channels"][0]["offset_v"].as_f64().unwrap();
         let bytes = std::fs::read(&path16).unwrap();
         let code = i16::from_le_bytes([bytes[4 * 7], bytes[4 * 7 + 1]]);
