@@ -328,7 +328,9 @@ impl Scenario {
             t_on = t_off + self.off_time_s;
         }
         let t_start = -pre_s;
-        let n = ((t_on - t_start) / self.dt_s).floor() + 1.0;
+        // The small allowance keeps a record length that is a whole number of intervals from
+        // losing its last sample to rounding.
+        let n = ((t_on - t_start) / self.dt_s + 1e-6).floor() + 1.0;
         (cycles, t_start, n.max(1.0).min(usize::MAX as f64) as usize)
     }
 }
