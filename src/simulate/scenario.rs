@@ -7,7 +7,7 @@ use crate::capture::{AdcRange, Capture, Channel, Format};
 
 use super::circuit::{Circuit, Junction, Operating, Placed, Placement, Role, Snubber};
 use super::noise::{Adc, Rng};
-use super::solver::{self, Cycle, OffEnergy, SolverOptions, SwitchModel};
+use super::solver::{self, Cycle, OffEnergy, Sampling, SolverOptions, SwitchModel};
 use super::SimError;
 
 /// Where the switch sits.
@@ -358,10 +358,12 @@ pub fn simulate(sc: &Scenario) -> Result<Simulated, SimError> {
             r_on_ohm: sc.r_on_ohm,
             r_off_ohm: sc.r_off_ohm,
         },
-        t_start,
-        sc.dt_s,
-        n,
-        sc.with_switch_current,
+        Sampling {
+            t_start_s: t_start,
+            dt_s: sc.dt_s,
+            n_samples: n,
+            keep_switch_current: sc.with_switch_current,
+        },
         sc.solver,
     )?;
 

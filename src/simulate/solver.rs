@@ -92,6 +92,16 @@ pub struct Transient {
     pub propagated_samples: usize,
 }
 
+/// Where and how often the run is sampled.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Sampling {
+    pub t_start_s: f64,
+    pub dt_s: f64,
+    pub n_samples: usize,
+    /// Also record the switch current.
+    pub keep_switch_current: bool,
+}
+
 /// Smooth 0-to-1 ramp with zero slope at both ends (cubic smoothstep).
 fn smoothstep(x: f64) -> f64 {
     let x = x.clamp(0.0, 1.0);
@@ -275,15 +285,16 @@ fn solve3(mut m: [[f64; N_STATE]; N_STATE], mut r: State) -> Option<State> {
                 piv = row;
             }
         }
-        if !(m[piv][col].abs() > 0.0) {
+        if m[piv][col] == 0.0 || !m[piv][col].is_finite() {
             return None;
         }
         m.swap(col, piv);
         r.swap(col, piv);
         for row in col + 1..N_STATE {
             let f = m[row][col] / m[col][col];
-            for k in col..N_STATE {
-                m[row][k] -= f * m[col][k];
+            let pivot_row = m[col];
+            for (mk, pk) in m[row].iter_mut().zip(pivot_row).skip(col) {
+                *mk -= f * pk;
             }
             r[row] -= f * r[col];
         }
@@ -476,12 +487,15 @@ pub fn run(
     circuit: &Circuit,
     cycles: &[Cycle],
     switch: SwitchModel,
-    t_start_s: f64,
-    dt_s: f64,
-    n_samples: usize,
-    keep_switch_current: bool,
+    sampling: Sampling,
     opts: SolverOptions,
 ) -> Result<Transient, SimError> {
+    let Sampling {
+        t_start_s,
+        dt_s,
+        n_samples,
+        keep_switch_current,
+    } = sampling;
     if cycles.is_empty() || n_samples == 0 {
         return Ok(Transient::default());
     }
@@ -571,7 +585,7 @@ pub fn run(
             limit = limit.min(tb);
         }
         let span = limit - t;
-        if !(span > 0.0) {
+        if span <= 0.0 || span.is_nan() {
             // Nothing left before the limit: only rounding separates t from it.
             t = t.max(limit);
             if (t - tb).abs() <= 1e-9 * dt_s {
