@@ -341,7 +341,7 @@ pub fn run(args: SimulateArgs) -> Result<ExitCode> {
         let names: Vec<String> = files.iter().map(|f| f.display().to_string()).collect();
         writeln!(
             out,
-            "wrote {} ({} samples at {:e} s, {} events)",
+            "wrote {} ({} samples at {:.6e} s, {} events)",
             names.join(" + "),
             sim.capture.n_samples(),
             scenario.dt_s,

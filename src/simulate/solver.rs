@@ -12,7 +12,7 @@
 //! Samples inside a TR-BDF2 step come from cubic Hermite interpolation with the
 //! derivatives at both ends.
 
-use super::circuit::{Circuit, Operating, State, N_STATE};
+use super::circuit::{Circuit, Operating, Powers, State, N_STATE};
 use super::SimError;
 
 /// One switching cycle: the switch turns on at `t_on_s`, off at `t_off_s`, and the cycle
@@ -423,6 +423,8 @@ struct Recorder<'a> {
     plan: &'a Plan<'a>,
     keep_switch_current: bool,
     started: Vec<bool>,
+    /// Power at the end of the last booked step, reused as the next step's start.
+    last_power: Option<(usize, f64, Powers)>,
 }
 
 impl Recorder<'_> {
@@ -454,8 +456,12 @@ impl Recorder<'_> {
             e.i0_a = xa[0];
             e.stored_start_j = circuit.stored_energy_j(xa);
         }
-        let pa = circuit.powers(xa, self.plan.g(k, ta), &c.op);
+        let pa = match self.last_power {
+            Some((kk, t, p)) if kk == k && t == ta => p,
+            _ => circuit.powers(xa, self.plan.g(k, ta), &c.op),
+        };
         let pb = circuit.powers(xb, self.plan.g(k, tb), &c.op);
+        self.last_power = Some((k, tb, pb));
         let h2 = 0.5 * (tb - ta);
         e.supply_j += h2 * (pa.supply_w + pb.supply_w);
         e.coil_resistance_j += h2 * (pa.coil_resistance_w + pb.coil_resistance_w);
@@ -518,6 +524,7 @@ pub fn run(
         plan: &plan,
         keep_switch_current,
         started: vec![false; cycles.len()],
+        last_power: None,
     };
     let sample_time = |j: usize| t_start_s + j as f64 * dt_s;
     let mut k = plan.cycle_at(t_start_s, 0);
@@ -533,6 +540,8 @@ pub fn run(
     // Guard against a loop that stops advancing (it would hang a batch run): many passes
     // without time or sample progress is reported as a convergence failure.
     let mut stalled = 0usize;
+    // Largest junction current at the current state, when known (saves re-evaluating it).
+    let mut x_jmax: Option<f64> = None;
     let mut last = (t, next);
     while next < n_samples {
         if (t, next) == last {
@@ -544,7 +553,11 @@ pub fn run(
             stalled = 0;
             last = (t, next);
         }
-        k = plan.cycle_at(t, k);
+        let k_new = plan.cycle_at(t, k);
+        if k_new != k {
+            x_jmax = None;
+            k = k_new;
+        }
         let op = cycles[k].op;
         let tb = sample_time(next);
         let tol = |x: &State| 1e-7 + 1e-5 * x[0].abs();
@@ -562,9 +575,13 @@ pub fn run(
                     }
                 };
                 let y = prop.apply(&x);
-                if circuit.max_junction_current(&y, &op) <= tol(&y)
-                    && circuit.max_junction_current(&x, &op) <= tol(&x)
-                {
+                let x_ok = match x_jmax {
+                    Some(m) => m <= tol(&x),
+                    None => circuit.max_junction_current(&x, &op) <= tol(&x),
+                };
+                let y_jmax = circuit.max_junction_current(&y, &op);
+                if x_ok && y_jmax <= tol(&y) {
+                    x_jmax = Some(y_jmax);
                     rec.energy(k, t, &x, tb, &y);
                     x = y;
                     t = tb;
@@ -580,7 +597,7 @@ pub fn run(
         let mut limit = plan.next_breakpoint(k, t).min(t_end);
         let linear_now = opts.linear_shortcut
             && plan.static_over(k, t, t).is_some()
-            && circuit.max_junction_current(&x, &op) <= tol(&x);
+            && x_jmax.unwrap_or_else(|| circuit.max_junction_current(&x, &op)) <= tol(&x);
         if linear_now {
             limit = limit.min(tb);
         }
@@ -632,6 +649,7 @@ pub fn run(
         t_on_grid = (t_new - sample_time(next - 1)).abs() <= 1e-9 * dt_s;
         t = t_new;
         x = res.x;
+        x_jmax = None;
         let grow = if res.err > 0.0 {
             (0.9 * res.err.powf(-1.0 / 3.0)).min(4.0)
         } else {
