@@ -385,3 +385,35 @@ fn ten_events_of_1e5_samples_are_quick() {
     // The brief asks for well under a second in a debug build; allow for a busy machine.
     assert!(s < 3.0, "{s} s");
 }
+
+#[test]
+fn switch_current_channel_carries_the_avalanche_energy() {
+    // With the probe through the switch, integral(v * i_switch) over the event is the
+    // energy the switch absorbed (DESIGN.md, energy_j); it must match the simulator's own
+    // ledger, and before the edge the switch carries the coil current.
+    let sc = Scenario {
+        supply_v: 24.0,
+        resistance_ohm: 320.0,
+        clamp: Clamp::Avalanche {
+            breakdown_v: 60.0,
+            dynamic_ohm: 0.05,
+        },
+        events: 1,
+        on_time_s: 100e-6,
+        off_time_s: 500e-6,
+        dt_s: 10e-9,
+        with_coil_current: true,
+        with_switch_current: true,
+        ..Scenario::default()
+    };
+    let sim = simulate(&sc).unwrap();
+    let ch = &sim.capture.channels;
+    assert_eq!(ch[2].name, "i_switch");
+    let (a, b) = off_window(&sim, 0);
+    assert!((ch[2].samples[a - 10] - ch[1].samples[a - 10]).abs() < 1e-6);
+    let e: f64 = (a..b)
+        .map(|k| ch[0].samples[k] * ch[2].samples[k] * sc.dt_s)
+        .sum();
+    let ledger = sim.events[0].energy.switch_j;
+    assert!((e / ledger - 1.0).abs() < 0.01, "{e} vs {ledger}");
+}
