@@ -256,7 +256,7 @@ fn push_number(out: &mut String, x: f64, decimal_comma: bool) {
         }
     }
     if decimal_comma {
-        // SAFETY of the byte edit: '.' and ',' are both one ASCII byte.
+        // Both marks are one ASCII byte, so the swap keeps the string valid.
         if let Some(p) = out[start..].find('.') {
             out.replace_range(start + p..start + p + 1, ",");
         }
