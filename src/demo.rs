@@ -21,6 +21,10 @@ pub struct Scenario {
     pub supply_v: f64,
     pub rating_v: Option<f64>,
     pub inductance_h: Option<f64>,
+    /// Events per block for the worst-case projection (`--block`); one capture per block
+    /// when absent.
+    #[serde(default)]
+    pub block: Option<usize>,
     /// Variant label and folder (relative to the captures folder), baseline first.
     pub variants: Vec<ScenarioVariant>,
     /// A capture with a coil-current channel, measured with energies.
@@ -119,6 +123,7 @@ pub fn run(
     settings.measure.supply_v = Some(scenario.supply_v);
     settings.measure.rating_v = scenario.rating_v;
     settings.measure.inductance_h = scenario.inductance_h;
+    settings.block = scenario.block;
 
     let variants: Vec<Variant> = scenario
         .variants
