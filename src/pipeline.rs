@@ -226,11 +226,13 @@ pub fn measure_file(
     };
     let mut m = measure::measure_trace(&trace, &settings.measure)
         .map_err(|e| format!("{}: {e}", path.display()))?;
-    if !settings.no_fit {
-        fit_events(&mut m, &signal, cap.sample_interval_s, cap.t0_s, settings);
-    }
+    let worst_fit = if settings.no_fit {
+        None
+    } else {
+        fit_events(&mut m, &signal, cap.sample_interval_s, cap.t0_s, settings)
+    };
     let mut warnings = cap.warnings.clone();
-    warnings.extend(m.warnings);
+    warnings.extend(m.warnings.iter().cloned());
     let sketch = sketch.then(|| {
         let mut sk = TraceSketch::build(
             &path.display().to_string(),
@@ -248,6 +250,17 @@ pub fn measure_file(
             .iter()
             .filter_map(|e| e.settle_band_v)
             .reduce(f64::max);
+        sk.fit = worst_fit.map(|(k, fit)| {
+            fit_plot(
+                &path.display().to_string(),
+                &m,
+                k,
+                &fit,
+                &signal,
+                cap.sample_interval_s,
+                cap.t0_s,
+            )
+        });
         sk
     });
     let doc = CaptureDoc {
@@ -325,14 +338,14 @@ const BODY_DIODE_CLIP_V: f64 = 0.4;
 
 /// Fits the damped RLC model (or an exponential decay) to every event and folds the results
 /// into the event: refined damping, Q, node capacitance with `--inductance`, and the
-/// reconstructed peak of clipped events.
+/// reconstructed peak of clipped events. Returns the fit of the capture's worst event.
 fn fit_events(
     m: &mut measure::CaptureMeasurement,
     signal: &capture::Channel,
     dt_s: f64,
     t0_s: f64,
     settings: &Settings,
-) {
+) -> Option<(usize, crate::model::EventFit)> {
     let clip_level_v = Some(match m.polarity {
         measure::Polarity::Up => -BODY_DIODE_CLIP_V,
         measure::Polarity::Down => m.v_on + BODY_DIODE_CLIP_V,
@@ -342,14 +355,93 @@ fn fit_events(
         adc: signal.adc,
         clip_level_v,
     };
-    for (event, &(start, end)) in m.events.iter_mut().zip(&m.windows) {
+    let mut worst: Option<(usize, crate::model::EventFit)> = None;
+    let mut worst_stress = f64::NEG_INFINITY;
+    for (k, (event, &(start, end))) in m.events.iter_mut().zip(&m.windows).enumerate() {
         let Some(window) = signal.samples.get(start..end) else {
             continue;
         };
         let t_start_s = t0_s + start as f64 * dt_s;
         if let Some(fit) = crate::model::fit_event(window, dt_s, t_start_s, event, &ctx) {
             crate::model::apply_fit(event, &fit, &ctx);
+            if event.switch_stress_v > worst_stress {
+                worst_stress = event.switch_stress_v;
+                worst = Some((k, fit));
+            }
         }
+    }
+    worst
+}
+
+/// The fit plot of event `k`: samples from shortly before the edge to the end of the fitted
+/// stretch, and the model over the stretch it was fitted to, times from the edge.
+fn fit_plot(
+    file: &str,
+    m: &measure::CaptureMeasurement,
+    k: usize,
+    fit: &crate::model::EventFit,
+    signal: &capture::Channel,
+    dt_s: f64,
+    t0_s: f64,
+) -> crate::report::FitPlot {
+    let event = &m.events[k];
+    let (start, end) = m.windows[k];
+    let t_edge = event.t_edge_s;
+    let from = ((t_edge - t0_s) / dt_s - 8.0).max(start as f64) as usize;
+    let to = (((fit.fit_end_s - t0_s) / dt_s).ceil() as usize + 1).min(end);
+    let stride = ((to.saturating_sub(from)) / SKETCH_POINTS).max(1);
+    let t_of = |i: usize| t0_s + i as f64 * dt_s - t_edge;
+    let measured: Vec<(f64, f64)> = (from..to)
+        .step_by(stride)
+        .filter_map(|i| signal.samples.get(i).map(|&v| (t_of(i), v)))
+        .filter(|p| p.1.is_finite())
+        .collect();
+    let n_model = 1000;
+    let span = fit.fit_end_s - fit.fit_start_s;
+    let model: Vec<(f64, f64)> = (0..=n_model)
+        .map(|j| fit.fit_start_s + span * j as f64 / n_model as f64)
+        .map(|t| (t - t_edge, fit.curve.value(t - fit.t_origin_s)))
+        .filter(|p| p.1.is_finite())
+        .collect();
+    // Stretches at the digitiser's top rail, where the samples say nothing of the peak.
+    let rail = signal.adc.map(|a| a.max_v).filter(|v| v.is_finite());
+    let mut clipped_spans = Vec::new();
+    if let Some(rail) = rail {
+        let mut run: Option<usize> = None;
+        for i in from..to {
+            let at_rail = signal.samples.get(i).is_some_and(|&v| v >= rail);
+            match (at_rail, run) {
+                (true, None) => run = Some(i),
+                (false, Some(r)) => {
+                    clipped_spans.push((t_of(r), t_of(i)));
+                    run = None;
+                }
+                _ => {}
+            }
+        }
+        if let Some(r) = run {
+            clipped_spans.push((t_of(r), t_of(to)));
+        }
+    }
+    let peak_est = fit.peak.as_ref().map(|p| crate::report::PeakEstimate {
+        t_s: event.t_peak_s,
+        v: p.peak_v,
+        lower_v: Some(p.lower_v),
+        upper_v: Some(p.upper_v),
+    });
+    crate::report::FitPlot {
+        title: format!(
+            "{file}, event {}: samples and the fitted model",
+            event.index
+        ),
+        measured,
+        model,
+        model_name: match &fit.curve {
+            crate::model::FitCurve::DampedSine(_) => "damped RLC ring".to_string(),
+            crate::model::FitCurve::Exponential(_) => "exponential decay".to_string(),
+        },
+        clipped_spans,
+        peak_est,
     }
 }
 
@@ -380,10 +472,7 @@ pub const METRICS: &[(&str, MetricGetter)] = &[
 ];
 
 /// Values of one metric over every event, in input order, leaving out events without it.
-pub fn metric_values<'a>(
-    events: impl Iterator<Item = &'a Event>,
-    get: MetricGetter,
-) -> Vec<f64> {
+pub fn metric_values<'a>(events: impl Iterator<Item = &'a Event>, get: MetricGetter) -> Vec<f64> {
     events.filter_map(get).filter(|v| v.is_finite()).collect()
 }
 

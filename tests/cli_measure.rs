@@ -87,7 +87,10 @@ fn json_has_every_event_and_the_analytic_peak_and_frequency() {
     };
     for e in events {
         let p = e["peak_v"].as_f64().unwrap();
-        assert!((p - peak).abs() < 0.005 * peak, "peak {p} vs analytic {peak}");
+        assert!(
+            (p - peak).abs() < 0.005 * peak,
+            "peak {p} vs analytic {peak}"
+        );
         let f = e["ring_freq_hz"].as_f64().unwrap();
         assert!((f - fd).abs() < 0.005 * fd, "ring {f} vs analytic {fd}");
         // C = 1/(w0^2 L) with w0 from the fit recovers the 1 nF the waveform was made with.
@@ -126,12 +129,24 @@ fn fail_above_turns_the_run_into_a_check_with_exit_3() {
     let f = dir.path().join("c.csv");
     write_capture(&f, 2);
     kickscan()
-        .args(["measure", f.to_str().unwrap(), "--fail-above", "100V", "--quiet"])
+        .args([
+            "measure",
+            f.to_str().unwrap(),
+            "--fail-above",
+            "100V",
+            "--quiet",
+        ])
         .assert()
         .code(3)
         .stderr(predicate::str::contains("exceeds --fail-above"));
     kickscan()
-        .args(["measure", f.to_str().unwrap(), "--fail-above", "1kV", "--quiet"])
+        .args([
+            "measure",
+            f.to_str().unwrap(),
+            "--fail-above",
+            "1kV",
+            "--quiet",
+        ])
         .assert()
         .success();
 }
@@ -144,7 +159,12 @@ fn out_writes_a_report_folder_and_replaces_its_own() {
     let rep = dir.path().join("rep");
     for _ in 0..2 {
         kickscan()
-            .args(["measure", f.to_str().unwrap(), "--out", rep.to_str().unwrap()])
+            .args([
+                "measure",
+                f.to_str().unwrap(),
+                "--out",
+                rep.to_str().unwrap(),
+            ])
             .assert()
             .success()
             .stdout(predicate::str::contains("report written to"));
@@ -158,7 +178,12 @@ fn out_writes_a_report_folder_and_replaces_its_own() {
     std::fs::create_dir(&foreign).unwrap();
     std::fs::write(foreign.join("notes.txt"), "keep me").unwrap();
     kickscan()
-        .args(["measure", f.to_str().unwrap(), "--out", foreign.to_str().unwrap()])
+        .args([
+            "measure",
+            f.to_str().unwrap(),
+            "--out",
+            foreign.to_str().unwrap(),
+        ])
         .assert()
         .code(2);
     assert!(foreign.join("notes.txt").is_file());

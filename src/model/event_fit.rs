@@ -158,7 +158,24 @@ pub fn fit_event(
         return None;
     }
     let noise = ringfit::noise_sigma(&samples[i_edge..]);
-    let start = free_ring_start(samples, i_pk, u_pk, noise, &u);
+    let mut start = free_ring_start(samples, i_pk, u_pk, noise, &u);
+    // The measurement found where the clamp released (`decay_time_s`). When the stretch from
+    // the peak to there is flat (a plateau: its median stays near the peak, where a sine
+    // lobe's half falls to 0.71 of it), the free response starts at the release, even if
+    // the band above missed the plateau on a coarse, noisy grid.
+    if let Some(decay_s) = event.decay_time_s.filter(|d| d.is_finite() && *d > 0.0) {
+        let i_release = index_at(event.t_edge_s + decay_s, t_start_s, dt_s, n);
+        if i_release > i_pk + 3 {
+            let mut lobe: Vec<f64> = (i_pk..i_release)
+                .map(&u)
+                .filter(|x| x.is_finite())
+                .collect();
+            lobe.sort_by(f64::total_cmp);
+            if lobe.get(lobe.len() / 2).is_some_and(|m| *m > 0.85 * u_pk) {
+                start = start.max(i_release.min(n - 1));
+            }
+        }
+    }
     let t_origin_s = t_start_s + start as f64 * dt_s;
     if let Some(fit) = fit_free_ring(
         samples,

@@ -63,12 +63,19 @@ pub struct ReportInput<'a> {
 
 impl<'a> ReportInput<'a> {
     pub fn new(doc: &'a MeasureDoc, settings: &'a Settings, sketches: &'a [TraceSketch]) -> Self {
+        // The fit shown is that of the worst event, kept with its capture's sketch.
+        let fit = doc.summary.worst.as_ref().and_then(|w| {
+            sketches
+                .iter()
+                .find(|s| s.file == w.file)
+                .and_then(|s| s.fit.as_ref())
+        });
         ReportInput {
             doc,
             settings,
             sketches,
             verdicts: &[],
-            fit: None,
+            fit,
             variants: &[],
             force: false,
         }

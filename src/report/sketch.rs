@@ -51,6 +51,10 @@ pub struct TraceSketch {
     pub settle_band_v: Option<f64>,
     /// Variant label (`compare`), if any.
     pub label: Option<String>,
+    /// Measured samples against the fitted model for this capture's worst event, when the
+    /// model ran.
+    #[serde(skip)]
+    pub fit: Option<super::FitPlot>,
 }
 
 impl TraceSketch {
@@ -98,6 +102,7 @@ impl TraceSketch {
             v_on: median(events.iter().map(|e| e.v_on)),
             settle_band_v: None,
             label: None,
+            fit: None,
         }
     }
 

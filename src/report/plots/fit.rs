@@ -20,6 +20,7 @@ pub struct PeakEstimate {
 }
 
 /// Measured samples and model curve of one event, times from its edge.
+#[derive(Debug, Clone, PartialEq)]
 pub struct FitPlot {
     pub title: String,
     pub measured: Vec<(f64, f64)>,
