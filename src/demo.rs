@@ -149,7 +149,10 @@ pub fn run(
         pipeline::measure_inputs(&[captures.join(&c.folder)], &s, progress)
     });
 
-    let parasitics_lines = Vec::new();
+    let parasitics_lines = match &scenario.parasitics {
+        Some(pair) => parasitics_lines(captures, pair, &scenario),
+        None => Vec::new(),
+    };
 
     let mut merged = compare::merged_doc(&variants, &run.docs, &settings);
     let mut verdicts = run.doc.verdicts.clone();
@@ -178,4 +181,52 @@ pub fn run(
         report_html: out.join("report.html"),
         n_errors,
     })
+}
+
+/// The added-capacitance method on the scenario's bare/loaded pair, in a few lines.
+fn parasitics_lines(captures: &Path, pair: &ScenarioPair, scenario: &Scenario) -> Vec<String> {
+    use crate::report::format::eng;
+    let inputs = crate::model::ParasiticsInputs {
+        c_add_f: pair.added_c_f,
+        inductance_h: None,
+        supply_v: Some(scenario.supply_v),
+        switching_rate_hz: None,
+        coil_current_a: None,
+        peak_limit_v: None,
+        c_slope_f: None,
+    };
+    let doc = match pipeline::parasitics_of_files(
+        &captures.join(&pair.bare),
+        &captures.join(&pair.loaded),
+        &crate::capture::ReadOptions::default(),
+        None,
+        &inputs,
+    ) {
+        Ok(d) => d,
+        Err(e) => return vec![format!("parasitics: {e}")],
+    };
+    let pm = |x: Option<f64>, unit: &str| {
+        x.map(|s| format!(" ± {}", eng(s, unit)))
+            .unwrap_or_default()
+    };
+    let mut lines = vec![format!(
+        "parasitics (added-capacitance method, {} added): ring {} -> {}; node capacitance {}{}, loop inductance {}{}, characteristic impedance {}",
+        eng(doc.c_add_f, "F"),
+        eng(doc.f_bare_hz, "Hz"),
+        eng(doc.f_loaded_hz, "Hz"),
+        eng(doc.c_par_f, "F"),
+        pm(doc.uncertainty.c_par_std_f, "F"),
+        eng(doc.l_h, "H"),
+        pm(doc.uncertainty.l_std_h, "H"),
+        eng(doc.z0_ohm, "Ω"),
+    )];
+    if let Some(s) = &doc.snubber {
+        lines.push(format!(
+            "ring damper across the node: {} in series with {} (at least {})",
+            eng(s.r_ohm, "Ω"),
+            eng(s.c_f, "F"),
+            eng(s.c_min_f, "F")
+        ));
+    }
+    lines
 }

@@ -601,3 +601,48 @@ pub fn limit_crossed(doc: &MeasureDoc, settings: &Settings) -> Option<String> {
     }
     None
 }
+
+/// The main ring of a single-event capture (for the added-capacitance method).
+pub fn ring_of_file(
+    path: &Path,
+    read: &ReadOptions,
+    signal: Option<&str>,
+) -> Result<crate::model::RingMeasurement, String> {
+    let cap = capture::read_capture(path, read).map_err(|e| e.to_string())?;
+    let settings = Settings {
+        read: read.clone(),
+        signal: signal.map(str::to_string),
+        ..Settings::default()
+    };
+    let (ch, _) = pick_channels(&cap, &settings)?;
+    let ctx = crate::model::ModelContext {
+        adc: ch.adc,
+        ..crate::model::ModelContext::default()
+    };
+    crate::model::measure_ring(&ch.samples, cap.sample_interval_s, &ctx).map_err(|e| {
+        format!(
+            "{}: channel {}: no ringing to measure after the main spike ({e})",
+            path.display(),
+            ch.name
+        )
+    })
+}
+
+/// `kickscan parasitics`: both captures' rings and the added-capacitance method.
+pub fn parasitics_of_files(
+    bare: &Path,
+    loaded: &Path,
+    read: &ReadOptions,
+    signal: Option<&str>,
+    inputs: &crate::model::ParasiticsInputs,
+) -> Result<crate::model::ParasiticsDoc, String> {
+    let b = ring_of_file(bare, read, signal)?;
+    let l = ring_of_file(loaded, read, signal)?;
+    crate::model::parasitics_doc(&b, &l, inputs).map_err(|e| {
+        format!(
+            "{} and {}: added-capacitance method: {e}",
+            bare.display(),
+            loaded.display()
+        )
+    })
+}

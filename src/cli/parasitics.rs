@@ -1,14 +1,13 @@
 //! `kickscan parasitics`: the added-capacitance method on a bare and a loaded capture, with
 //! every other estimate the options allow and the suppression advice.
 
-use std::path::{Path, PathBuf};
+use std::path::PathBuf;
 use std::process::ExitCode;
 
 use anyhow::{bail, Context, Result};
 use clap::Args;
 
-use kickscan::capture::{self, Channel, ReadOptions};
-use kickscan::model::{self, ModelContext, ParasiticsDoc, ParasiticsInputs, RingMeasurement};
+use kickscan::model::{self, ParasiticsDoc, ParasiticsInputs};
 use kickscan::units::parse_si;
 
 use super::ReadArgs;
@@ -86,52 +85,18 @@ fn inputs_from(args: &ParasiticsArgs) -> Result<ParasiticsInputs> {
     Ok(inputs)
 }
 
-fn pick_signal(
-    cap: &capture::Capture,
-    wanted: Option<&str>,
-    read: &ReadOptions,
-) -> Result<Channel> {
-    match wanted {
-        Some(w) => Ok(capture::select_channel(cap, w, read)?),
-        None => cap
-            .channels
-            .iter()
-            .find(|c| !c.unit.eq_ignore_ascii_case("A"))
-            .or(cap.channels.first())
-            .cloned()
-            .with_context(|| format!("{}: the capture has no channels", cap.source.display())),
-    }
-}
-
-fn ring_of(path: &Path, args: &ParasiticsArgs, read: &ReadOptions) -> Result<RingMeasurement> {
-    let cap = capture::read_capture(path, read)?;
-    let ch = pick_signal(&cap, args.signal.as_deref(), read)?;
-    let ctx = ModelContext {
-        adc: ch.adc,
-        ..ModelContext::default()
-    };
-    model::measure_ring(&ch.samples, cap.sample_interval_s, &ctx).with_context(|| {
-        format!(
-            "{}: channel {}: no ringing to measure after the main spike",
-            path.display(),
-            ch.name
-        )
-    })
-}
-
 /// Runs `kickscan parasitics`.
 pub fn run(args: ParasiticsArgs) -> Result<ExitCode> {
     let inputs = inputs_from(&args)?;
     let read = args.read.to_options()?;
-    let bare = ring_of(&args.bare, &args, &read)?;
-    let loaded = ring_of(&args.loaded, &args, &read)?;
-    let doc = model::parasitics_doc(&bare, &loaded, &inputs).with_context(|| {
-        format!(
-            "{} and {}: added-capacitance method",
-            args.bare.display(),
-            args.loaded.display()
-        )
-    })?;
+    let doc = kickscan::pipeline::parasitics_of_files(
+        &args.bare,
+        &args.loaded,
+        &read,
+        args.signal.as_deref(),
+        &inputs,
+    )
+    .map_err(|e| anyhow::anyhow!(e))?;
     let mut out = std::io::stdout().lock();
     use std::io::Write;
     if args.json {
