@@ -22,8 +22,8 @@ drive=(--on-time 4ms --off-time 8ms --turn-off 300ns --turn-off-spread 15
        --on-time-spread 2 --current-spread 1.5 --supply-ripple 0.15V)
 # Scope: 12-bit, 100 V window from -5 V, 40 mV of probe and front-end noise.
 scope=(--noise 40mV --adc-bits 12 --adc-min -5 --adc-max 95)
-# Single shots at 500 kS/s; the long runs at 250 kS/s (still 15 samples per ring period).
-shot=(--events 1 --dt 2us)
+# Single shots at 1 MS/s; the long runs at 250 kS/s (still 15 samples per 61 us ring period).
+shot=(--events 1 --dt 1us)
 run=(--events 22 --dt 4us)
 
 # The four suppression variants: the bare 60 V MOSFET (its avalanche clamps near 75 V),
