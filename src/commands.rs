@@ -96,7 +96,8 @@ pub fn run(cli: Cli) -> Result<ExitCode> {
             } else {
                 stdout.write_all(kickscan::report::compare_text(&run.doc).as_bytes())?;
             }
-            let projections = kickscan::compare::projection_lines(&variants, &run.docs);
+            let mut projections = kickscan::compare::rating_lines(&variants, &run.docs);
+            projections.extend(kickscan::compare::projection_lines(&variants, &run.docs));
             if !json {
                 for line in &projections {
                     writeln!(stdout, "{line}")?;

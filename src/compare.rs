@@ -197,24 +197,11 @@ fn verdicts(variants: &[VariantDoc], base: usize) -> Vec<String> {
 }
 
 fn fmt_v(v: f64) -> String {
-    if v.abs() >= 100.0 {
-        format!("{v:.0} V")
-    } else {
-        format!("{v:.1} V")
-    }
+    crate::report::format::eng(v, "V")
 }
 
 fn fmt_s(s: f64) -> String {
-    let a = s.abs();
-    if a >= 1.0 {
-        format!("{s:.2} s")
-    } else if a >= 1e-3 {
-        format!("{:.2} ms", s * 1e3)
-    } else if a >= 1e-6 {
-        format!("{:.1} us", s * 1e6)
-    } else {
-        format!("{:.0} ns", s * 1e9)
-    }
+    crate::report::format::eng(s, "s")
 }
 
 /// All variants' captures in one document, for the report page: each capture labelled with
@@ -242,6 +229,51 @@ pub fn merged_doc(variants: &[Variant], docs: &[MeasureDoc], settings: &Settings
     }
 }
 
+/// One line per variant on its margin against the switch rating (`--rating`), with the
+/// 80 % derating line of common practice.
+pub fn rating_lines(variants: &[Variant], docs: &[MeasureDoc]) -> Vec<String> {
+    let mut out = Vec::new();
+    for (v, d) in variants.iter().zip(docs) {
+        let Some(r) = &d.summary.rating else {
+            continue;
+        };
+        let n = d.summary.n_events;
+        let worst = r.max_fraction * r.rating_v;
+        let line = if r.n_over > 0 {
+            format!(
+                "{}: {} of {} events exceed the {} rating (worst {}, {:.0} % of the rating)",
+                v.label,
+                r.n_over,
+                n,
+                fmt_v(r.rating_v),
+                fmt_v(worst),
+                r.max_fraction * 100.0
+            )
+        } else if r.n_over_derated > 0 {
+            format!(
+                "{}: under the {} rating, but {} of {} events exceed the {} derating line (worst {})",
+                v.label,
+                fmt_v(r.rating_v),
+                r.n_over_derated,
+                n,
+                fmt_v(r.derated_v),
+                fmt_v(worst)
+            )
+        } else {
+            format!(
+                "{}: worst {} is {:.0} % of the {} rating, under the {} derating line",
+                v.label,
+                fmt_v(worst),
+                r.max_fraction * 100.0,
+                fmt_v(r.rating_v),
+                fmt_v(r.derated_v)
+            )
+        };
+        out.push(line);
+    }
+    out
+}
+
 /// One line per variant with its projected worst case, from the variant's own fit.
 pub fn projection_lines(variants: &[Variant], docs: &[MeasureDoc]) -> Vec<String> {
     let mut out = Vec::new();
@@ -267,7 +299,9 @@ pub fn projection_lines(variants: &[Variant], docs: &[MeasureDoc]) -> Vec<String
                         out.push(format!(
                             "{}: projected worst switch stress over {} switchings {}{} ({model} fit)",
                             v.label,
-                            n,
+                            n.parse::<f64>()
+                                .map(crate::report::digest::switchings_text)
+                                .unwrap_or_else(|_| n.clone()),
                             fmt_v(level),
                             interval
                         ));

@@ -134,7 +134,8 @@ pub fn run(
         })
         .collect();
     let run = compare::compare(&variants, None, &settings, true, progress);
-    let projections = compare::projection_lines(&variants, &run.docs);
+    let mut projections = compare::rating_lines(&variants, &run.docs);
+    projections.extend(compare::projection_lines(&variants, &run.docs));
     let variant_data = run.variant_data(&variants);
     let sketches = run.all_sketches();
 

@@ -38,7 +38,7 @@ pub struct Settings {
 pub const DEFAULT_LIFETIME: f64 = 1e6;
 
 /// File extensions that are sidecars or reports, never captures, when walking folders.
-const SKIP_EXTENSIONS: &[&str] = &["json", "md", "txt", "html", "png", "svg", "parquet", "cir"];
+const SKIP_EXTENSIONS: &[&str] = &["json", "md", "sh", "html", "png", "svg", "parquet", "cir"];
 
 /// Expands folders (recursively, sorted by path so runs are repeatable) into files. Files
 /// named explicitly are always kept; in folders, sidecars and reports are left out.

@@ -63,7 +63,7 @@ pub fn compare_text(doc: &CompareDoc) -> String {
             "\nagainst {} (medians, Mann-Whitney U two-sided p):",
             doc.baseline
         );
-        for d in &doc.differences {
+        for d in doc.differences.iter().filter(|d| d.p_value.is_some()) {
             let unit = field_unit(&d.metric);
             let p = d
                 .p_value

@@ -74,11 +74,13 @@ pub fn render_html(p: &Page) -> String {
         escape(&digest::counts_line(doc))
     );
 
-    inputs_section(&mut h, p);
-    warnings_section(&mut h, doc);
-    summary_section(&mut h, doc);
+    // What a reviewer needs first: the verdicts and the numbers, then the pictures; the
+    // inputs, warnings and every event follow for whoever checks the work.
     verdict_section(&mut h, p.verdicts);
+    summary_section(&mut h, doc);
     plots_section(&mut h, p.plots, p.plot_notes);
+    warnings_section(&mut h, doc);
+    inputs_section(&mut h, p);
     events_section(&mut h, doc);
     method_section(&mut h);
     safety_section(&mut h);
