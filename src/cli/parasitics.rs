@@ -312,7 +312,7 @@ mod tests {
                 })
                 .collect()
         }
-        let ctx = ModelContext::default();
+        let ctx = model::ModelContext::default();
         let bare = model::measure_ring(&ring(100e-12), 1e-9, &ctx).unwrap();
         let loaded = model::measure_ring(&ring(320e-12), 1e-9, &ctx).unwrap();
         let inputs = ParasiticsInputs {
