@@ -78,7 +78,8 @@ pub struct PairFit {
     /// Events found with this pair.
     pub n_events: usize,
     /// Fraction of those events that leave the on level and end near the off level
-    /// (0 when there is none).
+    /// (0 when there is none); an event cut by the window limit or the end of the record
+    /// is judged on the on level alone.
     pub explained_f: f64,
 }
 
@@ -133,8 +134,9 @@ pub fn fit_pair(v: &[f64], low_v: f64, high_v: f64, s: &Setting) -> PairFit {
     let mut explained = 0usize;
     for (&(start, end, cut), &e) in windows.iter().zip(&scan.edges) {
         let leaves_on = holds(start, e, v_on).unwrap_or(true);
-        // A window cut by the window limit says nothing about where the event ends.
-        let ends_off = cut || {
+        // A window cut by the window limit or by the end of the record says nothing about
+        // where the event ends.
+        let ends_off = cut || end >= v.len() || {
             let m = (end.saturating_sub(e) / END_FRACTION).max(1);
             holds(end.saturating_sub(m), end, v_off).unwrap_or(false)
         };
@@ -228,4 +230,58 @@ pub fn better_pair(v: &[f64], low_v: f64, high_v: f64, s: &Setting) -> Option<Pa
         }
     }
     best.map(|(f, _)| f)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Two cycles: 400 samples on at 0 V, then a ring decaying towards 10 V whose troughs
+    /// a diode holds at -0.5 V (invented demo shape).
+    fn clipped_ring() -> Vec<f64> {
+        let mut v = Vec::new();
+        for _ in 0..2 {
+            v.extend(std::iter::repeat_n(0.0, 400));
+            v.extend((0..1600).map(|k| {
+                let t = k as f64;
+                let w = 2.0 * std::f64::consts::PI * t / 200.0;
+                let e = (-t / 250.0).exp();
+                (10.0 + e * (-10.0 * w.cos() + 100.0 * w.sin())).max(-0.5)
+            }));
+        }
+        v
+    }
+
+    fn setting(v: &[f64]) -> Setting {
+        let (lo_v, hi_v) = levels::finite_range(v).unwrap();
+        Setting {
+            resolution_v: 1e-3,
+            separation_v: 1e-3,
+            sigma_v: 0.0,
+            adc_step_v: 0.0,
+            lo_v,
+            hi_v,
+            polarity: PolarityChoice::Auto,
+            dwell_samples: None,
+            max_samples: None,
+        }
+    }
+
+    #[test]
+    fn the_clip_level_does_not_explain_the_events_and_is_replaced() {
+        let v = clipped_ring();
+        let s = setting(&v);
+        // On level and supply: both events leave 0 V and end near 10 V (the ring's
+        // envelope 100 exp(-1600/250) = 0.17 V is within a tenth of the step).
+        let truth = fit_pair(&v, 0.0, 10.0, &s);
+        assert_eq!((truth.n_events, truth.explained_f), (2, 1.0));
+        // Clip and on level: its events start at the clip and end inside the ring.
+        let clip = fit_pair(&v, -0.5, 0.0, &s);
+        assert!(clip.explained_f < 1.0, "{clip:?}");
+        let better = better_pair(&v, -0.5, 0.0, &s).expect("a better pair");
+        assert!(better.low_v.abs() < 0.05, "{better:?}");
+        assert!((better.high_v - 10.0).abs() < 1.0, "{better:?}");
+        // A pair that explains every event is kept.
+        assert_eq!(better_pair(&v, 0.0, 10.0, &s), None);
+    }
 }
