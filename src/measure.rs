@@ -183,8 +183,9 @@ pub enum MeasureError {
 
 /// Finds and measures every turn-off event of one capture.
 ///
-/// Steps: noise and ADC step; the two state levels (histogram modes resolving the step);
-/// polarity; edges after an on-state dwell; each window measured; then the state levels
+/// Steps: noise and ADC step; the two state levels (histogram modes resolving the step,
+/// replaced by another pair of candidate levels when that pair explains the events better:
+/// see [`states`]); polarity; edges after an on-state dwell; each window measured; then the state levels
 /// cross-checked against the level just before each edge and where each event settled.
 /// When they disagree (a clamp plateau or a ringing tail outnumbering the off state) a
 /// warning says so and the events are found and measured again with the local levels.
