@@ -196,63 +196,135 @@ pub fn two_state_levels(
     resolution_v: f64,
     min_separation_v: f64,
 ) -> Option<StateLevels> {
-    let (lo, hi) = finite_range(v)?;
-    let range = hi - lo;
-    if range <= 0.0 {
-        return None;
-    }
-    let bin = (resolution_v / 2.0).max(range / MAX_BINS as f64);
-    if !(bin > 0.0 && bin.is_finite()) {
-        return None;
-    }
-    let nbins = ((range / bin).floor() as usize + 1).min(MAX_BINS + 1);
-    let mut counts = vec![0f64; nbins];
-    for &x in v {
-        if x.is_finite() {
-            let b = (((x - lo) / bin) as usize).min(nbins - 1);
-            counts[b] += 1.0;
-        }
-    }
-    // Box smoothing over +-half_k bins (about one resolution wide).
-    let half_k = ((resolution_v / bin).round() as usize / 2).max(1);
-    let mut smooth = vec![0f64; nbins];
-    let mut acc = 0.0;
-    for k in 0..nbins + half_k {
-        if k < nbins {
-            acc += counts[k];
-        }
-        if k > 2 * half_k {
-            acc -= counts[k - 2 * half_k - 1];
-        }
-        if k >= half_k && k - half_k < nbins {
-            smooth[k - half_k] = acc;
-        }
-    }
-    // Local maxima (plateaus of equal counts take their first bin).
-    let mut peaks: Vec<usize> = Vec::new();
-    for k in 0..nbins {
-        let c = smooth[k];
-        if c <= 0.0 {
-            continue;
-        }
-        let left = if k > 0 { smooth[k - 1] } else { 0.0 };
-        let right = if k + 1 < nbins { smooth[k + 1] } else { 0.0 };
-        if c > left && c >= right {
-            peaks.push(k);
-        }
-    }
-    peaks.sort_by(|a, b| smooth[*b].total_cmp(&smooth[*a]));
-    let first = *peaks.first()?;
-    let centre = |k: usize| lo + (k as f64 + 0.5) * bin;
-    let second = peaks
+    let h = Histogram::new(v, resolution_v)?;
+    let first = *h.peaks.first()?;
+    let second = h
+        .peaks
         .iter()
         .copied()
-        .find(|&k| (centre(k) - centre(first)).abs() >= min_separation_v)?;
-    // The median of the samples near the mode, re-centred a few times, undoes the bin's
-    // quantisation without being pulled by the transitions that pass through.
-    let refine = |k: usize| -> f64 {
-        let mut c = centre(k);
-        let w = 2.0 * resolution_v.max(bin);
+        .find(|&k| (h.centre(k) - h.centre(first)).abs() >= min_separation_v)?;
+    let (a, b) = (h.refine(v, first), h.refine(v, second));
+    let (ca, cb) = (h.smooth[first], h.smooth[second]);
+    Some(if a <= b {
+        StateLevels {
+            low_v: a,
+            high_v: b,
+            low_count: ca,
+            high_count: cb,
+            bin_v: h.bin,
+        }
+    } else {
+        StateLevels {
+            low_v: b,
+            high_v: a,
+            low_count: cb,
+            high_count: ca,
+            bin_v: h.bin,
+        }
+    })
+}
+
+/// A histogram mode: its level (refined as in [`two_state_levels`]) and its smoothed count.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Mode {
+    pub level_v: f64,
+    pub count: f64,
+}
+
+/// The `max_modes` most populated histogram modes at `resolution_v` (same bins, smoothing
+/// and refinement as [`two_state_levels`]), most populated first.
+pub fn histogram_modes(v: &[f64], resolution_v: f64, max_modes: usize) -> Vec<Mode> {
+    let Some(h) = Histogram::new(v, resolution_v) else {
+        return Vec::new();
+    };
+    h.peaks
+        .iter()
+        .take(max_modes)
+        .map(|&k| Mode {
+            level_v: h.refine(v, k),
+            count: h.smooth[k],
+        })
+        .collect()
+}
+
+/// Smoothed histogram of a record with its local maxima, most populated first.
+struct Histogram {
+    lo: f64,
+    bin: f64,
+    resolution: f64,
+    smooth: Vec<f64>,
+    peaks: Vec<usize>,
+}
+
+impl Histogram {
+    /// Bins half of `resolution_v` wide (never narrower than the range / `MAX_BINS`), counts
+    /// smoothed with a box about `resolution_v` wide so the noise of one state makes one
+    /// mode.
+    fn new(v: &[f64], resolution_v: f64) -> Option<Histogram> {
+        let (lo, hi) = finite_range(v)?;
+        let range = hi - lo;
+        if range <= 0.0 {
+            return None;
+        }
+        let bin = (resolution_v / 2.0).max(range / MAX_BINS as f64);
+        if !(bin > 0.0 && bin.is_finite()) {
+            return None;
+        }
+        let nbins = ((range / bin).floor() as usize + 1).min(MAX_BINS + 1);
+        let mut counts = vec![0f64; nbins];
+        for &x in v {
+            if x.is_finite() {
+                let b = (((x - lo) / bin) as usize).min(nbins - 1);
+                counts[b] += 1.0;
+            }
+        }
+        // Box smoothing over +-half_k bins (about one resolution wide).
+        let half_k = ((resolution_v / bin).round() as usize / 2).max(1);
+        let mut smooth = vec![0f64; nbins];
+        let mut acc = 0.0;
+        for k in 0..nbins + half_k {
+            if k < nbins {
+                acc += counts[k];
+            }
+            if k > 2 * half_k {
+                acc -= counts[k - 2 * half_k - 1];
+            }
+            if k >= half_k && k - half_k < nbins {
+                smooth[k - half_k] = acc;
+            }
+        }
+        // Local maxima (plateaus of equal counts take their first bin).
+        let mut peaks: Vec<usize> = Vec::new();
+        for k in 0..nbins {
+            let c = smooth[k];
+            if c <= 0.0 {
+                continue;
+            }
+            let left = if k > 0 { smooth[k - 1] } else { 0.0 };
+            let right = if k + 1 < nbins { smooth[k + 1] } else { 0.0 };
+            if c > left && c >= right {
+                peaks.push(k);
+            }
+        }
+        peaks.sort_by(|a, b| smooth[*b].total_cmp(&smooth[*a]));
+        Some(Histogram {
+            lo,
+            bin,
+            resolution: resolution_v,
+            smooth,
+            peaks,
+        })
+    }
+
+    fn centre(&self, k: usize) -> f64 {
+        self.lo + (k as f64 + 0.5) * self.bin
+    }
+
+    /// The median of the samples near the mode, re-centred a few times, undoes the bin's
+    /// quantisation without being pulled by the transitions that pass through.
+    fn refine(&self, v: &[f64], k: usize) -> f64 {
+        let mut c = self.centre(k);
+        let w = 2.0 * self.resolution.max(self.bin);
         let mut near: Vec<f64> = Vec::new();
         for _ in 0..3 {
             near.clear();
@@ -263,26 +335,7 @@ pub fn two_state_levels(
             }
         }
         c
-    };
-    let (a, b) = (refine(first), refine(second));
-    let (ca, cb) = (smooth[first], smooth[second]);
-    Some(if a <= b {
-        StateLevels {
-            low_v: a,
-            high_v: b,
-            low_count: ca,
-            high_count: cb,
-            bin_v: bin,
-        }
-    } else {
-        StateLevels {
-            low_v: b,
-            high_v: a,
-            low_count: cb,
-            high_count: ca,
-            bin_v: bin,
-        }
-    })
+    }
 }
 
 #[cfg(test)]

@@ -10,6 +10,7 @@ use crate::{events, levels};
 
 mod event;
 pub mod ring;
+pub mod states;
 
 /// Which way the spike goes.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Default)]
@@ -182,8 +183,9 @@ pub enum MeasureError {
 
 /// Finds and measures every turn-off event of one capture.
 ///
-/// Steps: noise and ADC step; the two state levels (histogram modes resolving the step);
-/// polarity; edges after an on-state dwell; each window measured; then the state levels
+/// Steps: noise and ADC step; the two state levels (histogram modes resolving the step,
+/// replaced by another pair of candidate levels when that pair explains the events better:
+/// see [`states`]); polarity; edges after an on-state dwell; each window measured; then the state levels
 /// cross-checked against the level just before each edge and where each event settled.
 /// When they disagree (a clamp plateau or a ringing tail outnumbering the off state) a
 /// warning says so and the events are found and measured again with the local levels.
@@ -232,6 +234,24 @@ pub fn measure_trace(
     let separation = (6.0 * rough_sigma + 2.0 * adc_step_v).max(range * 1e-3);
     let states = levels::two_state_levels(v, resolution, separation)
         .ok_or(MeasureError::NoStates { spread_v: range })?;
+    let max_samples = opts
+        .max_window_s
+        .filter(|m| *m > 0.0)
+        .map(|m| (m / trace.dt_s).ceil() as usize);
+    let setting = states::Setting {
+        resolution_v: resolution,
+        separation_v: separation,
+        sigma_v: rough_sigma,
+        adc_step_v,
+        lo_v: lo,
+        hi_v: hi,
+        polarity: opts.polarity,
+        dwell_samples: opts
+            .min_on_time_s
+            .filter(|t| *t > 0.0)
+            .map(|t| ((t / trace.dt_s).ceil() as usize).max(1)),
+        max_samples,
+    };
     // With the supply known the two states are ground and the supply, whichever side the
     // switch is on: take the level the samples hold near each (within 15 %, so a sagging
     // supply is still found). This also serves a record that ends before its only event
@@ -246,22 +266,21 @@ pub fn measure_trace(
             let s = levels::level_near(v, sup, hw).unwrap_or(sup);
             (g.min(s), g.max(s))
         }
-        None => (states.low_v, states.high_v),
+        // The histogram pair, unless another pair of candidate levels explains the events
+        // better (a body-diode clip level on a clean record, see `states`).
+        None => match states::better_pair(v, states.low_v, states.high_v, &setting) {
+            Some(fit) => {
+                warnings.push(format!(
+                    "the most populated levels {:.4} V and {:.4} V do not explain the events (a clamped ring trough or a ringing tail?); using {:.4} V and {:.4} V, which do",
+                    states.low_v, states.high_v, fit.low_v, fit.high_v
+                ));
+                (fit.low_v, fit.high_v)
+            }
+            None => (states.low_v, states.high_v),
+        },
     };
 
-    let polarity = match opts.polarity {
-        PolarityChoice::Up => Polarity::Up,
-        PolarityChoice::Down => Polarity::Down,
-        PolarityChoice::Auto => {
-            // Low-side switching is the common case; down only when the downward
-            // excursion clearly wins.
-            if low_v - lo <= hi - high_v + resolution {
-                Polarity::Up
-            } else {
-                Polarity::Down
-            }
-        }
-    };
+    let polarity = states::polarity_of(low_v, high_v, &setting);
     let (mut v_on, mut v_off) = match polarity {
         Polarity::Up => (low_v, high_v),
         Polarity::Down => (high_v, low_v),
@@ -275,10 +294,9 @@ pub fn measure_trace(
         })
         .unwrap_or(rough_sigma);
         let hysteresis_f = (4.0 * sigma.max(adc_step_v) / step).clamp(0.05, 0.35);
-        let dwell = match opts.min_on_time_s {
-            Some(t) if t > 0.0 => ((t / trace.dt_s).ceil() as usize).max(1),
-            _ => events::derive_dwell(&events::low_run_lengths(v, v_on, v_off, hysteresis_f)),
-        };
+        let dwell = setting.dwell_samples.unwrap_or_else(|| {
+            events::derive_dwell(&events::low_run_lengths(v, v_on, v_off, hysteresis_f))
+        });
         let params = events::EdgeParams {
             v_on,
             v_off,
@@ -286,10 +304,6 @@ pub fn measure_trace(
             dwell_samples: dwell,
         };
         let scan = events::scan_edges(v, params);
-        let max_samples = opts
-            .max_window_s
-            .filter(|m| *m > 0.0)
-            .map(|m| (m / trace.dt_s).ceil() as usize);
         let windows = events::event_windows(&scan, v.len(), max_samples);
         let s = if polarity == Polarity::Up { 1.0 } else { -1.0 };
         let extreme_v = if s > 0.0 { hi } else { lo };
