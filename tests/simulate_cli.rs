@@ -140,3 +140,34 @@ fn bad_values_are_refused_with_the_option_named() {
         "nothing written"
     );
 }
+
+#[test]
+fn raw_and_value_only_outputs_read_back_with_no_options() {
+    let dir = tempfile::tempdir().unwrap();
+    for (format, file, detected) in [
+        (
+            "raw-i16",
+            "dump.raw",
+            "raw little-endian i16 samples (sidecar sample_type)",
+        ),
+        (
+            "csv-values",
+            "values.csv",
+            "sample interval 1e-7 s stated on line 2",
+        ),
+    ] {
+        let out = dir.path().join(file);
+        kickscan()
+            .args(["simulate", "-q", "--events", "1", "--format", format, "-o"])
+            .arg(&out)
+            .assert()
+            .success();
+        kickscan()
+            .arg("inspect")
+            .arg(&out)
+            .assert()
+            .success()
+            .stdout(predicate::str::contains(detected))
+            .stdout(predicate::str::contains("first sample at -2.00 ms"));
+    }
+}

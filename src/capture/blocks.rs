@@ -55,12 +55,12 @@ pub struct BlockReader {
 }
 
 /// Opens a capture for streaming. The format comes from `opts.raw`, then the file's leading
-/// bytes (`RIFF....WAVE`), then its extension; anything else is read as delimited text.
+/// bytes (`RIFF....WAVE`), then its extension, then a sidecar naming a `sample_type` (a raw
+/// dump); anything else is read as delimited text.
 pub fn open_blocks(path: &Path, opts: &ReadOptions) -> Result<BlockReader, CaptureError> {
     let (mut header, source, record_length) = match super::detect_format(path, opts)? {
         Format::Raw => {
-            let kind = opts.raw.unwrap_or(super::RawKind::F64);
-            let (c, s) = raw::open(path, kind, opts)?;
+            let (c, s) = raw::open(path, opts)?;
             (c, Source::Raw(Box::new(s)), None)
         }
         Format::Wav => {

@@ -19,7 +19,7 @@
 use std::io::Read;
 use std::path::{Path, PathBuf};
 
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 use thiserror::Error;
 
 mod adc;
@@ -56,8 +56,8 @@ impl std::fmt::Display for Format {
     }
 }
 
-/// Sample type of a raw little-endian dump (`--raw`).
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+/// Sample type of a raw little-endian dump (`--raw`, or `sample_type` in the sidecar).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "lowercase")]
 pub enum RawKind {
     I8,
@@ -168,7 +168,8 @@ pub enum CaptureError {
 }
 
 /// Reads a whole capture. The format comes from `opts.raw`, then the file's leading bytes
-/// (`RIFF....WAVE`), then its extension; anything else is tried as delimited text.
+/// (`RIFF....WAVE`), then its extension, then a sidecar naming a `sample_type` (a raw
+/// dump); anything else is tried as delimited text.
 /// `--scale` factors are applied here; `--skew` is applied by [`select_channel`].
 pub fn read_capture(path: &Path, opts: &ReadOptions) -> Result<Capture, CaptureError> {
     let mut reader = open_blocks(path, opts)?;
@@ -238,6 +239,9 @@ pub(crate) fn detect_format(path: &Path, opts: &ReadOptions) -> Result<Format, C
                 "expected a RIFF/WAVE header ('RIFF', size, 'WAVE'); 64-bit RF64 files are not read"
                     .to_string(),
         });
+    }
+    if sidecar::names_sample_type(path) {
+        return Ok(Format::Raw);
     }
     Ok(Format::Csv)
 }

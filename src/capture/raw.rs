@@ -1,9 +1,10 @@
-//! Raw little-endian sample dumps (`--raw i8|i16|i32|f32|f64`): interleaved frames of one
-//! sample per channel, no header.
+//! Raw little-endian sample dumps (`--raw i8|i16|i32|f32|f64`, or `sample_type` in the
+//! sidecar): interleaved frames of one sample per channel, no header.
 //!
-//! The sidecar (see [`super::sidecar`]) gives the channel count, names, scaling and the
-//! sample rate. Without a sidecar the dump is one channel `CH1`, samples as fractions of full
-//! scale (integers) or as stored (floats), and `--dt`/`--sample-rate` must give the rate.
+//! The sidecar (see [`super::sidecar`]) gives the channel count, names, scaling, the
+//! sample rate and the sample type. Without a sidecar the dump is one channel `CH1`,
+//! samples as fractions of full scale (integers) or as stored (floats), `--raw` must give
+//! the type and `--dt`/`--sample-rate` the rate.
 
 use std::fs::File;
 use std::io::{BufReader, Read, Seek, SeekFrom};
@@ -75,11 +76,7 @@ pub(crate) struct RawStream {
 }
 
 /// Opens a raw dump and describes its channels.
-pub(crate) fn open(
-    path: &Path,
-    kind: RawKind,
-    opts: &ReadOptions,
-) -> Result<(Capture, RawStream), CaptureError> {
+pub(crate) fn open(path: &Path, opts: &ReadOptions) -> Result<(Capture, RawStream), CaptureError> {
     let io = |source| CaptureError::Io {
         file: path.to_path_buf(),
         source,
@@ -93,10 +90,45 @@ pub(crate) fn open(
         t0_s: 0.0,
         channels: Vec::new(),
         metadata: Vec::new(),
-        notes: vec![format!("raw little-endian {} samples", kind.name())],
+        notes: Vec::new(),
         warnings: Vec::new(),
     };
     let sidecar = read_sidecar(path)?;
+    let stated = sidecar.as_ref().and_then(|s| s.1.sample_type);
+    let kind = match (opts.raw, stated) {
+        (Some(given), Some(side)) if given != side => {
+            cap.warnings.push(format!(
+                "--raw {} overrides the sidecar's sample_type {}; the samples are read as {}",
+                given.name(),
+                side.name(),
+                given.name()
+            ));
+            cap.notes
+                .push(format!("raw little-endian {} samples (--raw)", given.name()));
+            given
+        }
+        (Some(given), _) => {
+            cap.notes
+                .push(format!("raw little-endian {} samples (--raw)", given.name()));
+            given
+        }
+        (None, Some(side)) => {
+            cap.notes.push(format!(
+                "raw little-endian {} samples (sidecar sample_type)",
+                side.name()
+            ));
+            side
+        }
+        (None, None) => {
+            return Err(CaptureError::Invalid {
+                file: path.to_path_buf(),
+                message: format!(
+                    "no sample type: expected 'sample_type' in the sidecar {} or --raw i8|i16|i32|f32|f64",
+                    super::sidecar::sidecar_path(path).display()
+                ),
+            })
+        }
+    };
     let n_channels = sidecar.as_ref().map_or(1, |s| s.1.channels.len());
     let d = describe_channels(
         path,

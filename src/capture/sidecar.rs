@@ -9,6 +9,7 @@
 //!   "sample_rate_hz": 1e9,
 //!   "t0_s": -2e-6,
 //!   "data_offset_bytes": 0,
+//!   "sample_type": "i16",
 //!   "channels": [
 //!     {"name": "v_sw",   "unit": "V", "volts_per_full_scale": 500, "offset_v": 0},
 //!     {"name": "i_coil", "unit": "A", "volts_per_full_scale": 2}
@@ -28,13 +29,19 @@
 //! - `t0_s` (optional, default 0): time of the first sample, negative with pre-trigger.
 //! - `data_offset_bytes` (raw dumps only, optional, default 0): bytes to skip before the
 //!   first sample (a header the dump tool wrote).
+//! - `sample_type` (raw dumps only, optional): `i8`, `i16`, `i32`, `f32` or `f64`, the type
+//!   of each little-endian sample. With it the dump reads with no `--raw` option: a file
+//!   whose sidecar has this field is read as a raw dump whatever its extension. `--raw`
+//!   still overrides it; when the two differ the option is used and the capture carries a
+//!   warning naming both. A WAV file's sidecar must not have it (the WAV header says the
+//!   sample type), and is refused if it does.
 
 use std::io::Read;
 use std::path::{Path, PathBuf};
 
 use serde::{Deserialize, Serialize};
 
-use super::CaptureError;
+use super::{CaptureError, RawKind};
 
 /// Largest sidecar read; a description of channels is a few hundred bytes.
 const MAX_SIDECAR_BYTES: u64 = 1 << 20;
@@ -50,6 +57,8 @@ pub struct Sidecar {
     pub t0_s: Option<f64>,
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub data_offset_bytes: Option<u64>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub sample_type: Option<RawKind>,
     pub channels: Vec<SidecarChannel>,
 }
 
@@ -72,6 +81,29 @@ fn default_unit() -> String {
 /// Where the sidecar of a capture would be.
 pub fn sidecar_path(capture: &Path) -> PathBuf {
     capture.with_extension("json")
+}
+
+/// Whether the sidecar beside `capture` has a `sample_type`, which makes the file a raw
+/// dump. Checked loosely (any JSON object with that key), so an unrelated JSON file beside
+/// a text capture never stops the text from reading; the raw reader then checks the
+/// sidecar in full and reports what is wrong with it.
+pub(crate) fn names_sample_type(capture: &Path) -> bool {
+    let path = sidecar_path(capture);
+    if path == capture {
+        return false;
+    }
+    let Ok(f) = std::fs::File::open(&path) else {
+        return false;
+    };
+    let mut text = String::new();
+    if f.take(MAX_SIDECAR_BYTES + 1)
+        .read_to_string(&mut text)
+        .is_err()
+        || text.len() as u64 > MAX_SIDECAR_BYTES
+    {
+        return false;
+    }
+    serde_json::from_str::<serde_json::Value>(&text).is_ok_and(|v| v.get("sample_type").is_some())
 }
 
 /// Reads and checks the sidecar beside `capture`, if there is one.
@@ -196,5 +228,52 @@ mod tests {
         )
         .unwrap_err();
         assert!(e.contains("sample_rate_hz"), "{e}");
+        // A sample type outside the five raw kinds, and a misspelt key, are both named.
+        let e = parse(
+            r#"{"sample_type": "f16", "channels": [{"name": "a", "volts_per_full_scale": 1}]}"#,
+        )
+        .unwrap_err();
+        assert!(e.contains("unknown variant `f16`"), "{e}");
+        let e = parse(
+            r#"{"sampletype": "f32", "channels": [{"name": "a", "volts_per_full_scale": 1}]}"#,
+        )
+        .unwrap_err();
+        assert!(e.contains("unknown field `sampletype`"), "{e}");
+    }
+
+    #[test]
+    fn sample_type_reads_in_each_spelling_and_serialises_back() {
+        for (text, kind) in [
+            ("i8", RawKind::I8),
+            ("i16", RawKind::I16),
+            ("i32", RawKind::I32),
+            ("f32", RawKind::F32),
+            ("f64", RawKind::F64),
+        ] {
+            let sc = parse(&format!(
+                r#"{{"sample_type": "{text}", "channels": [{{"name": "a", "volts_per_full_scale": 1}}]}}"#
+            ))
+            .unwrap();
+            assert_eq!(sc.sample_type, Some(kind));
+            let back = serde_json::to_string(&sc).unwrap();
+            assert!(
+                back.contains(&format!(r#""sample_type":"{text}""#)),
+                "{back}"
+            );
+        }
+    }
+
+    #[test]
+    fn only_a_sidecar_naming_a_sample_type_makes_a_raw_dump() {
+        let dir = tempfile::tempdir().unwrap();
+        let data = dir.path().join("d.raw");
+        assert!(!names_sample_type(&data));
+        std::fs::write(dir.path().join("d.json"), r#"{"sample_type": "i16"}"#).unwrap();
+        assert!(names_sample_type(&data));
+        // A report or other JSON beside a text capture leaves it text.
+        std::fs::write(dir.path().join("d.json"), r#"{"events": [1, 2]}"#).unwrap();
+        assert!(!names_sample_type(&data));
+        std::fs::write(dir.path().join("d.json"), "not json").unwrap();
+        assert!(!names_sample_type(&data));
     }
 }

@@ -218,6 +218,17 @@ pub(crate) fn open(path: &Path, opts: &ReadOptions) -> Result<(Capture, WavStrea
     cap.metadata
         .push(("frames (header)".to_string(), frames_declared.to_string()));
     let sidecar = read_sidecar(path)?;
+    if let Some((sc_path, sc)) = &sidecar {
+        if sc.sample_type.is_some() {
+            return Err(CaptureError::Sidecar {
+                file: sc_path.clone(),
+                message: format!(
+                    "'sample_type' is for raw dumps, but {} is a WAV file whose header gives the sample type; expected no 'sample_type'",
+                    path.display()
+                ),
+            });
+        }
+    }
     let d = describe_channels(
         path,
         usize::from(spec.channels),

@@ -167,10 +167,16 @@ pub struct SidecarChannel {
     pub offset_v: f64,
 }
 
-/// The JSON file beside a WAV or raw dump.
+/// The JSON file beside a WAV or raw dump (schema in [`crate::capture::sidecar`]).
 #[derive(Debug, Clone, Serialize, PartialEq)]
 pub struct Sidecar {
     pub sample_rate_hz: f64,
+    /// Time of the first sample; left out when it is 0.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub t0_s: Option<f64>,
+    /// Raw dumps only, so they read back without `--raw`.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub sample_type: Option<RawKind>,
     pub channels: Vec<SidecarChannel>,
 }
 
@@ -374,9 +380,11 @@ fn channel_scale(c: &Channel, bits: u32) -> (f64, f64) {
     (offset, half * top / (top - 1.0))
 }
 
-fn sidecar_for(capture: &Capture, scales: &[(f64, f64)]) -> Sidecar {
+fn sidecar_for(capture: &Capture, scales: &[(f64, f64)], raw: Option<RawKind>) -> Sidecar {
     Sidecar {
         sample_rate_hz: 1.0 / capture.sample_interval_s,
+        t0_s: (capture.t0_s != 0.0).then_some(capture.t0_s),
+        sample_type: raw,
         channels: capture
             .channels
             .iter()
@@ -459,7 +467,7 @@ fn write_wav(
         .iter()
         .map(|c| channel_scale(c, u32::from(bits.unwrap_or(24))))
         .collect();
-    let side = write_sidecar(path, &sidecar_for(capture, &scales))?;
+    let side = write_sidecar(path, &sidecar_for(capture, &scales, None))?;
     let tmp = temp_name(path);
     let result = (|| {
         let mut w = hound::WavWriter::create(&tmp, spec).map_err(wav_err)?;
@@ -500,7 +508,7 @@ fn write_raw(capture: &Capture, path: &Path, kind: RawKind) -> Result<Vec<PathBu
         .iter()
         .map(|c| bits.map_or((0.0, 1.0), |b| channel_scale(c, b)))
         .collect();
-    let side = write_sidecar(path, &sidecar_for(capture, &scales))?;
+    let side = write_sidecar(path, &sidecar_for(capture, &scales, Some(kind)))?;
     atomic(path, |w| {
         for j in 0..capture.n_samples() {
             for (c, &(offset, fs)) in capture.channels.iter().zip(&scales) {
@@ -672,6 +680,9 @@ mod tests {
             let side: serde_json::Value =
                 serde_json::from_str(&std::fs::read_to_string(&files[1]).unwrap()).unwrap();
             assert_eq!(side["sample_rate_hz"].as_f64(), Some(1e7));
+            assert_eq!(side["t0_s"].as_f64(), Some(-5e-6));
+            // The WAV header gives the sample type; the readers refuse it in a WAV sidecar.
+            assert!(side.get("sample_type").is_none());
             let chans = side["channels"].as_array().unwrap();
             assert_eq!(chans[0]["name"], "v_sw");
             assert_eq!(chans[1]["unit"], "A");
@@ -739,6 +750,9 @@ mod tests {
             .as_f64()
             .unwrap();
         let off = side["channels"][0]["offset_v"].as_f64().unwrap();
+        // The sidecar names the sample type and the first sample's time.
+        assert_eq!(side["sample_type"], "i16");
+        assert_eq!(side["t0_s"].as_f64(), Some(-5e-6));
         let bytes = std::fs::read(&path16).unwrap();
         let code = i16::from_le_bytes([bytes[4 * 7], bytes[4 * 7 + 1]]);
         let v = off + f64::from(code) / 32768.0 * fs;

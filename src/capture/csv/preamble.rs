@@ -36,6 +36,21 @@ pub(super) fn split_meta(text: &str, delim: Delim) -> (String, String) {
     }
 }
 
+/// A preamble line split as [`split_meta`] does. A file of one value column has no data
+/// delimiter, so there a line that would stay whole is split at its first comma or
+/// semicolon, as it would be above several comma- or semicolon-separated columns
+/// (`sample interval [s],1e-7` above a single column).
+fn split_meta_key(text: &str, delim: Delim) -> (String, String) {
+    let whole = split_meta(text, delim);
+    if !matches!(delim, Delim::None) || whole.0 != "text" {
+        return whole;
+    }
+    match text.bytes().find(|&b| b == b',' || b == b';') {
+        Some(b) => split_meta(text, Delim::Byte(b)),
+        None => whole,
+    }
+}
+
 /// What the preamble said.
 #[derive(Default)]
 pub(super) struct Preamble {
@@ -58,7 +73,7 @@ pub(super) fn read_preamble(
         if l.text.trim().is_empty() {
             continue;
         }
-        let (key, value) = split_meta(&l.text, delim);
+        let (key, value) = split_meta_key(&l.text, delim);
         if key.is_empty() && value.is_empty() {
             continue;
         }
@@ -159,6 +174,67 @@ mod tests {
         assert_eq!(
             split_meta("valve V3 bench", d),
             ("text".to_string(), "valve V3 bench".to_string())
+        );
+    }
+
+    fn preamble_of(text: &str, delim: Delim) -> (Preamble, Capture) {
+        let lines: Vec<SniffLine> = text
+            .lines()
+            .enumerate()
+            .map(|(k, l)| SniffLine {
+                no: k + 1,
+                offset: 0,
+                text: l.into(),
+            })
+            .collect();
+        let mut cap = Capture {
+            source: "p.csv".into(),
+            format: crate::capture::Format::Csv,
+            sample_interval_s: 0.0,
+            t0_s: 0.0,
+            channels: Vec::new(),
+            metadata: Vec::new(),
+            notes: Vec::new(),
+            warnings: Vec::new(),
+        };
+        let p = read_preamble(&lines, delim, false, &mut cap);
+        (p, cap)
+    }
+
+    #[test]
+    fn keys_with_a_unit_read_above_a_single_column() {
+        // What `kickscan simulate --format csv-values` writes above its one value column.
+        let (p, cap) = preamble_of(
+            "source,kickscan simulate\nsample interval [s],1e-7\nrecord length,3001\nstart time [s],-0.0001\nclamp,none",
+            Delim::None,
+        );
+        assert_eq!(p.interval_s, Some(1e-7));
+        assert_eq!(p.record_length, Some(3001));
+        assert_eq!(p.t0_s, Some(-1e-4));
+        assert!(cap.warnings.is_empty(), "{:?}", cap.warnings);
+        assert!(cap
+            .metadata
+            .contains(&("record length".to_string(), "3001".to_string())));
+        assert!(cap
+            .metadata
+            .contains(&("clamp".to_string(), "none".to_string())));
+        // The unit in brackets or parentheses scales the bare number: 0.25 us, -40 ms.
+        let (p, _) = preamble_of(
+            "sample interval (us);0.25\nstart time [ms];-40\nrecord length (samples);8",
+            Delim::None,
+        );
+        assert!((p.interval_s.unwrap() - 0.25e-6).abs() < 1e-20);
+        assert!((p.t0_s.unwrap() - -40e-3).abs() < 1e-15);
+        assert_eq!(p.record_length, Some(8));
+        // Text with no separator stays whole; the first of comma and semicolon splits.
+        let (p, cap) = preamble_of("bench 3 valve V3\nrig;A,B", Delim::None);
+        assert!(p.interval_s.is_none());
+        assert_eq!(
+            cap.metadata,
+            vec![
+                ("text".to_string(), "bench 3 valve V3".to_string()),
+                ("rig".to_string(), "A,B".to_string())
+            ]
         );
     }
 }
