@@ -181,6 +181,9 @@ pub enum MeasureError {
     Invalid(String),
 }
 
+/// How many per-event notes a capture lists before counting the rest.
+const MAX_REPEATED_NOTES: usize = 3;
+
 /// Finds and measures every turn-off event of one capture.
 ///
 /// Steps: noise and ADC step; the two state levels (histogram modes resolving the step,
@@ -380,7 +383,15 @@ pub fn measure_trace(
             }
         }
 
-        warnings.extend(notes);
+        // A note that holds for many events is said a few times, then counted.
+        let n_notes = notes.len();
+        warnings.extend(notes.into_iter().take(MAX_REPEATED_NOTES));
+        if n_notes > MAX_REPEATED_NOTES {
+            warnings.push(format!(
+                "... and {} more event notes like the ones above",
+                n_notes - MAX_REPEATED_NOTES
+            ));
+        }
         for (which, level) in [("on", v_on), ("off", v_off)] {
             if opts.supply_v.is_none()
                 && levels::longest_run_near(v, level, 2.0 * resolution) < MIN_STATE_RUN
@@ -433,21 +444,42 @@ fn capture_warnings(
             ));
         }
     }
-    for ev in evs {
-        if let Some(r) = opts.rating_v {
-            if ev.switch_stress_v > r {
-                warnings.push(format!(
-                    "event {}: switch stress {:.1} V exceeds the rating {r} V",
-                    ev.index, ev.switch_stress_v
-                ));
-            }
-        }
-        if ev.clipped {
+    if let Some(r) = opts.rating_v {
+        let over: Vec<&Event> = evs.iter().filter(|e| e.switch_stress_v > r).collect();
+        if let Some(worst) = over
+            .iter()
+            .max_by(|a, b| a.switch_stress_v.total_cmp(&b.switch_stress_v))
+        {
             warnings.push(format!(
-                "event {}: the peak sits on the ADC rail; peak_v {:.2} V is a lower bound",
-                ev.index, ev.peak_v
+                "{} of {} events exceed the rating {r} V (worst: event {}, switch stress {:.1} V)",
+                over.len(),
+                evs.len(),
+                worst.index,
+                worst.switch_stress_v
             ));
         }
+    }
+    let clipped: Vec<String> = evs
+        .iter()
+        .filter(|e| e.clipped)
+        .map(|e| e.index.to_string())
+        .collect();
+    if !clipped.is_empty() {
+        let shown = clipped
+            .iter()
+            .take(8)
+            .cloned()
+            .collect::<Vec<_>>()
+            .join(", ");
+        let more = if clipped.len() > 8 {
+            format!(" and {} more", clipped.len() - 8)
+        } else {
+            String::new()
+        };
+        warnings.push(format!(
+            "{} event(s) clipped at the ADC rail (events {shown}{more}): their peak_v is a lower bound",
+            clipped.len()
+        ));
     }
     let n_under = evs.iter().filter(|e| e.undersampled).count();
     if n_under > 0 {

@@ -200,12 +200,13 @@ fn supply_and_rating_warnings_and_the_window_limit() {
         "{:?}",
         m.warnings
     );
-    assert_eq!(
+    // One line for the capture, counting the events over the rating.
+    assert!(
         m.warnings
             .iter()
-            .filter(|w| w.contains("exceeds the rating 60 V"))
-            .count(),
-        2
+            .any(|w| w.contains("2 of 2 events exceed the rating 60 V")),
+        "{:?}",
+        m.warnings
     );
     for (e, &(a, b)) in m.events.iter().zip(&m.windows) {
         assert!(e.truncated);

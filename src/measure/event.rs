@@ -16,6 +16,8 @@ const PLATEAU_FRACTION: f64 = 0.6;
 /// Relative disagreement between the zero-crossing and spectrum-peak frequencies above
 /// which two rings are taken to overlap.
 const FFT_DISAGREEMENT: f64 = 0.25;
+/// Zero crossings (three periods) a ring needs before its spectrum is a fair cross-check.
+const MIN_CROSSINGS_FOR_SPECTRUM: usize = 6;
 /// Ratio of ring to main-lobe frequency above which the ring is a parasitic one.
 const PARASITIC_RATIO: f64 = 2.5;
 
@@ -262,7 +264,12 @@ pub fn measure_event(cx: &Context, w: &Window) -> (Event, LocalLevels) {
     });
     let ring_freq_hz = ring.map(|r| r.freq_hz);
     let mut notes = Vec::new();
-    if let Some((f, g)) = ring.and_then(|r| Some((r.freq_hz, r.fft_freq_hz?))) {
+    // A ring of fewer than three periods has a spectrum as wide as the ring itself, whose
+    // peak the first lobe's width sets; only a longer ring can contradict its crossings.
+    let spectrum_says = ring
+        .filter(|r| r.n_crossings >= MIN_CROSSINGS_FOR_SPECTRUM)
+        .and_then(|r| Some((r.freq_hz, r.fft_freq_hz?)));
+    if let Some((f, g)) = spectrum_says {
         if (f - g).abs() > FFT_DISAGREEMENT * f {
             notes.push(format!(
                 "event {}: the ring's zero crossings give {} but its spectrum peaks at {}; two rings overlap and ring_freq_hz follows the larger swing",

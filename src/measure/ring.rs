@@ -388,7 +388,10 @@ pub fn fft_peak_hz(y: &[f64], dt_s: f64) -> Option<f64> {
             pos += 0.5 * (l - r) / den;
         }
     }
-    Some(pos / (nfft as f64 * dt_s))
+    // A flat top (den near zero) can throw the interpolated peak outside the spectrum; a
+    // negative or infinite frequency is no peak to report.
+    let f = pos / (nfft as f64 * dt_s);
+    (f.is_finite() && f > 0.0).then_some(f)
 }
 
 #[cfg(test)]
