@@ -41,15 +41,22 @@ pub fn run(cli: Cli) -> Result<ExitCode> {
             let (doc, sketches) = crate::progress::with_bar(quiet, "measuring", |tick| {
                 pipeline::measure_inputs_sketched(&inputs, &settings, out.is_some(), tick)
             });
+            let advice = pipeline::suppression_advice(&doc, &settings)
+                .map(|a| kickscan::report::advice::advice_lines(&a))
+                .unwrap_or_default();
             let mut stdout = std::io::stdout().lock();
             if json {
                 serde_json::to_writer_pretty(&mut stdout, &doc)?;
                 writeln!(stdout)?;
             } else {
                 stdout.write_all(kickscan::report::measure_text(&doc).as_bytes())?;
+                for line in &advice {
+                    writeln!(stdout, "{line}")?;
+                }
             }
             if let Some(dir) = out {
                 let mut input = kickscan::report::ReportInput::new(&doc, &settings, &sketches);
+                input.verdicts = &advice;
                 input.force = force;
                 kickscan::report::write_report(&dir, &input)
                     .with_context(|| format!("writing the report to {}", dir.display()))?;

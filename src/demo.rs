@@ -155,6 +155,18 @@ pub fn run(
         None => Vec::new(),
     };
 
+    // Advice for this coil, from the capture that has its current at turn-off.
+    let advice_lines = current
+        .as_ref()
+        .and_then(|cur| {
+            let mut s = settings.clone();
+            s.measure.coil_current_a = None;
+            crate::pipeline::suppression_advice(cur, &s)
+        })
+        .map(|a| report::advice::advice_lines(&a))
+        .unwrap_or_default();
+    projections.extend(advice_lines);
+
     let mut merged = compare::merged_doc(&variants, &run.docs, &settings);
     let mut verdicts = run.doc.verdicts.clone();
     verdicts.extend(projections.iter().cloned());

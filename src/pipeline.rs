@@ -646,3 +646,34 @@ pub fn parasitics_of_files(
         )
     })
 }
+
+/// Suppression advice for the measured coil, when `--inductance`, the supply and the coil
+/// current at turn-off (a current channel or `--coil-current`) are known. The peak limit is
+/// the derating line of `--rating` (80 %, common practice); the ring damper is sized from the
+/// median node capacitance the events gave.
+pub fn suppression_advice(
+    doc: &MeasureDoc,
+    settings: &Settings,
+) -> Option<crate::model::advice::Advice> {
+    let m = &settings.measure;
+    let l = m.inductance_h?;
+    let events = || doc.captures.iter().flat_map(|c| c.events.iter());
+    let i0 = m
+        .coil_current_a
+        .or_else(|| crate::stats::median(&metric_values(events(), |e| e.i0_a.map(f64::abs))))?;
+    let supply = m
+        .supply_v
+        .or_else(|| crate::stats::median(&metric_values(events(), |e| Some(e.v_off))))?;
+    let c_par = crate::stats::median(&metric_values(events(), |e| e.c_par_f));
+    Some(crate::model::advice::advise(
+        &crate::model::advice::AdviceInputs {
+            ring_l_h: c_par.map(|_| l),
+            c_par_f: c_par,
+            coil_l_h: Some(l),
+            coil_current_a: Some(i0),
+            supply_v: Some(supply),
+            switching_rate_hz: settings.switching_rate_hz,
+            peak_limit_v: m.rating_v.map(|r| crate::stats::DERATING_FRACTION * r),
+        },
+    ))
+}

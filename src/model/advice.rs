@@ -143,15 +143,7 @@ pub struct ClampPrediction {
 
 /// A duration in the unit a designer reads it in.
 fn time_text(t_s: f64) -> String {
-    if t_s >= 1.0 {
-        format!("{t_s:.3} s")
-    } else if t_s >= 1e-3 {
-        format!("{:.3} ms", t_s * 1e3)
-    } else if t_s >= 1e-6 {
-        format!("{:.3} us", t_s * 1e6)
-    } else {
-        format!("{:.3} ns", t_s * 1e9)
-    }
+    crate::report::format::eng(t_s, "s")
 }
 
 /// t0 = tau ln(1 + I0 R / Vc), from L di/dt = -(Vc + R i) with i(0) = I0.
@@ -192,9 +184,9 @@ pub fn predict_clamp(coil: &Coil, clamp: Clamp) -> Option<ClampPrediction> {
             time_text(t0)
         ),
         Clamp::AcrossSwitch { .. } => format!(
-            "fast release ({}); the clamp across the switch absorbs the coil's {:.3e} J every switching",
+            "fast release ({}); the clamp across the switch absorbs the coil's {} every switching",
             time_text(t0),
-            coil.energy_j()
+            crate::report::format::eng(coil.energy_j(), "J")
         ),
     };
     Some(ClampPrediction {

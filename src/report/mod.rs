@@ -2,6 +2,7 @@
 //! renderer returns bytes so it can be tested without the disk; only [`write_report`]
 //! touches the file system.
 
+pub mod advice;
 pub mod atomic;
 pub mod compare_table;
 pub mod csv;
