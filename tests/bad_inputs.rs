@@ -95,7 +95,10 @@ fn every_corpus_file_is_in_the_table_and_gives_its_message() {
             .map(|w| w.as_str().unwrap().to_string())
             .collect();
         if row.exit == 1 {
-            let fragment = row.fragment.as_deref().expect("a refused file has a message");
+            let fragment = row
+                .fragment
+                .as_deref()
+                .expect("a refused file has a message");
             // The message names the file (or, for a sidecar, the sidecar beside it).
             let stem = row.file.split('.').next().unwrap();
             let line = err
@@ -122,11 +125,22 @@ fn every_corpus_file_is_in_the_table_and_gives_its_message() {
 
         let i = kickscan(&["inspect", p]);
         if READABLE.contains(&row.file.as_str()) {
-            assert_eq!(code(&i), 0, "{}: inspect reads it: {}", row.file, stderr(&i));
+            assert_eq!(
+                code(&i),
+                0,
+                "{}: inspect reads it: {}",
+                row.file,
+                stderr(&i)
+            );
         } else {
             assert_eq!(code(&i), 1, "{}: inspect refuses it", row.file);
             let fragment = row.fragment.as_deref().unwrap();
-            assert!(stderr(&i).contains(fragment), "{}: {}", row.file, stderr(&i));
+            assert!(
+                stderr(&i).contains(fragment),
+                "{}: {}",
+                row.file,
+                stderr(&i)
+            );
         }
     }
 }

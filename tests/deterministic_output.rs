@@ -52,10 +52,16 @@ fn one_thread_and_two_give_the_same_bytes() {
     let json_1 = run("1", &a);
     let json_2 = run("2", &b);
     assert!(!json_1.is_empty());
-    assert!(json_1 == json_2, "measure --json differs between 1 and 2 threads");
+    assert!(
+        json_1 == json_2,
+        "measure --json differs between 1 and 2 threads"
+    );
     let (fa, fb) = (files_under(&a), files_under(&b));
     for name in ["report.html", "events.csv", "summary.json"] {
-        assert!(fa.contains_key(name), "{name} missing from the report folder");
+        assert!(
+            fa.contains_key(name),
+            "{name} missing from the report folder"
+        );
     }
     assert_eq!(
         fa.keys().collect::<Vec<_>>(),

@@ -43,11 +43,7 @@ fn ctrl_c_stops_the_batch_and_keeps_the_old_report() {
     for attempt in 0..3 {
         let target = 120 << attempt;
         while n_files < target {
-            std::fs::copy(
-                sample_shot(),
-                inputs.join(format!("shot-{n_files:04}.csv")),
-            )
-            .unwrap();
+            std::fs::copy(sample_shot(), inputs.join(format!("shot-{n_files:04}.csv"))).unwrap();
             n_files += 1;
         }
         let mut child = Command::new(&bin)
@@ -86,9 +82,7 @@ fn ctrl_c_stops_the_batch_and_keeps_the_old_report() {
                     .unwrap();
                 assert!(measured < n_files, "{line}");
                 assert!(
-                    line.ends_with(&format!(
-                        " of {n_files} files measured; no report written"
-                    )),
+                    line.ends_with(&format!(" of {n_files} files measured; no report written")),
                     "{line}"
                 );
                 assert!(output.stdout.is_empty(), "no half document on stdout");
