@@ -3,6 +3,8 @@
 //! on stable Rust. A panic anywhere is a failure; errors are fine. Results must hold no NaN
 //! or infinity (DESIGN.md: nulls, never NaN).
 
+#![allow(dead_code)] // each fuzz target uses one of these
+
 use std::path::{Path, PathBuf};
 
 use kickscan::capture::{read_capture, RawKind, ReadOptions};
