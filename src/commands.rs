@@ -2,6 +2,8 @@
 
 use std::io::Write;
 use std::process::ExitCode;
+use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
+use std::sync::Arc;
 
 use anyhow::{Context, Result};
 
@@ -12,6 +14,29 @@ use kickscan::pipeline;
 pub const EXIT_INPUT_FAILED: u8 = 1;
 pub const EXIT_USAGE: u8 = 2;
 pub const EXIT_LIMIT: u8 = 3;
+/// Interrupted by Ctrl-C: 128 + SIGINT, as shells report it (common practice).
+pub const EXIT_INTERRUPTED: u8 = 130;
+
+/// A flag the first Ctrl-C sets, so a batch stops starting new files; a second Ctrl-C ends
+/// the process at once. `None` when the handler could not be installed (the default
+/// behaviour, ending the process, then stays).
+fn stop_on_ctrl_c() -> Option<Arc<AtomicBool>> {
+    use signal_hook::consts::SIGINT;
+    let flag = Arc::new(AtomicBool::new(false));
+    // The shutdown is registered first so that it only fires once the flag is already set.
+    signal_hook::flag::register_conditional_shutdown(SIGINT, EXIT_INTERRUPTED.into(), flag.clone())
+        .ok()?;
+    signal_hook::flag::register(SIGINT, flag.clone()).ok()?;
+    Some(flag)
+}
+
+/// What an interrupted batch says (on stderr) before exiting 130: stdout and the report
+/// folder are left alone, since results missing files must not pass for a run's results.
+fn interrupted(inputs: &[std::path::PathBuf], measured: usize) -> ExitCode {
+    let total = pipeline::collect_inputs(inputs).0.len();
+    eprintln!("interrupted: {measured} of {total} files measured; no report written");
+    ExitCode::from(EXIT_INTERRUPTED)
+}
 
 pub fn run(cli: Cli) -> Result<ExitCode> {
     match cli.command {
@@ -36,11 +61,20 @@ pub fn run(cli: Cli) -> Result<ExitCode> {
             read,
             analysis,
         } => {
-            let settings = analysis.to_settings(read.to_options()?)?;
+            let mut settings = analysis.to_settings(read.to_options()?)?;
+            settings.stop = stop_on_ctrl_c();
             let quiet = analysis.quiet || json;
+            let measured = AtomicUsize::new(0);
             let (doc, sketches) = crate::progress::with_bar(quiet, "measuring", |tick| {
-                pipeline::measure_inputs_sketched(&inputs, &settings, out.is_some(), tick)
+                let count = || {
+                    measured.fetch_add(1, Ordering::SeqCst);
+                    tick();
+                };
+                pipeline::measure_inputs_sketched(&inputs, &settings, out.is_some(), &count)
             });
+            if settings.stopped() {
+                return Ok(interrupted(&inputs, measured.into_inner()));
+            }
             let advice = pipeline::suppression_advice(&doc, &settings)
                 .map(|a| kickscan::report::advice::advice_lines(&a))
                 .unwrap_or_default();
@@ -85,17 +119,27 @@ pub fn run(cli: Cli) -> Result<ExitCode> {
             analysis,
         } => {
             let variants = crate::cli::parse_variants(&variants)?;
-            let settings = analysis.to_settings(read.to_options()?)?;
+            let mut settings = analysis.to_settings(read.to_options()?)?;
+            settings.stop = stop_on_ctrl_c();
             let quiet = analysis.quiet || json;
+            let measured = AtomicUsize::new(0);
             let run = crate::progress::with_bar(quiet, "measuring", |tick| {
+                let count = || {
+                    measured.fetch_add(1, Ordering::SeqCst);
+                    tick();
+                };
                 kickscan::compare::compare(
                     &variants,
                     baseline.as_deref(),
                     &settings,
                     out.is_some(),
-                    tick,
+                    &count,
                 )
             });
+            if settings.stopped() {
+                let inputs: Vec<_> = variants.iter().flat_map(|v| v.inputs.clone()).collect();
+                return Ok(interrupted(&inputs, measured.into_inner()));
+            }
             let mut stdout = std::io::stdout().lock();
             if json {
                 serde_json::to_writer_pretty(&mut stdout, &run.doc)?;

@@ -32,6 +32,19 @@ pub struct Settings {
     pub block: Option<usize>,
     /// Numbers of switchings to project the worst case to (`--lifetime`).
     pub lifetimes: Vec<f64>,
+    /// Set (by the binary's Ctrl-C handler) to stop starting new files; files already being
+    /// measured finish. See [`Settings::stopped`].
+    pub stop: Option<std::sync::Arc<std::sync::atomic::AtomicBool>>,
+}
+
+impl Settings {
+    /// Whether the run was asked to stop; a stopped run's documents miss files and must not
+    /// be reported as results.
+    pub fn stopped(&self) -> bool {
+        self.stop
+            .as_ref()
+            .is_some_and(|s| s.load(std::sync::atomic::Ordering::SeqCst))
+    }
 }
 
 /// Default projection: a million switchings, a common relay and valve life figure.
@@ -45,9 +58,10 @@ const SKIP_EXTENSIONS: &[&str] = &["json", "md", "sh", "html", "png", "svg", "pa
 pub fn collect_inputs(inputs: &[PathBuf]) -> (Vec<PathBuf>, Vec<FileError>) {
     let mut files = Vec::new();
     let mut errors = Vec::new();
+    let mut seen = Folders::default();
     for input in inputs {
         match std::fs::metadata(input) {
-            Ok(m) if m.is_dir() => walk(input, &mut files, &mut errors, 0),
+            Ok(m) if m.is_dir() => walk(input, &mut files, &mut errors, &mut seen, 0),
             Ok(_) => files.push(input.clone()),
             Err(e) => errors.push(FileError {
                 file: input.display().to_string(),
@@ -58,8 +72,52 @@ pub fn collect_inputs(inputs: &[PathBuf]) -> (Vec<PathBuf>, Vec<FileError>) {
     (files, errors)
 }
 
-fn walk(dir: &Path, files: &mut Vec<PathBuf>, errors: &mut Vec<FileError>, depth: usize) {
-    // A symlink loop would recurse forever; real capture trees are shallow.
+/// Folders met while walking, by canonical path: a folder reached twice through symlinks is
+/// walked once, and one that contains itself (a symlink loop) is reported.
+#[derive(Default)]
+struct Folders {
+    walked: std::collections::HashSet<PathBuf>,
+    open: Vec<PathBuf>,
+}
+
+fn walk(
+    dir: &Path,
+    files: &mut Vec<PathBuf>,
+    errors: &mut Vec<FileError>,
+    seen: &mut Folders,
+    depth: usize,
+) {
+    if let Ok(canon) = std::fs::canonicalize(dir) {
+        if seen.open.contains(&canon) {
+            errors.push(FileError {
+                file: dir.display().to_string(),
+                error: format!(
+                    "{}: symlink loop: this folder is {}, which contains it; skipped",
+                    dir.display(),
+                    canon.display()
+                ),
+            });
+            return;
+        }
+        if !seen.walked.insert(canon.clone()) {
+            return;
+        }
+        seen.open.push(canon);
+        walk_entries(dir, files, errors, seen, depth);
+        seen.open.pop();
+    } else {
+        walk_entries(dir, files, errors, seen, depth);
+    }
+}
+
+fn walk_entries(
+    dir: &Path,
+    files: &mut Vec<PathBuf>,
+    errors: &mut Vec<FileError>,
+    seen: &mut Folders,
+    depth: usize,
+) {
+    // Real capture trees are shallow; this bounds a tree canonicalisation could not see.
     if depth > 32 {
         errors.push(FileError {
             file: dir.display().to_string(),
@@ -87,7 +145,7 @@ fn walk(dir: &Path, files: &mut Vec<PathBuf>, errors: &mut Vec<FileError>, depth
             continue;
         }
         match std::fs::metadata(&p) {
-            Ok(m) if m.is_dir() => walk(&p, files, errors, depth + 1),
+            Ok(m) if m.is_dir() => walk(&p, files, errors, seen, depth + 1),
             Ok(_) => {
                 let ext = p
                     .extension()
@@ -225,7 +283,7 @@ pub fn measure_file(
         adc: signal.adc,
     };
     let mut m = measure::measure_trace(&trace, &settings.measure)
-        .map_err(|e| format!("{}: {e}", path.display()))?;
+        .map_err(|e| format!("{}: channel {}: {e}", path.display(), signal.name))?;
     let worst_fit = if settings.no_fit {
         None
     } else {
@@ -302,14 +360,18 @@ pub fn measure_inputs_sketched(
     let results: Vec<_> = files
         .par_iter()
         .map(|f| {
+            // Checked between files: a stop request lets the files under way finish.
+            if settings.stopped() {
+                return None;
+            }
             let r = measure_file(f, settings, sketch);
             progress();
-            (f, r)
+            Some((f, r))
         })
         .collect();
     let mut captures = Vec::new();
     let mut sketches = Vec::new();
-    for (f, r) in results {
+    for (f, r) in results.into_iter().flatten() {
         match r {
             Ok((c, sk)) => {
                 captures.push(c);

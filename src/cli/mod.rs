@@ -367,6 +367,7 @@ impl AnalysisArgs {
                     Ok(n)
                 })
                 .collect::<Result<_>>()?,
+            stop: None,
         })
     }
 }

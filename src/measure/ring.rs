@@ -140,7 +140,9 @@ fn analyse_once(y: &[f64], dt_s: f64, band: f64) -> Option<(Ring, Vec<f64>)> {
         }
     }
     // Once the swings have shrunk to a few percent of the first, an error in the off level
-    // moves the crossings noticeably; stop there.
+    // moves the crossings noticeably; stop there. Only the swings in the spike's direction
+    // are judged: the troughs between them may be held by a body diode to a small fraction
+    // of the spike while the ring is still large.
     let amp = |a: usize, b: usize| {
         y.get(a..b.min(y.len()))
             .map_or(0.0, |seg| seg.iter().fold(0f64, |m, x| m.max(x.abs())))
@@ -149,7 +151,10 @@ fn analyse_once(y: &[f64], dt_s: f64, band: f64) -> Option<(Ring, Vec<f64>)> {
     let keep_floor = (2.0 * band).max(0.03 * first_amp);
     let mut keep = crossings.len();
     for k in 1..crossings.len() {
-        if amp(crossings[k - 1].0 as usize, crossings[k].0 as usize + 1) < keep_floor {
+        let lobe_in_spike_direction = crossings[k - 1].1;
+        if lobe_in_spike_direction
+            && amp(crossings[k - 1].0 as usize, crossings[k].0 as usize + 1) < keep_floor
+        {
             keep = k;
             break;
         }
