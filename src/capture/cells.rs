@@ -102,6 +102,12 @@ pub(crate) fn trim_ascii(s: &[u8]) -> &[u8] {
 
 /// A cell without surrounding spaces and quotes.
 pub(crate) fn trim_cell(s: &[u8]) -> &[u8] {
+    // Nearly every cell is a bare number: nothing to trim at either end.
+    if let (Some(&a), Some(&b)) = (s.first(), s.last()) {
+        if !(a.is_ascii_whitespace() || a == b'"' || b.is_ascii_whitespace() || b == b'"') {
+            return s;
+        }
+    }
     let s = trim_ascii(s);
     let s = s.strip_prefix(b"\"").unwrap_or(s);
     let s = s.strip_suffix(b"\"").unwrap_or(s);

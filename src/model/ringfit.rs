@@ -244,6 +244,7 @@ fn regression_slope(pts: &[(f64, f64)]) -> Option<f64> {
 
 /// Linear least squares for (A, B[, c]) at fixed alpha and omega (times already scaled);
 /// returns the coefficients and the sum of squares.
+#[cfg(test)]
 fn linear_part(
     t: &[f64],
     y: &[f64],
@@ -251,38 +252,71 @@ fn linear_part(
     omega: f64,
     c_fixed: Option<f64>,
 ) -> Option<([f64; 3], f64)> {
-    let k = if c_fixed.is_some() { 2 } else { 3 };
+    let trig: Vec<(f64, f64)> = t.iter().map(|&ti| (omega * ti).sin_cos()).collect();
+    linear_part_trig(t, y, &trig, alpha, c_fixed)
+}
+
+/// [`linear_part`] with `sin_cos(omega t)` already computed for every sample, so a scan
+/// over damping at one frequency pays for the trigonometry once. The sum of squares comes
+/// from the normal equations, `SSR = y'y - x'A'y` at the solution `x` (exact algebra; the
+/// rounding it loses is far below the differences a scan compares).
+fn linear_part_trig(
+    t: &[f64],
+    y: &[f64],
+    trig: &[(f64, f64)],
+    alpha: f64,
+    c_fixed: Option<f64>,
+) -> Option<([f64; 3], f64)> {
+    let c0 = c_fixed.unwrap_or(0.0);
     let mut ata = [0.0f64; 9];
     let mut aty = [0.0f64; 3];
-    for (&ti, &yi) in t.iter().zip(y) {
-        let e = (-alpha * ti).exp();
-        let (s, c) = (omega * ti).sin_cos();
-        let row = [e * c, e * s, 1.0];
-        let target = yi - c_fixed.unwrap_or(0.0);
-        for a in 0..k {
-            aty[a] += row[a] * target;
-            for b in 0..k {
-                ata[a * k + b] += row[a] * row[b];
-            }
+    let mut yty = 0.0f64;
+    if c_fixed.is_some() {
+        // Two columns: the oscillation only.
+        let (mut scc, mut scs, mut sss, mut syc, mut sys) = (0.0, 0.0, 0.0, 0.0, 0.0);
+        for ((&ti, &yi), &(s, c)) in t.iter().zip(y).zip(trig) {
+            let e = (-alpha * ti).exp();
+            let (ec, es) = (e * c, e * s);
+            let target = yi - c0;
+            scc += ec * ec;
+            scs += ec * es;
+            sss += es * es;
+            syc += ec * target;
+            sys += es * target;
+            yty += target * target;
         }
+        ata[..4].copy_from_slice(&[scc, scs, scs, sss]);
+        aty[0] = syc;
+        aty[1] = sys;
+    } else {
+        let (mut scc, mut scs, mut sss, mut sc, mut ss, mut n1) = (0.0, 0.0, 0.0, 0.0, 0.0, 0.0);
+        let (mut syc, mut sys, mut sy) = (0.0, 0.0, 0.0);
+        for ((&ti, &yi), &(s, c)) in t.iter().zip(y).zip(trig) {
+            let e = (-alpha * ti).exp();
+            let (ec, es) = (e * c, e * s);
+            scc += ec * ec;
+            scs += ec * es;
+            sss += es * es;
+            sc += ec;
+            ss += es;
+            n1 += 1.0;
+            syc += ec * yi;
+            sys += es * yi;
+            sy += yi;
+            yty += yi * yi;
+        }
+        ata = [scc, scs, sc, scs, sss, ss, sc, ss, n1];
+        aty = [syc, sys, sy];
     }
+    let k = if c_fixed.is_some() { 2 } else { 3 };
     let mut x = aty;
     if !lm::solve(&mut ata[..k * k], &mut x[..k], k) {
         return None;
     }
-    let coef = [
-        x[0],
-        x[1],
-        c_fixed.unwrap_or(if k == 3 { x[2] } else { 0.0 }),
-    ];
-    let mut ssr = 0.0;
-    for (&ti, &yi) in t.iter().zip(y) {
-        let e = (-alpha * ti).exp();
-        let (s, c) = (omega * ti).sin_cos();
-        let r = coef[2] + e * (coef[0] * c + coef[1] * s) - yi;
-        ssr += r * r;
-    }
-    ssr.is_finite().then_some((coef, ssr))
+    let explained: f64 = (0..k).map(|a| x[a] * aty[a]).sum();
+    let ssr = (yty - explained).max(0.0);
+    let coef = [x[0], x[1], if k == 3 { x[2] } else { c0 }];
+    (ssr.is_finite() && coef.iter().all(|c| c.is_finite())).then_some((coef, ssr))
 }
 
 /// Fits the damped sine to samples `y` at times `t_s` (seconds from the model origin; need
@@ -328,11 +362,15 @@ pub fn fit_damped_sine(
     let scan_stride = m.div_ceil(1000).max(1);
     let ts_scan: Vec<f64> = ts.iter().step_by(scan_stride).copied().collect();
     let ys_scan: Vec<f64> = ys.iter().step_by(scan_stride).copied().collect();
+    let mut trig = vec![(0.0, 0.0); ts_scan.len()];
     for g in 0..=n_grid {
         let w = 0.55 * (1.8f64 / 0.55).powf(g as f64 / n_grid as f64);
+        for (sc, &t) in trig.iter_mut().zip(&ts_scan) {
+            *sc = (w * t).sin_cos();
+        }
         for &z in &zetas {
             let a = z * w / (1.0 - z * z).sqrt();
-            if let Some((coef, ssr)) = linear_part(&ts_scan, &ys_scan, a, w, c_fixed) {
+            if let Some((coef, ssr)) = linear_part_trig(&ts_scan, &ys_scan, &trig, a, c_fixed) {
                 if best.as_ref().is_none_or(|b| ssr < b.3) {
                     best = Some((a, w, coef, ssr));
                 }
