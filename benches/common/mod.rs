@@ -13,7 +13,7 @@ pub const DT_S: f64 = 20e-9;
 
 /// `n` samples holding `events` turn-off events.
 pub fn switch_node(n: usize, events: usize) -> Vec<f64> {
-    let (vs, vsat, l_h, c_f, r_ohm) = (24.0, 0.15, 50e-3, 1e-9, 2000.0);
+    let (vs, vsat, l_h, c_f, r_ohm): (f64, f64, f64, f64, f64) = (24.0, 0.15, 50e-3, 1e-9, 2000.0);
     let alpha = r_ohm / (2.0 * l_h);
     let w0 = 1.0 / (l_h * c_f).sqrt();
     let wd = (w0 * w0 - alpha * alpha).sqrt();

@@ -174,7 +174,24 @@ pub(crate) fn last_digit_place(cell: &[u8]) -> f64 {
         .iter()
         .position(|&b| b == b'.' || b == b',')
         .map_or(0, |k| mantissa.len() - k - 1) as i32;
-    10f64.powi(exponent - decimals)
+    pow10(exponent - decimals)
+}
+
+/// `10f64.powi(k)`, looked up for the exponents printed numbers have (it runs once per row).
+fn pow10(k: i32) -> f64 {
+    const LO: i32 = -64;
+    static TABLE: std::sync::OnceLock<[f64; 129]> = std::sync::OnceLock::new();
+    let table = TABLE.get_or_init(|| {
+        let mut t = [0.0; 129];
+        for (i, x) in t.iter_mut().enumerate() {
+            *x = 10f64.powi(LO + i as i32);
+        }
+        t
+    });
+    usize::try_from(k - LO)
+        .ok()
+        .and_then(|i| table.get(i).copied())
+        .unwrap_or_else(|| 10f64.powi(k))
 }
 
 #[cfg(test)]
