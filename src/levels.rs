@@ -325,10 +325,19 @@ impl Histogram {
     fn refine(&self, v: &[f64], k: usize) -> f64 {
         let mut c = self.centre(k);
         let w = 2.0 * self.resolution.max(self.bin);
+        // Each of the three steps moves the centre by at most `w`, so every window lies
+        // within 3 w of the start: one pass over the record gathers them all, and the
+        // steps run on that (the same samples, so the same medians).
+        let c0 = c;
+        let pool: Vec<f64> = v
+            .iter()
+            .copied()
+            .filter(|x| (x - c0).abs() <= 3.0 * w + w * 1e-9)
+            .collect();
         let mut near: Vec<f64> = Vec::new();
         for _ in 0..3 {
             near.clear();
-            near.extend(v.iter().copied().filter(|x| (x - c).abs() <= w));
+            near.extend(pool.iter().copied().filter(|x| (x - c).abs() <= w));
             match median_in_place(&mut near) {
                 Some(m) => c = m,
                 None => break,

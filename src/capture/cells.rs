@@ -152,7 +152,8 @@ pub(crate) fn parse_number(cell: &[u8], decimal_comma: bool) -> Result<f64, Cell
 /// Place value of the last digit written in a number cell (`1.25e-6` -> 1e-8): the
 /// resolution the writer printed with, so rounding is not mistaken for jitter.
 pub(crate) fn last_digit_place(cell: &[u8]) -> f64 {
-    let (mantissa, exponent) = match cell.iter().position(|&b| b == b'e' || b == b'E') {
+    // The exponent marker sits near the end of a cell: search from there.
+    let (mantissa, exponent) = match cell.iter().rposition(|&b| b == b'e' || b == b'E') {
         Some(k) => {
             let exp_text = cell.get(k + 1..).unwrap_or(&[]);
             let (sign, digits) = match exp_text.first() {
