@@ -133,15 +133,60 @@ pub fn adc_step_estimate(v: &[f64]) -> Option<f64> {
 
 /// Median of the samples within `half_width_v` of `target_v`; `None` with fewer than 16.
 pub fn level_near(v: &[f64], target_v: f64, half_width_v: f64) -> Option<f64> {
-    let mut near: Vec<f64> = v
+    let (m, n) = median_near(v, target_v, half_width_v)?;
+    (n >= 16).then_some(m)
+}
+
+/// The median (the element of rank n / 2 in total order, as [`median_in_place`]) of the n
+/// samples within `w` of `c`, and n, in memory that does not grow with the record: a
+/// counting pass over fine sub-bins of `[c - w, c + w]` finds the sub-bin holding that
+/// rank (the bin index rises with the value, so ranks stay in bin order), and a second pass
+/// selects within that sub-bin's samples only. A sub-bin holding one repeated value (an
+/// ADC code) answers without the second pass.
+pub fn median_near(v: &[f64], c: f64, w: f64) -> Option<(f64, usize)> {
+    const BINS: usize = 4096;
+    let lo = c - w;
+    let width = 2.0 * w / BINS as f64;
+    let bin_of = |x: f64| (((x - lo) / width) as usize).min(BINS - 1);
+    let mut counts = vec![0usize; BINS];
+    let mut first = vec![f64::NAN; BINS];
+    let mut uniform = vec![true; BINS];
+    let mut n = 0usize;
+    for &x in v {
+        if (x - c).abs() <= w {
+            let b = bin_of(x);
+            if counts[b] == 0 {
+                first[b] = x;
+            } else if uniform[b] && x.to_bits() != first[b].to_bits() {
+                uniform[b] = false;
+            }
+            counts[b] += 1;
+            n += 1;
+        }
+    }
+    let k = n / 2;
+    let mut below = 0usize;
+    let mut bin = None;
+    for (b, &cnt) in counts.iter().enumerate() {
+        if below + cnt > k {
+            bin = Some(b);
+            break;
+        }
+        below += cnt;
+    }
+    let b = bin?;
+    if uniform[b] {
+        return Some((first[b], n));
+    }
+    let mut sel: Vec<f64> = v
         .iter()
         .copied()
-        .filter(|x| (x - target_v).abs() <= half_width_v)
+        .filter(|&x| (x - c).abs() <= w && bin_of(x) == b)
         .collect();
-    if near.len() < 16 {
-        return None;
-    }
-    median_in_place(&mut near)
+    let (_, m, _) = sel
+        .get_mut(..)?
+        .select_nth_unstable_by(k - below, f64::total_cmp);
+    Some((*m, n))
 }
 
 /// Longest stretch of consecutive samples within `half_width_v` of `level_v`: a true state
@@ -325,21 +370,9 @@ impl Histogram {
     fn refine(&self, v: &[f64], k: usize) -> f64 {
         let mut c = self.centre(k);
         let w = 2.0 * self.resolution.max(self.bin);
-        // Each of the three steps moves the centre by at most `w`, so every window lies
-        // within 3 w of the start: one pass over the record gathers them all, and the
-        // steps run on that (the same samples, so the same medians).
-        let c0 = c;
-        let pool: Vec<f64> = v
-            .iter()
-            .copied()
-            .filter(|x| (x - c0).abs() <= 3.0 * w + w * 1e-9)
-            .collect();
-        let mut near: Vec<f64> = Vec::new();
         for _ in 0..3 {
-            near.clear();
-            near.extend(pool.iter().copied().filter(|x| (x - c).abs() <= w));
-            match median_in_place(&mut near) {
-                Some(m) => c = m,
+            match median_near(v, c, w) {
+                Some((m, _)) => c = m,
                 None => break,
             }
         }
@@ -350,6 +383,33 @@ impl Histogram {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// The bounded-memory median equals the plain one (copy and select, the reference) on
+    /// continuous values, on values repeated on a code grid, and at the window's edges.
+    #[test]
+    fn median_near_equals_the_plain_median() {
+        let mut g = 12345u64;
+        let mut next = || {
+            g = g
+                .wrapping_mul(6364136223846793005)
+                .wrapping_add(1442695040888963407);
+            (g >> 11) as f64 / (1u64 << 53) as f64
+        };
+        let smooth: Vec<f64> = (0..20_001).map(|_| 3.0 + 2.0 * next()).collect();
+        let coded: Vec<f64> = (0..20_000).map(|_| (4.0 * next()).round() * 0.5).collect();
+        for (v, c, w) in [
+            (&smooth, 4.0, 0.7),
+            (&smooth, 3.0, 1.0),
+            (&coded, 1.0, 0.5),
+            (&coded, 0.5, 2.0),
+        ] {
+            let mut near: Vec<f64> = v.iter().copied().filter(|x| (x - c).abs() <= w).collect();
+            let n = near.len();
+            let plain = median_in_place(&mut near).unwrap();
+            assert_eq!(median_near(v, c, w), Some((plain, n)), "c {c} w {w}");
+        }
+        assert_eq!(median_near(&smooth, 100.0, 1.0), None);
+    }
 
     #[test]
     fn reference_levels_of_the_standard_example() {
