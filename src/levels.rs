@@ -11,6 +11,8 @@
 const MAX_BINS: usize = 1 << 20;
 /// Largest number of first differences kept for a noise estimate (a strided subset beyond).
 const MAX_NOISE_SAMPLES: usize = 1 << 20;
+/// Records longer than this are scanned in parallel pieces of this many samples.
+const PARALLEL_PIECE: usize = 1 << 18;
 /// Consistency constant of the median absolute deviation for Gaussian data
 /// (Rousseeuw & Croux 1993).
 const MAD_TO_SIGMA: f64 = 1.482_602_218_505_602;
@@ -144,26 +146,34 @@ pub fn level_near(v: &[f64], target_v: f64, half_width_v: f64) -> Option<f64> {
 /// selects within that sub-bin's samples only. A sub-bin holding one repeated value (an
 /// ADC code) answers without the second pass.
 pub fn median_near(v: &[f64], c: f64, w: f64) -> Option<(f64, usize)> {
+    use rayon::prelude::*;
     const BINS: usize = 4096;
+    // Long records are counted in parallel pieces; the tallies add up in any order.
+    const PIECE: usize = 1 << 18;
     let lo = c - w;
     let width = 2.0 * w / BINS as f64;
     let bin_of = |x: f64| (((x - lo) / width) as usize).min(BINS - 1);
-    let mut counts = vec![0usize; BINS];
-    let mut first = vec![f64::NAN; BINS];
-    let mut uniform = vec![true; BINS];
-    let mut n = 0usize;
-    for &x in v {
-        if (x - c).abs() <= w {
-            let b = bin_of(x);
-            if counts[b] == 0 {
-                first[b] = x;
-            } else if uniform[b] && x.to_bits() != first[b].to_bits() {
-                uniform[b] = false;
+    let tally = |part: &[f64]| {
+        let mut t = Tally::new(BINS);
+        for &x in part {
+            if (x - c).abs() <= w {
+                t.add(bin_of(x), x);
             }
-            counts[b] += 1;
-            n += 1;
         }
-    }
+        t
+    };
+    let Tally {
+        counts,
+        first,
+        uniform,
+        n,
+    } = if v.len() > PIECE {
+        v.par_chunks(PIECE)
+            .map(tally)
+            .reduce(|| Tally::new(BINS), Tally::merge)
+    } else {
+        tally(v)
+    };
     let k = n / 2;
     let mut below = 0usize;
     let mut bin = None;
@@ -179,7 +189,7 @@ pub fn median_near(v: &[f64], c: f64, w: f64) -> Option<(f64, usize)> {
         return Some((first[b], n));
     }
     let mut sel: Vec<f64> = v
-        .iter()
+        .par_iter()
         .copied()
         .filter(|&x| (x - c).abs() <= w && bin_of(x) == b)
         .collect();
@@ -187,6 +197,60 @@ pub fn median_near(v: &[f64], c: f64, w: f64) -> Option<(f64, usize)> {
         .get_mut(..)?
         .select_nth_unstable_by(k - below, f64::total_cmp);
     Some((*m, n))
+}
+
+/// Counts per sub-bin for [`median_near`], with the first value seen in each and whether
+/// every value in it equals that one.
+struct Tally {
+    counts: Vec<usize>,
+    first: Vec<f64>,
+    uniform: Vec<bool>,
+    n: usize,
+}
+
+impl Tally {
+    fn new(bins: usize) -> Self {
+        Tally {
+            counts: vec![0; bins],
+            first: vec![f64::NAN; bins],
+            uniform: vec![true; bins],
+            n: 0,
+        }
+    }
+
+    fn add(&mut self, b: usize, x: f64) {
+        if let (Some(cnt), Some(f), Some(u)) = (
+            self.counts.get_mut(b),
+            self.first.get_mut(b),
+            self.uniform.get_mut(b),
+        ) {
+            if *cnt == 0 {
+                *f = x;
+            } else if *u && x.to_bits() != f.to_bits() {
+                *u = false;
+            }
+            *cnt += 1;
+            self.n += 1;
+        }
+    }
+
+    fn merge(mut self, other: Tally) -> Tally {
+        for b in 0..self.counts.len() {
+            let (c2, f2, u2) = (other.counts[b], other.first[b], other.uniform[b]);
+            if c2 == 0 {
+                continue;
+            }
+            if self.counts[b] == 0 {
+                self.first[b] = f2;
+                self.uniform[b] = u2;
+            } else {
+                self.uniform[b] = self.uniform[b] && u2 && f2.to_bits() == self.first[b].to_bits();
+            }
+            self.counts[b] += c2;
+        }
+        self.n += other.n;
+        self
+    }
 }
 
 /// Longest stretch of consecutive samples within `half_width_v` of `level_v`: a true state
@@ -206,14 +270,27 @@ pub fn longest_run_near(v: &[f64], level_v: f64, half_width_v: f64) -> usize {
 
 /// Smallest and largest finite sample.
 pub fn finite_range(v: &[f64]) -> Option<(f64, f64)> {
-    let mut lo = f64::INFINITY;
-    let mut hi = f64::NEG_INFINITY;
-    for &x in v {
-        if x.is_finite() {
-            lo = lo.min(x);
-            hi = hi.max(x);
+    use rayon::prelude::*;
+    let range = |part: &[f64]| {
+        let mut lo = f64::INFINITY;
+        let mut hi = f64::NEG_INFINITY;
+        for &x in part {
+            if x.is_finite() {
+                lo = lo.min(x);
+                hi = hi.max(x);
+            }
         }
-    }
+        (lo, hi)
+    };
+    // Minimum and maximum do not depend on the order pieces are combined in.
+    let (lo, hi) = if v.len() > PARALLEL_PIECE {
+        v.par_chunks(PARALLEL_PIECE).map(range).reduce(
+            || (f64::INFINITY, f64::NEG_INFINITY),
+            |a, b| (a.0.min(b.0), a.1.max(b.1)),
+        )
+    } else {
+        range(v)
+    };
     (lo <= hi).then_some((lo, hi))
 }
 
@@ -316,13 +393,28 @@ impl Histogram {
             return None;
         }
         let nbins = ((range / bin).floor() as usize + 1).min(MAX_BINS + 1);
-        let mut counts = vec![0f64; nbins];
-        for &x in v {
-            if x.is_finite() {
-                let b = (((x - lo) / bin) as usize).min(nbins - 1);
-                counts[b] += 1.0;
+        let count = |part: &[f64]| {
+            let mut counts = vec![0f64; nbins];
+            for &x in part {
+                if x.is_finite() {
+                    let b = (((x - lo) / bin) as usize).min(nbins - 1);
+                    counts[b] += 1.0;
+                }
             }
-        }
+            counts
+        };
+        // A long record is counted in two halves at once; counts are whole numbers, so the
+        // sum is exact in any order.
+        let counts = if v.len() > 4 * PARALLEL_PIECE {
+            let (a, b) = v.split_at(v.len() / 2);
+            let (mut ca, cb) = rayon::join(|| count(a), || count(b));
+            for (x, y) in ca.iter_mut().zip(&cb) {
+                *x += y;
+            }
+            ca
+        } else {
+            count(v)
+        };
         // Box smoothing over +-half_k bins (about one resolution wide).
         let half_k = ((resolution_v / bin).round() as usize / 2).max(1);
         let mut smooth = vec![0f64; nbins];
@@ -409,6 +501,18 @@ mod tests {
             assert_eq!(median_near(v, c, w), Some((plain, n)), "c {c} w {w}");
         }
         assert_eq!(median_near(&smooth, 100.0, 1.0), None);
+        // Long enough to be tallied in parallel pieces.
+        let long: Vec<f64> = (0..700_001)
+            .map(|k| if k % 3 == 0 { 2.5 } else { 2.0 + next() })
+            .collect();
+        let mut near: Vec<f64> = long
+            .iter()
+            .copied()
+            .filter(|x| (x - 2.5).abs() <= 0.3)
+            .collect();
+        let n = near.len();
+        let plain = median_in_place(&mut near).unwrap();
+        assert_eq!(median_near(&long, 2.5, 0.3), Some((plain, n)));
     }
 
     #[test]
