@@ -392,12 +392,19 @@ fn fit_events(
     };
     let mut worst: Option<(usize, crate::model::EventFit)> = None;
     let mut worst_stress = f64::NEG_INFINITY;
-    for (k, (event, &(start, end))) in m.events.iter_mut().zip(&m.windows).enumerate() {
-        let Some(window) = signal.samples.get(start..end) else {
-            continue;
-        };
-        let t_start_s = t0_s + start as f64 * dt_s;
-        if let Some(fit) = crate::model::fit_event(window, dt_s, t_start_s, event, &ctx) {
+    // Events are fitted independently, on all cores; the results are applied in order.
+    let fits: Vec<Option<crate::model::EventFit>> = m
+        .events
+        .par_iter()
+        .zip(&m.windows)
+        .map(|(event, &(start, end))| {
+            let window = signal.samples.get(start..end)?;
+            let t_start_s = t0_s + start as f64 * dt_s;
+            crate::model::fit_event(window, dt_s, t_start_s, event, &ctx)
+        })
+        .collect();
+    for (k, (event, fit)) in m.events.iter_mut().zip(fits).enumerate() {
+        if let Some(fit) = fit {
             crate::model::apply_fit(event, &fit, &ctx);
             if event.switch_stress_v > worst_stress {
                 worst_stress = event.switch_stress_v;
