@@ -289,7 +289,7 @@ impl Stepper {
         let same = (d - self.step).abs() <= 1e-9 * self.step.abs();
         self.k += 1;
         if same {
-            if self.k % RESYNC == 0 {
+            if self.k.is_multiple_of(RESYNC) {
                 None
             } else {
                 Some(true)
