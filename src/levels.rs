@@ -11,6 +11,8 @@
 const MAX_BINS: usize = 1 << 20;
 /// Largest number of first differences kept for a noise estimate (a strided subset beyond).
 const MAX_NOISE_SAMPLES: usize = 1 << 20;
+/// Records longer than this are scanned in parallel pieces of this many samples.
+const PARALLEL_PIECE: usize = 1 << 18;
 /// Consistency constant of the median absolute deviation for Gaussian data
 /// (Rousseeuw & Croux 1993).
 const MAD_TO_SIGMA: f64 = 1.482_602_218_505_602;
@@ -133,15 +135,124 @@ pub fn adc_step_estimate(v: &[f64]) -> Option<f64> {
 
 /// Median of the samples within `half_width_v` of `target_v`; `None` with fewer than 16.
 pub fn level_near(v: &[f64], target_v: f64, half_width_v: f64) -> Option<f64> {
-    let mut near: Vec<f64> = v
-        .iter()
-        .copied()
-        .filter(|x| (x - target_v).abs() <= half_width_v)
-        .collect();
-    if near.len() < 16 {
-        return None;
+    let (m, n) = median_near(v, target_v, half_width_v)?;
+    (n >= 16).then_some(m)
+}
+
+/// The median (the element of rank n / 2 in total order, as [`median_in_place`]) of the n
+/// samples within `w` of `c`, and n, in memory that does not grow with the record: a
+/// counting pass over fine sub-bins of `[c - w, c + w]` finds the sub-bin holding that
+/// rank (the bin index rises with the value, so ranks stay in bin order), and a second pass
+/// selects within that sub-bin's samples only. A sub-bin holding one repeated value (an
+/// ADC code) answers without the second pass.
+pub fn median_near(v: &[f64], c: f64, w: f64) -> Option<(f64, usize)> {
+    use rayon::prelude::*;
+    const BINS: usize = 4096;
+    // Long records are counted in parallel pieces; the tallies add up in any order.
+    const PIECE: usize = 1 << 18;
+    let lo = c - w;
+    // Any bin index that never falls as the value rises serves; a product is cheaper than
+    // a division.
+    let per_bin = BINS as f64 / (2.0 * w);
+    let bin_of = |x: f64| (((x - lo) * per_bin) as usize).min(BINS - 1);
+    let tally = |part: &[f64]| {
+        let mut t = Tally::new(BINS);
+        for &x in part {
+            if (x - c).abs() <= w {
+                t.add(bin_of(x), x);
+            }
+        }
+        t
+    };
+    let Tally {
+        counts,
+        first,
+        uniform,
+        n,
+    } = if v.len() > PIECE {
+        v.par_chunks(PIECE)
+            .map(tally)
+            .reduce(|| Tally::new(BINS), Tally::merge)
+    } else {
+        tally(v)
+    };
+    let k = n / 2;
+    let mut below = 0usize;
+    let mut bin = None;
+    for (b, &cnt) in counts.iter().enumerate() {
+        if below + cnt > k {
+            bin = Some(b);
+            break;
+        }
+        below += cnt;
     }
-    median_in_place(&mut near)
+    let b = bin?;
+    if uniform[b] {
+        return Some((first[b], n));
+    }
+    let mut sel: Vec<f64> = v
+        .par_iter()
+        .copied()
+        .filter(|&x| (x - c).abs() <= w && bin_of(x) == b)
+        .collect();
+    let (_, m, _) = sel
+        .get_mut(..)?
+        .select_nth_unstable_by(k - below, f64::total_cmp);
+    Some((*m, n))
+}
+
+/// Counts per sub-bin for [`median_near`], with the first value seen in each and whether
+/// every value in it equals that one.
+struct Tally {
+    counts: Vec<usize>,
+    first: Vec<f64>,
+    uniform: Vec<bool>,
+    n: usize,
+}
+
+impl Tally {
+    fn new(bins: usize) -> Self {
+        Tally {
+            counts: vec![0; bins],
+            first: vec![f64::NAN; bins],
+            uniform: vec![true; bins],
+            n: 0,
+        }
+    }
+
+    fn add(&mut self, b: usize, x: f64) {
+        if let (Some(cnt), Some(f), Some(u)) = (
+            self.counts.get_mut(b),
+            self.first.get_mut(b),
+            self.uniform.get_mut(b),
+        ) {
+            if *cnt == 0 {
+                *f = x;
+            } else if *u && x.to_bits() != f.to_bits() {
+                *u = false;
+            }
+            *cnt += 1;
+            self.n += 1;
+        }
+    }
+
+    fn merge(mut self, other: Tally) -> Tally {
+        for b in 0..self.counts.len() {
+            let (c2, f2, u2) = (other.counts[b], other.first[b], other.uniform[b]);
+            if c2 == 0 {
+                continue;
+            }
+            if self.counts[b] == 0 {
+                self.first[b] = f2;
+                self.uniform[b] = u2;
+            } else {
+                self.uniform[b] = self.uniform[b] && u2 && f2.to_bits() == self.first[b].to_bits();
+            }
+            self.counts[b] += c2;
+        }
+        self.n += other.n;
+        self
+    }
 }
 
 /// Longest stretch of consecutive samples within `half_width_v` of `level_v`: a true state
@@ -161,14 +272,27 @@ pub fn longest_run_near(v: &[f64], level_v: f64, half_width_v: f64) -> usize {
 
 /// Smallest and largest finite sample.
 pub fn finite_range(v: &[f64]) -> Option<(f64, f64)> {
-    let mut lo = f64::INFINITY;
-    let mut hi = f64::NEG_INFINITY;
-    for &x in v {
-        if x.is_finite() {
-            lo = lo.min(x);
-            hi = hi.max(x);
+    use rayon::prelude::*;
+    let range = |part: &[f64]| {
+        let mut lo = f64::INFINITY;
+        let mut hi = f64::NEG_INFINITY;
+        for &x in part {
+            if x.is_finite() {
+                lo = lo.min(x);
+                hi = hi.max(x);
+            }
         }
-    }
+        (lo, hi)
+    };
+    // Minimum and maximum do not depend on the order pieces are combined in.
+    let (lo, hi) = if v.len() > PARALLEL_PIECE {
+        v.par_chunks(PARALLEL_PIECE).map(range).reduce(
+            || (f64::INFINITY, f64::NEG_INFINITY),
+            |a, b| (a.0.min(b.0), a.1.max(b.1)),
+        )
+    } else {
+        range(v)
+    };
     (lo <= hi).then_some((lo, hi))
 }
 
@@ -271,13 +395,28 @@ impl Histogram {
             return None;
         }
         let nbins = ((range / bin).floor() as usize + 1).min(MAX_BINS + 1);
-        let mut counts = vec![0f64; nbins];
-        for &x in v {
-            if x.is_finite() {
-                let b = (((x - lo) / bin) as usize).min(nbins - 1);
-                counts[b] += 1.0;
+        let count = |part: &[f64]| {
+            let mut counts = vec![0f64; nbins];
+            for &x in part {
+                if x.is_finite() {
+                    let b = (((x - lo) / bin) as usize).min(nbins - 1);
+                    counts[b] += 1.0;
+                }
             }
-        }
+            counts
+        };
+        // A long record is counted in two halves at once; counts are whole numbers, so the
+        // sum is exact in any order.
+        let counts = if v.len() > 4 * PARALLEL_PIECE {
+            let (a, b) = v.split_at(v.len() / 2);
+            let (mut ca, cb) = rayon::join(|| count(a), || count(b));
+            for (x, y) in ca.iter_mut().zip(&cb) {
+                *x += y;
+            }
+            ca
+        } else {
+            count(v)
+        };
         // Box smoothing over +-half_k bins (about one resolution wide).
         let half_k = ((resolution_v / bin).round() as usize / 2).max(1);
         let mut smooth = vec![0f64; nbins];
@@ -325,12 +464,11 @@ impl Histogram {
     fn refine(&self, v: &[f64], k: usize) -> f64 {
         let mut c = self.centre(k);
         let w = 2.0 * self.resolution.max(self.bin);
-        let mut near: Vec<f64> = Vec::new();
         for _ in 0..3 {
-            near.clear();
-            near.extend(v.iter().copied().filter(|x| (x - c).abs() <= w));
-            match median_in_place(&mut near) {
-                Some(m) => c = m,
+            match median_near(v, c, w) {
+                // The same centre gives the same median again.
+                Some((m, _)) if m.to_bits() == c.to_bits() => break,
+                Some((m, _)) => c = m,
                 None => break,
             }
         }
@@ -341,6 +479,45 @@ impl Histogram {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// The bounded-memory median equals the plain one (copy and select, the reference) on
+    /// continuous values, on values repeated on a code grid, and at the window's edges.
+    #[test]
+    fn median_near_equals_the_plain_median() {
+        let mut g = 12345u64;
+        let mut next = || {
+            g = g
+                .wrapping_mul(6364136223846793005)
+                .wrapping_add(1442695040888963407);
+            (g >> 11) as f64 / (1u64 << 53) as f64
+        };
+        let smooth: Vec<f64> = (0..20_001).map(|_| 3.0 + 2.0 * next()).collect();
+        let coded: Vec<f64> = (0..20_000).map(|_| (4.0 * next()).round() * 0.5).collect();
+        for (v, c, w) in [
+            (&smooth, 4.0, 0.7),
+            (&smooth, 3.0, 1.0),
+            (&coded, 1.0, 0.5),
+            (&coded, 0.5, 2.0),
+        ] {
+            let mut near: Vec<f64> = v.iter().copied().filter(|x| (x - c).abs() <= w).collect();
+            let n = near.len();
+            let plain = median_in_place(&mut near).unwrap();
+            assert_eq!(median_near(v, c, w), Some((plain, n)), "c {c} w {w}");
+        }
+        assert_eq!(median_near(&smooth, 100.0, 1.0), None);
+        // Long enough to be tallied in parallel pieces.
+        let long: Vec<f64> = (0..700_001)
+            .map(|k| if k % 3 == 0 { 2.5 } else { 2.0 + next() })
+            .collect();
+        let mut near: Vec<f64> = long
+            .iter()
+            .copied()
+            .filter(|x| (x - 2.5).abs() <= 0.3)
+            .collect();
+        let n = near.len();
+        let plain = median_in_place(&mut near).unwrap();
+        assert_eq!(median_near(&long, 2.5, 0.3), Some((plain, n)));
+    }
 
     #[test]
     fn reference_levels_of_the_standard_example() {

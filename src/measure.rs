@@ -328,16 +328,27 @@ pub fn measure_trace(
         let mut befores = Vec::new();
         let mut settleds = Vec::new();
         let mut notes = Vec::new();
-        for (index, (&(start, end, cut), &edge)) in windows.iter().zip(&scan.edges).enumerate() {
-            let w = event::Window {
-                index,
-                start,
-                end,
-                edge,
-                cut,
-                closed_by_turn_on: !cut && end < v.len(),
-            };
-            let (ev, local) = event::measure_event(&cx, &w);
+        // Windows are measured independently, on all cores; results are kept in order.
+        let measured: Vec<(Event, event::LocalLevels)> = {
+            use rayon::prelude::*;
+            windows
+                .par_iter()
+                .zip(&scan.edges)
+                .enumerate()
+                .map(|(index, (&(start, end, cut), &edge))| {
+                    let w = event::Window {
+                        index,
+                        start,
+                        end,
+                        edge,
+                        cut,
+                        closed_by_turn_on: !cut && end < v.len(),
+                    };
+                    event::measure_event(&cx, &w)
+                })
+                .collect()
+        };
+        for (ev, local) in measured {
             befores.extend(local.before_edge_v);
             settleds.extend(local.settled_v);
             notes.extend(local.notes);

@@ -233,34 +233,68 @@ pub fn inspect_inputs(inputs: &[PathBuf], read: &ReadOptions) -> InspectDoc {
     }
 }
 
-/// Picks the switch-node and current channels of a capture.
+/// Picks the switch-node and current channels of a capture. Channels taken as they are
+/// (no `--signal`/`--current` expression) are moved out of `cap`, leaving their samples
+/// empty there, so a long capture is never held twice.
 fn pick_channels(
-    cap: &Capture,
+    cap: &mut Capture,
     settings: &Settings,
 ) -> Result<(capture::Channel, Option<capture::Channel>), String> {
+    // Both selections are resolved before anything is moved, so each sees every channel.
     let signal = match &settings.signal {
-        Some(s) => capture::select_channel(cap, s, &settings.read).map_err(|e| e.to_string())?,
-        None => {
-            let c = cap
-                .channels
-                .iter()
-                .find(|c| !c.unit.eq_ignore_ascii_case("A"))
-                .or(cap.channels.first())
-                .ok_or_else(|| format!("{}: the capture has no channels", cap.source.display()))?;
-            c.clone()
+        Some(s) => {
+            Some(capture::select_channel(cap, s, &settings.read).map_err(|e| e.to_string())?)
         }
+        None => None,
     };
     let current = match &settings.current {
         Some(s) => {
             Some(capture::select_channel(cap, s, &settings.read).map_err(|e| e.to_string())?)
         }
-        None => cap
+        None => None,
+    };
+    let signal = match signal {
+        Some(c) => c,
+        None => {
+            let k = cap
+                .channels
+                .iter()
+                .position(|c| !c.unit.eq_ignore_ascii_case("A"))
+                .or((!cap.channels.is_empty()).then_some(0))
+                .ok_or_else(|| format!("{}: the capture has no channels", cap.source.display()))?;
+            take_channel(cap, k)
+        }
+    };
+    let current = match (current, &settings.current) {
+        (Some(c), _) => Some(c),
+        (None, Some(_)) => None,
+        (None, None) => cap
             .channels
             .iter()
-            .find(|c| c.unit.eq_ignore_ascii_case("A") && c.name != signal.name)
-            .cloned(),
+            .position(|c| {
+                c.unit.eq_ignore_ascii_case("A") && c.name != signal.name && !c.samples.is_empty()
+            })
+            .map(|k| take_channel(cap, k)),
     };
     Ok((signal, current))
+}
+
+/// Moves channel `k` out of the capture, leaving its name and unit with no samples.
+fn take_channel(cap: &mut Capture, k: usize) -> capture::Channel {
+    match cap.channels.get_mut(k) {
+        Some(c) => capture::Channel {
+            name: c.name.clone(),
+            unit: c.unit.clone(),
+            samples: std::mem::take(&mut c.samples),
+            adc: c.adc,
+        },
+        None => capture::Channel {
+            name: String::new(),
+            unit: String::new(),
+            samples: Vec::new(),
+            adc: None,
+        },
+    }
 }
 
 /// Points kept per capture overview and per event wave for the plots.
@@ -273,8 +307,9 @@ pub fn measure_file(
     settings: &Settings,
     sketch: bool,
 ) -> Result<(CaptureDoc, Option<TraceSketch>), String> {
-    let cap = capture::read_capture(path, &settings.read).map_err(|e| e.to_string())?;
-    let (signal, current) = pick_channels(&cap, settings)?;
+    let mut cap = capture::read_capture(path, &settings.read).map_err(|e| e.to_string())?;
+    let n_samples = cap.n_samples();
+    let (signal, current) = pick_channels(&mut cap, settings)?;
     let trace = Trace {
         v: &signal.samples,
         i: current.as_ref().map(|c| c.samples.as_slice()),
@@ -326,7 +361,7 @@ pub fn measure_file(
         label: settings.label.clone(),
         format: cap.format.to_string(),
         sample_interval_s: cap.sample_interval_s,
-        n_samples: cap.n_samples(),
+        n_samples,
         t0_s: cap.t0_s,
         signal: signal.name.clone(),
         current: current.map(|c| c.name),
@@ -419,12 +454,19 @@ fn fit_events(
     };
     let mut worst: Option<(usize, crate::model::EventFit)> = None;
     let mut worst_stress = f64::NEG_INFINITY;
-    for (k, (event, &(start, end))) in m.events.iter_mut().zip(&m.windows).enumerate() {
-        let Some(window) = signal.samples.get(start..end) else {
-            continue;
-        };
-        let t_start_s = t0_s + start as f64 * dt_s;
-        if let Some(fit) = crate::model::fit_event(window, dt_s, t_start_s, event, &ctx) {
+    // Events are fitted independently, on all cores; the results are applied in order.
+    let fits: Vec<Option<crate::model::EventFit>> = m
+        .events
+        .par_iter()
+        .zip(&m.windows)
+        .map(|(event, &(start, end))| {
+            let window = signal.samples.get(start..end)?;
+            let t_start_s = t0_s + start as f64 * dt_s;
+            crate::model::fit_event(window, dt_s, t_start_s, event, &ctx)
+        })
+        .collect();
+    for (k, (event, fit)) in m.events.iter_mut().zip(fits).enumerate() {
+        if let Some(fit) = fit {
             crate::model::apply_fit(event, &fit, &ctx);
             if event.switch_stress_v > worst_stress {
                 worst_stress = event.switch_stress_v;
@@ -670,13 +712,13 @@ pub fn ring_of_file(
     read: &ReadOptions,
     signal: Option<&str>,
 ) -> Result<crate::model::RingMeasurement, String> {
-    let cap = capture::read_capture(path, read).map_err(|e| e.to_string())?;
+    let mut cap = capture::read_capture(path, read).map_err(|e| e.to_string())?;
     let settings = Settings {
         read: read.clone(),
         signal: signal.map(str::to_string),
         ..Settings::default()
     };
-    let (ch, _) = pick_channels(&cap, &settings)?;
+    let (ch, _) = pick_channels(&mut cap, &settings)?;
     let ctx = crate::model::ModelContext {
         adc: ch.adc,
         ..crate::model::ModelContext::default()

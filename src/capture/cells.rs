@@ -102,6 +102,12 @@ pub(crate) fn trim_ascii(s: &[u8]) -> &[u8] {
 
 /// A cell without surrounding spaces and quotes.
 pub(crate) fn trim_cell(s: &[u8]) -> &[u8] {
+    // Nearly every cell is a bare number: nothing to trim at either end.
+    if let (Some(&a), Some(&b)) = (s.first(), s.last()) {
+        if !(a.is_ascii_whitespace() || a == b'"' || b.is_ascii_whitespace() || b == b'"') {
+            return s;
+        }
+    }
     let s = trim_ascii(s);
     let s = s.strip_prefix(b"\"").unwrap_or(s);
     let s = s.strip_suffix(b"\"").unwrap_or(s);
@@ -146,7 +152,8 @@ pub(crate) fn parse_number(cell: &[u8], decimal_comma: bool) -> Result<f64, Cell
 /// Place value of the last digit written in a number cell (`1.25e-6` -> 1e-8): the
 /// resolution the writer printed with, so rounding is not mistaken for jitter.
 pub(crate) fn last_digit_place(cell: &[u8]) -> f64 {
-    let (mantissa, exponent) = match cell.iter().position(|&b| b == b'e' || b == b'E') {
+    // The exponent marker sits near the end of a cell: search from there.
+    let (mantissa, exponent) = match cell.iter().rposition(|&b| b == b'e' || b == b'E') {
         Some(k) => {
             let exp_text = cell.get(k + 1..).unwrap_or(&[]);
             let (sign, digits) = match exp_text.first() {
@@ -168,7 +175,24 @@ pub(crate) fn last_digit_place(cell: &[u8]) -> f64 {
         .iter()
         .position(|&b| b == b'.' || b == b',')
         .map_or(0, |k| mantissa.len() - k - 1) as i32;
-    10f64.powi(exponent - decimals)
+    pow10(exponent - decimals)
+}
+
+/// `10f64.powi(k)`, looked up for the exponents printed numbers have (it runs once per row).
+fn pow10(k: i32) -> f64 {
+    const LO: i32 = -64;
+    static TABLE: std::sync::OnceLock<[f64; 129]> = std::sync::OnceLock::new();
+    let table = TABLE.get_or_init(|| {
+        let mut t = [0.0; 129];
+        for (i, x) in t.iter_mut().enumerate() {
+            *x = 10f64.powi(LO + i as i32);
+        }
+        t
+    });
+    usize::try_from(k - LO)
+        .ok()
+        .and_then(|i| table.get(i).copied())
+        .unwrap_or_else(|| 10f64.powi(k))
 }
 
 #[cfg(test)]

@@ -32,8 +32,16 @@ impl<R: BufRead> LineReader<R> {
     }
 
     /// Reads the next line into `buf` without its `\n` or `\r\n`. `Ok(false)` at the end.
+    #[cfg(test)]
     pub(crate) fn next_line(&mut self, buf: &mut Vec<u8>) -> Result<bool, LineError> {
         buf.clear();
+        self.append_line(buf)
+    }
+
+    /// Appends the next line to `buf` (after what it holds) without its `\n` or `\r\n`, so
+    /// many lines can be gathered into one buffer. `Ok(false)` at the end.
+    pub(crate) fn append_line(&mut self, buf: &mut Vec<u8>) -> Result<bool, LineError> {
+        let base = buf.len();
         let mut consumed_any = false;
         loop {
             let available = match self.inner.fill_buf() {
@@ -50,7 +58,7 @@ impl<R: BufRead> LineReader<R> {
                 None => (available.len(), false),
             };
             let content = if found { take - 1 } else { take };
-            if buf.len() + content > MAX_LINE_BYTES {
+            if buf.len() - base + content > MAX_LINE_BYTES {
                 return Err(LineError::TooLong);
             }
             buf.extend_from_slice(available.get(..content).unwrap_or(&[]));
@@ -63,7 +71,7 @@ impl<R: BufRead> LineReader<R> {
         if !consumed_any {
             return Ok(false);
         }
-        if buf.last() == Some(&b'\r') {
+        if buf.len() > base && buf.last() == Some(&b'\r') {
             buf.pop();
         }
         self.line_no += 1;

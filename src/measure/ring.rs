@@ -369,7 +369,13 @@ pub fn fft_peak_hz(y: &[f64], dt_s: f64) -> Option<f64> {
         buf.push(Complex::new((x - mean) * w, 0.0));
     }
     buf.resize(nfft, Complex::new(0.0, 0.0));
-    FftPlanner::new().plan_fft_forward(nfft).process(&mut buf);
+    // Planning a size costs more than the transform itself (its twiddle tables); a planner
+    // per thread keeps the plans of the sizes already seen (a handful: powers of two).
+    thread_local! {
+        static PLANNER: std::cell::RefCell<FftPlanner<f64>> = std::cell::RefCell::new(FftPlanner::new());
+    }
+    let fft = PLANNER.with(|p| p.borrow_mut().plan_fft_forward(nfft));
+    fft.process(&mut buf);
     let mags: Vec<f64> = buf.iter().take(nfft / 2).map(|c| c.norm()).collect();
     // Skip the lobe the window leaves around DC.
     let first = 4 * nfft / n;

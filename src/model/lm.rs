@@ -173,6 +173,54 @@ fn sum_sq(r: &[f64]) -> f64 {
 }
 
 fn normal_equations(jac: &[f64], r: &[f64], m: usize, n: usize, jtj: &mut [f64], jtr: &mut [f64]) {
+    // A fixed parameter count lets the compiler unroll the inner loops, which carry the
+    // whole cost of a fit over thousands of residuals.
+    match n {
+        2 => normal_equations_n::<2>(jac, r, m, jtj, jtr),
+        3 => normal_equations_n::<3>(jac, r, m, jtj, jtr),
+        4 => normal_equations_n::<4>(jac, r, m, jtj, jtr),
+        5 => normal_equations_n::<5>(jac, r, m, jtj, jtr),
+        _ => normal_equations_any(jac, r, m, n, jtj, jtr),
+    }
+}
+
+fn normal_equations_n<const N: usize>(
+    jac: &[f64],
+    r: &[f64],
+    m: usize,
+    jtj: &mut [f64],
+    jtr: &mut [f64],
+) {
+    let mut acc = [[0.0f64; N]; N];
+    let mut g = [0.0f64; N];
+    for (row, ri) in jac.chunks_exact(N).zip(r).take(m) {
+        let row: &[f64; N] = match row.try_into() {
+            Ok(x) => x,
+            Err(_) => continue,
+        };
+        for a in 0..N {
+            g[a] += row[a] * ri;
+            for b in a..N {
+                acc[a][b] += row[a] * row[b];
+            }
+        }
+    }
+    for a in 0..N {
+        jtr[a] = g[a];
+        for b in 0..N {
+            jtj[a * N + b] = if b >= a { acc[a][b] } else { acc[b][a] };
+        }
+    }
+}
+
+fn normal_equations_any(
+    jac: &[f64],
+    r: &[f64],
+    m: usize,
+    n: usize,
+    jtj: &mut [f64],
+    jtr: &mut [f64],
+) {
     jtj[..n * n].fill(0.0);
     jtr[..n].fill(0.0);
     for (row, ri) in jac.chunks_exact(n).zip(r).take(m) {

@@ -323,7 +323,8 @@ pub(crate) fn open(
     let stream = CsvStream {
         file: path.to_path_buf(),
         lines: LineReader::new(reader, offset, data_line),
-        buf: Vec::with_capacity(256),
+        text: Vec::new(),
+        spans: Vec::new(),
         delim,
         decimal_comma: comma,
         n_fields,

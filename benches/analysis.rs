@@ -1,0 +1,93 @@
+//! Analysis throughput on an in-memory record: edge finding, the whole measurement (levels,
+//! edges, per-event metrics) and the per-event model fit, in samples per second.
+
+mod common;
+
+use criterion::{criterion_group, criterion_main, Criterion, Throughput};
+use kickscan::events::{scan_edges, EdgeParams};
+use kickscan::measure::{measure_trace, MeasureOptions, Polarity, Trace};
+use kickscan::model::{fit_event, ModelContext};
+
+const N: usize = 1_000_000;
+const EVENTS: usize = 8;
+
+fn trace(v: &[f64]) -> Trace<'_> {
+    Trace {
+        v,
+        i: None,
+        dt_s: common::DT_S,
+        t0_s: 0.0,
+        adc: None,
+    }
+}
+
+fn event_finding(c: &mut Criterion) {
+    let v = common::switch_node(N, EVENTS);
+    let m = measure_trace(&trace(&v), &MeasureOptions::default()).expect("measure");
+    let params = EdgeParams {
+        v_on: m.v_on,
+        v_off: m.v_off,
+        hysteresis_f: 0.1,
+        // The on state of the record lasts a fifth of each event period.
+        dwell_samples: N / EVENTS / 10,
+    };
+    let mut g = c.benchmark_group("event_finding");
+    g.throughput(Throughput::Elements(N as u64));
+    g.bench_function("scan_edges_1M", |b| {
+        b.iter(|| {
+            let scan = scan_edges(&v, params);
+            assert_eq!(scan.edges.len(), EVENTS);
+            scan
+        })
+    });
+    g.finish();
+}
+
+fn measurement(c: &mut Criterion) {
+    let v = common::switch_node(N, EVENTS);
+    let mut g = c.benchmark_group("measurement");
+    g.sample_size(10);
+    g.throughput(Throughput::Elements(N as u64));
+    g.bench_function("measure_trace_1M", |b| {
+        b.iter(|| measure_trace(&trace(&v), &MeasureOptions::default()).expect("measure"))
+    });
+    g.finish();
+}
+
+fn fit(c: &mut Criterion) {
+    let v = common::switch_node(N, EVENTS);
+    let m = measure_trace(&trace(&v), &MeasureOptions::default()).expect("measure");
+    let ctx = ModelContext {
+        // The body diode clips the ring below ground, as in the pipeline.
+        clip_level_v: Some(match m.polarity {
+            Polarity::Up => -0.4,
+            Polarity::Down => m.v_on + 0.4,
+        }),
+        ..ModelContext::default()
+    };
+    let window_samples: usize = m.windows.iter().map(|(a, b)| b - a).sum();
+    let mut g = c.benchmark_group("fit");
+    g.sample_size(10);
+    g.throughput(Throughput::Elements(window_samples as u64));
+    g.bench_function("fit_event_all_windows", |b| {
+        b.iter(|| {
+            m.events
+                .iter()
+                .zip(&m.windows)
+                .filter_map(|(e, &(start, end))| {
+                    fit_event(
+                        &v[start..end],
+                        common::DT_S,
+                        start as f64 * common::DT_S,
+                        e,
+                        &ctx,
+                    )
+                })
+                .count()
+        })
+    });
+    g.finish();
+}
+
+criterion_group!(benches, event_finding, measurement, fit);
+criterion_main!(benches);
