@@ -32,6 +32,8 @@ mod with_feature {
     use polars::prelude::*;
     use serde_json::Value;
 
+    use assert_cmd::Command;
+
     use super::{kickscan, report_support};
     use kickscan::report::{render_report, ReportInput};
 
