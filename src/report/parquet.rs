@@ -560,6 +560,9 @@ pub fn collect_tables(inputs: &[PathBuf]) -> (Vec<PathBuf>, Vec<crate::document:
             files.push(input.clone());
         }
     }
+    // A table named twice (itself and its folder) is read once.
+    let mut seen = std::collections::HashSet::new();
+    files.retain(|p| seen.insert(std::fs::canonicalize(p).unwrap_or_else(|_| p.clone())));
     (files, errors)
 }
 
