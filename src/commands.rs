@@ -55,6 +55,7 @@ pub fn run(cli: Cli) -> Result<ExitCode> {
         }
         Command::Measure {
             inputs,
+            from_table,
             json,
             out,
             force,
@@ -62,6 +63,9 @@ pub fn run(cli: Cli) -> Result<ExitCode> {
             analysis,
         } => {
             let mut settings = analysis.to_settings(read.to_options()?)?;
+            if from_table {
+                return measure_tables(&inputs, json, out, force, &settings);
+            }
             settings.stop = stop_on_ctrl_c();
             let quiet = analysis.quiet || json;
             let measured = AtomicUsize::new(0);
@@ -206,6 +210,68 @@ pub fn run(cli: Cli) -> Result<ExitCode> {
         Command::Simulate(args) => crate::cli::simulate::run(args),
         Command::Parasitics(args) => crate::cli::parasitics::run(args),
     }
+}
+
+/// `measure --from-table`: the per-file block from the tables' grouped query, then the
+/// summary; `--json` gives the kickscan.measure/1 document with the per-file figures added
+/// under `tables`.
+#[cfg(feature = "parquet")]
+fn measure_tables(
+    inputs: &[std::path::PathBuf],
+    json: bool,
+    out: Option<std::path::PathBuf>,
+    force: bool,
+    settings: &pipeline::Settings,
+) -> Result<ExitCode> {
+    let run = pipeline::measure_from_tables(inputs, settings);
+    let doc = &run.doc;
+    let mut stdout = std::io::stdout().lock();
+    if json {
+        let mut value = serde_json::to_value(doc)?;
+        if let Some(m) = value.as_object_mut() {
+            m.insert("tables".into(), serde_json::to_value(&run.groups)?);
+        }
+        serde_json::to_writer_pretty(&mut stdout, &value)?;
+        writeln!(stdout)?;
+    } else {
+        stdout.write_all(kickscan::report::parquet::groups_text(&run.groups).as_bytes())?;
+        writeln!(stdout)?;
+        stdout.write_all(kickscan::report::measure_summary_text(doc).as_bytes())?;
+    }
+    if let Some(dir) = out {
+        // Tables carry no samples: the report has no capture plots.
+        let mut input = kickscan::report::ReportInput::new(doc, settings, &[]);
+        input.force = force;
+        kickscan::report::write_report(&dir, &input)
+            .with_context(|| format!("writing the report to {}", dir.display()))?;
+        let line = format!("report written to {}", dir.join("report.html").display());
+        if json {
+            eprintln!("{line}");
+        } else {
+            writeln!(stdout, "{line}")?;
+        }
+    }
+    report_errors(&doc.errors);
+    let crossed = pipeline::limit_crossed(doc, settings);
+    if let Some(reason) = &crossed {
+        eprintln!("FAIL: {reason}");
+    }
+    Ok(exit_for(!doc.errors.is_empty(), crossed.is_some()))
+}
+
+/// Without the `parquet` feature `--from-table` is a usage error that says how to get it.
+#[cfg(not(feature = "parquet"))]
+fn measure_tables(
+    _inputs: &[std::path::PathBuf],
+    _json: bool,
+    _out: Option<std::path::PathBuf>,
+    _force: bool,
+    _settings: &pipeline::Settings,
+) -> Result<ExitCode> {
+    anyhow::bail!(
+        "--from-table: this kickscan was built without the `parquet` feature, which reads \
+         event tables; build one with `cargo build --release --features parquet`"
+    )
 }
 
 fn report_errors(errors: &[kickscan::document::FileError]) {

@@ -3,7 +3,7 @@
 //! Terms follow IEEE Std 181-2011 (state levels, reference levels, transition duration,
 //! overshoot aberration) where the standard has one.
 
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
 use crate::capture::AdcRange;
 use crate::{events, levels};
@@ -13,7 +13,7 @@ pub mod ring;
 pub mod states;
 
 /// Which way the spike goes.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Default)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, Default)]
 #[serde(rename_all = "lowercase")]
 pub enum Polarity {
     /// Low-side switch: the node flies up above the supply.
@@ -43,7 +43,7 @@ pub enum CurrentThrough {
 }
 
 /// Which ringing `ring_freq_hz` reports.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "lowercase")]
 pub enum RingKind {
     /// Fast ring of the node capacitance with a small stray inductance (layout, switch).
@@ -104,8 +104,9 @@ pub struct Trace<'a> {
 }
 
 /// Everything measured on one turn-off event. Field names carry units and are the JSON
-/// contract (`kickscan.measure/1`); `None` serialises as null, never NaN.
-#[derive(Debug, Clone, Serialize, Default, PartialEq)]
+/// contract (`kickscan.measure/1`); `None` serialises as null, never NaN. Deserialising
+/// reads the events back from a table (`measure --from-table`).
+#[derive(Debug, Clone, Serialize, Deserialize, Default, PartialEq)]
 pub struct Event {
     pub index: usize,
     pub t_edge_s: f64,

@@ -428,6 +428,80 @@ pub fn measure_inputs_sketched(
     (doc, sketches)
 }
 
+/// `measure --from-table`: the summary of event tables written by earlier runs (their
+/// `events.parquet`), possibly on many machines, and per-file figures from a grouped query
+/// over each table's rows.
+#[cfg(feature = "parquet")]
+pub struct TableRun {
+    pub doc: MeasureDoc,
+    pub groups: Vec<crate::report::parquet::FileGroup>,
+}
+
+/// Reads event tables (files, or folders searched for `*.parquet`) in parallel, rebuilds
+/// each capture's events and summarises them as [`measure_inputs`] does. A table that
+/// cannot be read is listed under `errors`; the others are summarised. A file named in two
+/// tables (the same path measured on two machines) stays two captures, each named with its
+/// table.
+#[cfg(feature = "parquet")]
+pub fn measure_from_tables(inputs: &[PathBuf], settings: &Settings) -> TableRun {
+    use crate::report::parquet;
+    let (tables, mut errors) = parquet::collect_tables(inputs);
+    let results: Vec<_> = tables
+        .par_iter()
+        .map(|path| {
+            let table = parquet::read_events_table(path)?;
+            let groups = parquet::file_groups(&table)?;
+            // The grouped query and the rebuilt captures read the same rows.
+            let rows: usize = table.captures.iter().map(|c| c.events.len()).sum();
+            let grouped: usize = groups.iter().map(|g| g.n_events).sum();
+            if rows != grouped {
+                return Err(parquet::TableError {
+                    file: table.source.clone(),
+                    message: format!("{rows} events rebuilt but {grouped} rows grouped"),
+                });
+            }
+            Ok((table.source, table.captures, groups))
+        })
+        .collect();
+    let mut captures: Vec<(String, CaptureDoc)> = Vec::new();
+    let mut groups = Vec::new();
+    for (path, r) in tables.iter().zip(results) {
+        match r {
+            Ok((source, caps, g)) => {
+                captures.extend(caps.into_iter().map(|c| (source.clone(), c)));
+                groups.extend(g);
+            }
+            Err(e) => errors.push(FileError {
+                file: path.display().to_string(),
+                error: e.to_string(),
+            }),
+        }
+    }
+    let mut seen: std::collections::HashMap<String, usize> = std::collections::HashMap::new();
+    for (_, c) in &captures {
+        *seen.entry(c.file.clone()).or_default() += 1;
+    }
+    let captures: Vec<CaptureDoc> = captures
+        .into_iter()
+        .map(|(source, mut c)| {
+            if seen.get(&c.file).is_some_and(|&n| n > 1) {
+                c.file = format!("{} [from {source}]", c.file);
+            }
+            c
+        })
+        .collect();
+    let summary = summarize(&captures, settings);
+    TableRun {
+        doc: MeasureDoc {
+            schema: MEASURE_SCHEMA,
+            captures,
+            summary,
+            errors,
+        },
+        groups,
+    }
+}
+
 /// How far past the rail the switch's body diode holds the node once it conducts, less a
 /// margin for noise: samples beyond it are left out of fits (a silicon body diode conducts
 /// from about 0.5-0.7 V; common practice).

@@ -50,12 +50,18 @@ pub enum Command {
     },
     /// Find and measure every turn-off event in files or folders.
     #[command(
-        after_help = "Examples:\n  kickscan measure bench/valve1/ --supply 24V --rating 60V\n  kickscan measure scope.csv --signal CH1 --current CH2 --json\n  kickscan measure runs/ --fail-above 48V   # exit 3 if any spike exceeds 48 V"
+        after_help = "Examples:\n  kickscan measure bench/valve1/ --supply 24V --rating 60V\n  kickscan measure scope.csv --signal CH1 --current CH2 --json\n  kickscan measure runs/ --fail-above 48V   # exit 3 if any spike exceeds 48 V\n  kickscan measure --from-table benchA/events.parquet benchB/events.parquet --rating 60V"
     )]
     Measure {
         /// Capture files or folders (searched recursively).
         #[arg(required = true)]
         inputs: Vec<PathBuf>,
+        /// The inputs are event tables (events.parquet from earlier --out reports, or
+        /// folders holding them): summarise their events together, e.g. from many machines.
+        /// Only --rating, --block, --lifetime and the --fail-* limits apply. Needs a kickscan
+        /// built with the `parquet` feature.
+        #[arg(long)]
+        from_table: bool,
         /// Print the kickscan.measure/1 JSON document on stdout.
         #[arg(long)]
         json: bool,

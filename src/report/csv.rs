@@ -51,9 +51,16 @@ const ORDER: &[&str] = &[
     "window_s",
 ];
 
-/// The events table as CSV text.
-pub fn events_csv(doc: &MeasureDoc) -> Result<String, serde_json::Error> {
-    let mut rows: Vec<(&str, serde_json::Map<String, Value>)> = Vec::new();
+/// The rows of the events table: each event's file and its serialised fields.
+pub(crate) type EventRow<'a> = (&'a str, serde_json::Map<String, Value>);
+
+/// Every event of `doc` as a row, and the table's columns after `file`: the fields in
+/// [`ORDER`], then any others in alphabetical order. Shared with `events.parquet`, so both
+/// tables have the same rows and columns.
+pub(crate) fn event_rows(
+    doc: &MeasureDoc,
+) -> Result<(Vec<String>, Vec<EventRow<'_>>), serde_json::Error> {
+    let mut rows: Vec<EventRow> = Vec::new();
     for c in &doc.captures {
         for e in &c.events {
             if let Value::Object(m) = serde_json::to_value(e)? {
@@ -78,7 +85,12 @@ pub fn events_csv(doc: &MeasureDoc) -> Result<String, serde_json::Error> {
     columns.retain(|k| {
         template.get(k.as_str()).is_some() || rows.iter().any(|(_, m)| m.contains_key(k))
     });
+    Ok((columns, rows))
+}
 
+/// The events table as CSV text.
+pub fn events_csv(doc: &MeasureDoc) -> Result<String, serde_json::Error> {
+    let (columns, rows) = event_rows(doc)?;
     let mut out = String::from("file");
     for k in &columns {
         out.push(',');

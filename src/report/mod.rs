@@ -11,6 +11,8 @@ pub mod fonts;
 pub mod format;
 pub mod html;
 pub mod json;
+#[cfg(feature = "parquet")]
+pub mod parquet;
 pub mod plots;
 pub mod sketch;
 pub mod table;
@@ -23,7 +25,7 @@ use crate::pipeline::Settings;
 pub use compare_table::compare_text;
 pub use plots::{FitPlot, LimitLine, PeakEstimate, Plot, PlotError, VariantData};
 pub use sketch::{EventWave, TraceSketch};
-pub use table::{inspect_text, measure_text};
+pub use table::{inspect_text, measure_summary_text, measure_text};
 
 /// Why a report could not be written.
 #[derive(Debug, thiserror::Error)]
@@ -40,6 +42,9 @@ pub enum ReportError {
     Plot(#[from] PlotError),
     #[error("serialising the document: {0}")]
     Json(#[from] serde_json::Error),
+    #[cfg(feature = "parquet")]
+    #[error("{0}")]
+    Table(#[from] parquet::TableError),
 }
 
 /// Most capture overviews drawn; the capture holding the worst event always comes first.
@@ -308,6 +313,11 @@ pub fn render_report(input: &ReportInput) -> Result<Vec<(String, Vec<u8>)>, Repo
             json::summary_json(input.doc)?.into_bytes(),
         ),
     ];
+    #[cfg(feature = "parquet")]
+    files.push((
+        "events.parquet".to_string(),
+        parquet::events_parquet(input.doc)?,
+    ));
     for p in plots {
         files.push((format!("plots/{}.svg", p.name), p.svg.into_bytes()));
         files.push((format!("plots/{}.png", p.name), p.png));
@@ -316,7 +326,7 @@ pub fn render_report(input: &ReportInput) -> Result<Vec<(String, Vec<u8>)>, Repo
 }
 
 /// Writes the report folder `dir` atomically: `report.html`, `events.csv`, `summary.json`
-/// and `plots/*.png`, `plots/*.svg`.
+/// and `plots/*.png`, `plots/*.svg`; with the `parquet` feature also `events.parquet`.
 pub fn write_report(dir: &Path, input: &ReportInput) -> Result<(), ReportError> {
     let files = render_report(input)?;
     atomic::write_folder(dir, &files, input.force)

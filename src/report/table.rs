@@ -138,6 +138,14 @@ pub fn measure_text(doc: &MeasureDoc) -> String {
     s
 }
 
+/// The summary block of [`measure_text`] alone (counts, metrics, worst event, rating,
+/// projection, warnings, failed inputs), for runs where a per-event table would not help.
+pub fn measure_summary_text(doc: &MeasureDoc) -> String {
+    let mut s = String::new();
+    summary_text(doc, &mut s);
+    s
+}
+
 fn summary_text(doc: &MeasureDoc, s: &mut String) {
     let _ = writeln!(s, "summary: {}", digest::counts_line(doc));
     let rows = digest::metric_rows(doc);
