@@ -96,15 +96,7 @@ pub fn run(cli: Cli) -> Result<ExitCode> {
                 let mut input = kickscan::report::ReportInput::new(&doc, &settings, &sketches);
                 input.verdicts = &advice;
                 input.force = force;
-                kickscan::report::write_report(&dir, &input)
-                    .with_context(|| format!("writing the report to {}", dir.display()))?;
-                // stdout may carry the JSON document; the path goes to stderr then.
-                let line = format!("report written to {}", dir.join("report.html").display());
-                if json {
-                    eprintln!("{line}");
-                } else {
-                    writeln!(stdout, "{line}")?;
-                }
+                write_report_and_say(&dir, &input, json, &mut stdout)?;
             }
             report_errors(&doc.errors);
             let crossed = pipeline::limit_crossed(&doc, &settings);
@@ -168,14 +160,7 @@ pub fn run(cli: Cli) -> Result<ExitCode> {
                 input.verdicts = &verdicts;
                 input.variants = &variant_data;
                 input.force = force;
-                kickscan::report::write_report(&dir, &input)
-                    .with_context(|| format!("writing the report to {}", dir.display()))?;
-                let line = format!("report written to {}", dir.join("report.html").display());
-                if json {
-                    eprintln!("{line}");
-                } else {
-                    writeln!(stdout, "{line}")?;
-                }
+                write_report_and_say(&dir, &input, json, &mut stdout)?;
             }
             let failed = run.docs.iter().any(|d| !d.errors.is_empty());
             for d in &run.docs {
@@ -242,14 +227,7 @@ fn measure_tables(
         // Tables carry no samples: the report has no capture plots.
         let mut input = kickscan::report::ReportInput::new(doc, settings, &[]);
         input.force = force;
-        kickscan::report::write_report(&dir, &input)
-            .with_context(|| format!("writing the report to {}", dir.display()))?;
-        let line = format!("report written to {}", dir.join("report.html").display());
-        if json {
-            eprintln!("{line}");
-        } else {
-            writeln!(stdout, "{line}")?;
-        }
+        write_report_and_say(&dir, &input, json, &mut stdout)?;
     }
     report_errors(&doc.errors);
     let crossed = pipeline::limit_crossed(doc, settings);
@@ -272,6 +250,25 @@ fn measure_tables(
         "--from-table: this kickscan was built without the `parquet` feature, which reads \
          event tables; build one with `cargo build --release --features parquet`"
     )
+}
+
+/// Writes the report folder and says where it is: on stdout, or on stderr when stdout
+/// carries the JSON document.
+fn write_report_and_say(
+    dir: &std::path::Path,
+    input: &kickscan::report::ReportInput,
+    json: bool,
+    stdout: &mut impl Write,
+) -> Result<()> {
+    kickscan::report::write_report(dir, input)
+        .with_context(|| format!("writing the report to {}", dir.display()))?;
+    let line = format!("report written to {}", dir.join("report.html").display());
+    if json {
+        eprintln!("{line}");
+    } else {
+        writeln!(stdout, "{line}")?;
+    }
+    Ok(())
 }
 
 fn report_errors(errors: &[kickscan::document::FileError]) {
