@@ -197,11 +197,11 @@ fn verdicts(variants: &[VariantDoc], base: usize) -> Vec<String> {
 }
 
 fn fmt_v(v: f64) -> String {
-    crate::report::format::eng(v, "V")
+    crate::units::eng(v, "V")
 }
 
 fn fmt_s(s: f64) -> String {
-    crate::report::format::eng(s, "s")
+    crate::units::eng(s, "s")
 }
 
 /// All variants' captures in one document, for the report page: each capture labelled with

@@ -198,7 +198,7 @@ pub fn run(
 
 /// The added-capacitance method on the scenario's bare/loaded pair, in a few lines.
 fn parasitics_lines(captures: &Path, pair: &ScenarioPair, scenario: &Scenario) -> Vec<String> {
-    use crate::report::format::eng;
+    use crate::units::eng;
     let inputs = crate::model::ParasiticsInputs {
         c_add_f: pair.added_c_f,
         inductance_h: None,

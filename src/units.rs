@@ -135,6 +135,91 @@ fn unit_matches(text: &str, unit: &str) -> bool {
     }
 }
 
+// Engineering notation: the other direction, for everything kickscan prints. Exponents are
+// multiples of three written as an SI prefix, three significant figures by default, ASCII `u`
+// for micro so terminals and CSV viewers never mangle it.
+
+/// SI prefixes from femto to tera, indexed by `exponent / 3 + 5`.
+const PREFIXES: [&str; 10] = ["f", "p", "n", "u", "m", "", "k", "M", "G", "T"];
+const MIN_EXP3: i32 = -15;
+const MAX_EXP3: i32 = 12;
+
+/// Shown where a value is absent (null) or not finite.
+pub const MISSING: &str = "-";
+
+pub(crate) fn prefix_for(exp3: i32) -> &'static str {
+    let k = (exp3 - MIN_EXP3) / 3;
+    usize::try_from(k)
+        .ok()
+        .and_then(|k| PREFIXES.get(k))
+        .copied()
+        .unwrap_or("")
+}
+
+/// Engineering exponent (a multiple of 3, clamped to the prefix table) for `|v|`.
+pub(crate) fn exp3_of(abs: f64) -> i32 {
+    if abs == 0.0 || !abs.is_finite() {
+        return 0;
+    }
+    let e = abs.log10().floor() as i32;
+    (e.div_euclid(3) * 3).clamp(MIN_EXP3, MAX_EXP3)
+}
+
+/// `m` rounded to `sig` significant figures.
+fn round_sig(m: f64, sig: usize) -> f64 {
+    if m == 0.0 || !m.is_finite() {
+        return m;
+    }
+    let scale = 10f64.powi(sig as i32 - 1 - m.abs().log10().floor() as i32);
+    (m * scale).round() / scale
+}
+
+/// Mantissa text with `sig` significant figures (trailing zeros kept: they state precision).
+fn mantissa_text(m: f64, sig: usize) -> String {
+    let r = round_sig(m, sig);
+    let lead = if r == 0.0 {
+        0
+    } else {
+        r.abs().log10().floor() as i64
+    };
+    let decimals = (sig as i64 - 1 - lead).max(0) as usize;
+    format!("{r:.decimals$}")
+}
+
+/// `value` in engineering notation with `sig` significant figures and `unit`:
+/// `eng_sig(3.52e-5, "s", 3)` is `"35.2 us"`. Not-finite values give [`MISSING`].
+pub fn eng_sig(value: f64, unit: &str, sig: usize) -> String {
+    if !value.is_finite() {
+        return MISSING.to_string();
+    }
+    let sig = sig.clamp(1, 15);
+    if value == 0.0 {
+        return join(&mantissa_text(0.0, sig), "", unit);
+    }
+    let mut exp3 = exp3_of(value.abs());
+    let mut m = value / 10f64.powi(exp3);
+    // Rounding may carry the mantissa to 1000 (999.7 -> "1000"); move to the next prefix.
+    if round_sig(m.abs(), sig) >= 1000.0 && exp3 < MAX_EXP3 {
+        exp3 += 3;
+        m = value / 10f64.powi(exp3);
+    }
+    join(&mantissa_text(m, sig), prefix_for(exp3), unit)
+}
+
+fn join(mantissa: &str, prefix: &str, unit: &str) -> String {
+    if prefix.is_empty() && unit.is_empty() {
+        mantissa.to_string()
+    } else {
+        format!("{mantissa} {prefix}{unit}")
+    }
+}
+
+/// Three significant figures: `eng(412.0, "V")` is `"412 V"`, `eng(1.24e6, "Hz")` is
+/// `"1.24 MHz"`.
+pub fn eng(value: f64, unit: &str) -> String {
+    eng_sig(value, unit, 3)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

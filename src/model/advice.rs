@@ -143,7 +143,7 @@ pub struct ClampPrediction {
 
 /// A duration in the unit a designer reads it in.
 fn time_text(t_s: f64) -> String {
-    crate::report::format::eng(t_s, "s")
+    crate::units::eng(t_s, "s")
 }
 
 /// t0 = tau ln(1 + I0 R / Vc), from L di/dt = -(Vc + R i) with i(0) = I0.
@@ -186,7 +186,7 @@ pub fn predict_clamp(coil: &Coil, clamp: Clamp) -> Option<ClampPrediction> {
         Clamp::AcrossSwitch { .. } => format!(
             "fast release ({}); the clamp across the switch absorbs the coil's {} every switching",
             time_text(t0),
-            crate::report::format::eng(coil.energy_j(), "J")
+            crate::units::eng(coil.energy_j(), "J")
         ),
     };
     Some(ClampPrediction {
