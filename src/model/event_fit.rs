@@ -241,23 +241,8 @@ fn fit_stretch(
     let tail: Vec<f64> = samples[a..b].iter().map(|x| sign * (x - v_off)).collect();
     let tail_max = tail.iter().fold(0.0f64, |m, x| m.max(x.abs()));
     let hyst = (5.0 * noise).max(0.03 * tail_max);
-    let skip = |k: usize| left_out.excluded(samples[a + k]);
-    let est = ringfit::estimate_ring(&tail, dt_s, hyst, &skip).filter(|e| e.n_crossings >= 3)?;
-    let period = 1.0 / est.freq_hz;
-    let span_s = (est.t_last_crossing_s + 2.0 * period).min(MAX_PERIODS * period);
-    let end = (a + (span_s / dt_s).ceil() as usize + 1).min(b);
-    let (t, y, n_left_out) = collect(samples, a, end, dt_s, &|i| left_out.excluded(samples[i]));
-    let f = ringfit::fit_damped_sine(
-        &t,
-        &y,
-        &RingStart {
-            omega_d_rad_s: std::f64::consts::TAU * est.freq_hz,
-            alpha_per_s: est.alpha_per_s.filter(|x| *x > 0.0).unwrap_or(0.0),
-            v_off,
-            fit_offset: true,
-        },
-    )
-    .ok()?;
+    let (_, f, t, n_left_out) =
+        fit_ring_from(samples, a, b, &tail, dt_s, hyst, v_off, left_out).ok()?;
     if !(super::is_pos(f.alpha_per_s) && f.damping_ratio < 1.0) {
         return None;
     }
@@ -271,6 +256,51 @@ fn fit_stretch(
         curve: FitCurve::DampedSine(Box::new(f)),
         peak: None,
     })
+}
+
+/// The ring from sample `a` (at most to `b`): its zero crossings give the frequency and
+/// decay to start from, the fit spans the crossings plus two periods (at most
+/// [`MAX_PERIODS`]), and samples the clamp or a rail holds are left out. `u` is the signed
+/// deviation from `v_off` from `a` on. Returns the estimate, the fit, the fitted times (from
+/// `a`) and the count left out.
+#[allow(clippy::too_many_arguments)]
+fn fit_ring_from(
+    samples: &[f64],
+    a: usize,
+    b: usize,
+    u: &[f64],
+    dt_s: f64,
+    hyst: f64,
+    v_off: f64,
+    left_out: &LeftOut,
+) -> Result<
+    (
+        ringfit::RingEstimate,
+        ringfit::DampedSineFit,
+        Vec<f64>,
+        usize,
+    ),
+    ModelError,
+> {
+    let skip = |k: usize| left_out.excluded(samples[a + k]);
+    let est = ringfit::estimate_ring(u, dt_s, hyst, &skip)
+        .filter(|e| e.n_crossings >= 3)
+        .ok_or(ModelError::NoRing)?;
+    let period = 1.0 / est.freq_hz;
+    let span_s = (est.t_last_crossing_s + 2.0 * period).min(MAX_PERIODS * period);
+    let end = (a + (span_s / dt_s).ceil() as usize + 1).min(b);
+    let (t, y, n_left_out) = collect(samples, a, end, dt_s, &|i| left_out.excluded(samples[i]));
+    let fit = ringfit::fit_damped_sine(
+        &t,
+        &y,
+        &RingStart {
+            omega_d_rad_s: std::f64::consts::TAU * est.freq_hz,
+            alpha_per_s: est.alpha_per_s.filter(|x| *x > 0.0).unwrap_or(0.0),
+            v_off,
+            fit_offset: true,
+        },
+    )?;
+    Ok((est, fit, t, n_left_out))
 }
 
 /// Start of the free response: the main peak, or the end of a clamp plateau. A run near
@@ -465,24 +495,7 @@ pub fn measure_ring(
     let u: Vec<f64> = v[i_pk..].iter().map(|x| sign * (x - v_off)).collect();
     let u_pk = u.first().copied().unwrap_or(0.0);
     let hyst = (5.0 * noise).max(0.03 * u_pk);
-    let skip = |k: usize| left_out.excluded(v[i_pk + k]);
-    let est = ringfit::estimate_ring(&u, dt_s, hyst, &skip)
-        .filter(|e| e.n_crossings >= 3)
-        .ok_or(ModelError::NoRing)?;
-    let period = 1.0 / est.freq_hz;
-    let span_s = (est.t_last_crossing_s + 2.0 * period).min(MAX_PERIODS * period);
-    let end = (i_pk + (span_s / dt_s).ceil() as usize + 1).min(n);
-    let (t, y, _) = collect(v, i_pk, end, dt_s, &|i| left_out.excluded(v[i]));
-    let fit = ringfit::fit_damped_sine(
-        &t,
-        &y,
-        &RingStart {
-            omega_d_rad_s: std::f64::consts::TAU * est.freq_hz,
-            alpha_per_s: est.alpha_per_s.filter(|a| *a > 0.0).unwrap_or(0.0),
-            v_off,
-            fit_offset: true,
-        },
-    )?;
+    let (est, fit, _, _) = fit_ring_from(v, i_pk, n, &u, dt_s, hyst, v_off, &left_out)?;
     if !super::is_pos(fit.alpha_per_s) {
         return Err(ModelError::NotDecaying);
     }
