@@ -132,25 +132,58 @@ impl EdgeDetector {
 /// [`EdgeDetector`]. A run cut by the start or the end of the record is included: its
 /// length is a lower bound, and a long one still marks a true on state.
 pub fn low_run_lengths(v: &[f64], v_on: f64, v_off: f64, hysteresis_f: f64) -> Vec<usize> {
-    let span = v_off - v_on;
-    let mut runs = Vec::new();
-    let mut start: Option<usize> = None;
-    for (k, &x) in v.iter().enumerate() {
-        let u = (x - v_on) / span;
-        if u < 0.5 - hysteresis_f {
-            if start.is_none() {
-                start = Some(k);
-            }
-        } else if u > 0.5 + hysteresis_f {
-            if let Some(s) = start.take() {
-                runs.push(k - s);
+    let mut runs = LowRuns::new(v_on, v_off, hysteresis_f);
+    runs.push(v);
+    runs.finish()
+}
+
+/// [`low_run_lengths`] fed block by block.
+#[derive(Debug, Clone)]
+pub struct LowRuns {
+    v_on: f64,
+    span: f64,
+    hysteresis_f: f64,
+    runs: Vec<usize>,
+    start: Option<usize>,
+    next_index: usize,
+}
+
+impl LowRuns {
+    pub fn new(v_on: f64, v_off: f64, hysteresis_f: f64) -> Self {
+        LowRuns {
+            v_on,
+            span: v_off - v_on,
+            hysteresis_f,
+            runs: Vec::new(),
+            start: None,
+            next_index: 0,
+        }
+    }
+
+    pub fn push(&mut self, block: &[f64]) {
+        for &x in block {
+            let k = self.next_index;
+            self.next_index += 1;
+            let u = (x - self.v_on) / self.span;
+            if u < 0.5 - self.hysteresis_f {
+                if self.start.is_none() {
+                    self.start = Some(k);
+                }
+            } else if u > 0.5 + self.hysteresis_f {
+                if let Some(s) = self.start.take() {
+                    self.runs.push(k - s);
+                }
             }
         }
     }
-    if let Some(s) = start {
-        runs.push(v.len() - s);
+
+    /// The run lengths, the run still open at the end included.
+    pub fn finish(mut self) -> Vec<usize> {
+        if let Some(s) = self.start {
+            self.runs.push(self.next_index - s);
+        }
+        self.runs
     }
-    runs
 }
 
 /// The dwell that separates ringing dips from true on states: the geometric middle of the

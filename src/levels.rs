@@ -10,7 +10,7 @@
 /// Largest number of histogram bins; beyond it the bin width grows (memory stays bounded).
 const MAX_BINS: usize = 1 << 20;
 /// Largest number of first differences kept for a noise estimate (a strided subset beyond).
-const MAX_NOISE_SAMPLES: usize = 1 << 20;
+pub const MAX_NOISE_SAMPLES: usize = 1 << 20;
 /// Records longer than this are scanned in parallel pieces of this many samples.
 const PARALLEL_PIECE: usize = 1 << 18;
 /// Consistency constant of the median absolute deviation for Gaussian data
@@ -75,15 +75,20 @@ pub fn median(v: &[f64]) -> Option<f64> {
 /// the differences where `keep(v[k-1], v[k])` holds enter (e.g. samples in the on state).
 pub fn noise_sigma_where(v: &[f64], keep: impl Fn(f64, f64) -> bool) -> Option<f64> {
     let stride = (v.len() / MAX_NOISE_SAMPLES).max(1);
-    let mut d: Vec<f64> = Vec::with_capacity((v.len() / stride).min(MAX_NOISE_SAMPLES + 1));
-    let mut k = 1;
-    while k < v.len() {
-        let (a, b) = (v[k - 1], v[k]);
-        if a.is_finite() && b.is_finite() && keep(a, b) {
-            d.push((b - a).abs());
-        }
-        k += stride;
-    }
+    let pairs = (1..v.len())
+        .step_by(stride)
+        .map(|k| (v[k - 1], v[k]))
+        .filter(|&(a, b)| keep(a, b));
+    noise_sigma_of_pairs(pairs)
+}
+
+/// Noise standard deviation from pairs of neighbouring samples, as [`noise_sigma_where`]
+/// computes it; the pairs of a long record can be gathered while streaming it.
+pub fn noise_sigma_of_pairs(pairs: impl Iterator<Item = (f64, f64)>) -> Option<f64> {
+    let mut d: Vec<f64> = pairs
+        .filter(|(a, b)| a.is_finite() && b.is_finite())
+        .map(|(a, b)| (b - a).abs())
+        .collect();
     if d.len() < 8 {
         return None;
     }
@@ -101,32 +106,34 @@ pub fn noise_sigma(v: &[f64]) -> Option<f64> {
 /// difference, accepted when (nearly) every difference is a whole multiple of it.
 pub fn adc_step_estimate(v: &[f64]) -> Option<f64> {
     let stride = (v.len() / MAX_NOISE_SAMPLES).max(1);
-    let mut d_min = f64::INFINITY;
-    let mut k = 1;
     let (lo, hi) = finite_range(v)?;
-    let tiny = (hi - lo).abs() * 1e-9;
-    while k < v.len() {
-        let d = (v[k] - v[k - 1]).abs();
-        if d.is_finite() && d > tiny && d < d_min {
-            d_min = d;
-        }
-        k += stride;
-    }
+    let diffs = (1..v.len()).step_by(stride).map(|k| v[k] - v[k - 1]);
+    adc_step_of_diffs(diffs, hi - lo)
+}
+
+/// The ADC code step from first differences, as [`adc_step_estimate`] finds it;
+/// `range_v` is the record's span (differences below a billionth of it count as zero).
+pub fn adc_step_of_diffs(diffs: impl Iterator<Item = f64> + Clone, range_v: f64) -> Option<f64> {
+    let tiny = range_v.abs() * 1e-9;
+    let d_min = diffs
+        .clone()
+        .map(f64::abs)
+        .filter(|d| d.is_finite() && *d > tiny)
+        .fold(f64::INFINITY, f64::min);
     if !d_min.is_finite() {
         return None;
     }
     let (mut n, mut on_grid) = (0usize, 0usize);
-    let mut k = 1;
-    while k < v.len() && n < 4096 {
-        let d = (v[k] - v[k - 1]).abs();
-        if d.is_finite() && d > tiny {
-            n += 1;
-            let r = d / d_min;
-            if (r - r.round()).abs() < 0.02 {
-                on_grid += 1;
-            }
+    for d in diffs
+        .map(f64::abs)
+        .filter(|d| d.is_finite() && *d > tiny)
+        .take(4096)
+    {
+        n += 1;
+        let r = d / d_min;
+        if (r - r.round()).abs() < 0.02 {
+            on_grid += 1;
         }
-        k += stride.max(1);
     }
     // Unquantised data with noise gives ratios spread evenly, so about 4 % land within
     // 0.02 of an integer by chance; a grid gives nearly all.

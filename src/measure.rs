@@ -11,6 +11,7 @@ use crate::{events, levels};
 mod event;
 pub mod ring;
 pub mod states;
+pub mod stream;
 
 /// Which way the spike goes.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, Default)]
@@ -180,6 +181,11 @@ pub enum MeasureError {
     TooShort { n: usize, min: usize },
     #[error("{0}")]
     Invalid(String),
+    /// Reading the record again failed (streamed records are read more than once).
+    #[error("{0}")]
+    Read(String),
+    #[error("interrupted")]
+    Interrupted,
 }
 
 /// How many per-event notes a capture lists before counting the rest.
@@ -193,26 +199,13 @@ const MAX_REPEATED_NOTES: usize = 3;
 /// cross-checked against the level just before each edge and where each event settled.
 /// When they disagree (a clamp plateau or a ringing tail outnumbering the off state) a
 /// warning says so and the events are found and measured again with the local levels.
+/// [`stream::measure_stream`] does the same on a record too long to hold in memory.
 pub fn measure_trace(
     trace: &Trace,
     opts: &MeasureOptions,
 ) -> Result<CaptureMeasurement, MeasureError> {
-    const MIN_SAMPLES: usize = 16;
-    // A state holds for at least this many consecutive samples.
-    const MIN_STATE_RUN: usize = 32;
     let v = trace.v;
-    if v.len() < MIN_SAMPLES {
-        return Err(MeasureError::TooShort {
-            n: v.len(),
-            min: MIN_SAMPLES,
-        });
-    }
-    if !(trace.dt_s > 0.0 && trace.dt_s.is_finite()) {
-        return Err(MeasureError::Invalid(format!(
-            "the sample interval must be a positive number of seconds, not {}",
-            trace.dt_s
-        )));
-    }
+    check_length_and_interval(v.len(), trace.dt_s)?;
     let mut warnings = Vec::new();
     let current = match trace.i {
         Some(i) if i.len() != v.len() => {
@@ -232,73 +225,17 @@ pub fn measure_trace(
         .or_else(|| levels::adc_step_estimate(v))
         .unwrap_or(0.0);
     let rough_sigma = levels::noise_sigma(v).unwrap_or(0.0);
-    let range = hi - lo;
-    let resolution = (2.0 * rough_sigma).max(adc_step_v).max(range * 1e-5);
-    // "Separate" means many noise deviations apart, not a fraction of the range.
-    let separation = (6.0 * rough_sigma + 2.0 * adc_step_v).max(range * 1e-3);
-    let states = levels::two_state_levels(v, resolution, separation)
-        .ok_or(MeasureError::NoStates { spread_v: range })?;
-    let max_samples = opts
-        .max_window_s
-        .filter(|m| *m > 0.0)
-        .map(|m| (m / trace.dt_s).ceil() as usize);
-    let setting = states::Setting {
-        resolution_v: resolution,
-        separation_v: separation,
-        sigma_v: rough_sigma,
-        adc_step_v,
-        lo_v: lo,
-        hi_v: hi,
-        polarity: opts.polarity,
-        dwell_samples: opts
-            .min_on_time_s
-            .filter(|t| *t > 0.0)
-            .map(|t| ((t / trace.dt_s).ceil() as usize).max(1)),
-        max_samples,
-    };
-    // With the supply known the two states are ground and the supply, whichever side the
-    // switch is on: take the level the samples hold near each (within 15 %, so a sagging
-    // supply is still found). This also serves a record that ends before its only event
-    // settles, where no off state is in the histogram at all.
-    let (low_v, high_v) = match opts
-        .supply_v
-        .filter(|s| s.is_finite() && s.abs() > separation)
-    {
-        Some(sup) => {
-            let hw = 0.15 * sup.abs();
-            let g = levels::level_near(v, 0.0, hw).unwrap_or(0.0);
-            let s = levels::level_near(v, sup, hw).unwrap_or(sup);
-            (g.min(s), g.max(s))
-        }
-        // The histogram pair, unless another pair of candidate levels explains the events
-        // better (a body-diode clip level on a clean record, see `states`).
-        None => match states::better_pair(v, states.low_v, states.high_v, &setting) {
-            Some(fit) => {
-                warnings.push(format!(
-                    "the most populated levels {:.4} V and {:.4} V do not explain the events (a clamped ring trough or a ringing tail?); using {:.4} V and {:.4} V, which do",
-                    states.low_v, states.high_v, fit.low_v, fit.high_v
-                ));
-                (fit.low_v, fit.high_v)
-            }
-            None => (states.low_v, states.high_v),
-        },
-    };
-
-    let polarity = states::polarity_of(low_v, high_v, &setting);
-    let (mut v_on, mut v_off) = match polarity {
-        Polarity::Up => (low_v, high_v),
-        Polarity::Down => (high_v, low_v),
-    };
+    let survey = Survey::new(lo, hi, adc_step_v, rough_sigma, trace.dt_s, opts);
+    let mut chosen = choose_levels(v, 1, &survey, opts, &mut warnings)?;
 
     let mut pass = 0;
     loop {
+        let (v_on, v_off) = (chosen.v_on, chosen.v_off);
         let step = (v_off - v_on).abs();
-        let sigma = levels::noise_sigma_where(v, |a, b| {
-            (a - v_on).abs() < 0.25 * step && (b - v_on).abs() < 0.25 * step
-        })
-        .unwrap_or(rough_sigma);
-        let hysteresis_f = (4.0 * sigma.max(adc_step_v) / step).clamp(0.05, 0.35);
-        let dwell = setting.dwell_samples.unwrap_or_else(|| {
+        let sigma =
+            levels::noise_sigma_where(v, |a, b| near_on(a, b, v_on, step)).unwrap_or(rough_sigma);
+        let hysteresis_f = hysteresis_of(sigma, adc_step_v, step);
+        let dwell = survey.dwell_samples.unwrap_or_else(|| {
             events::derive_dwell(&events::low_run_lengths(v, v_on, v_off, hysteresis_f))
         });
         let params = events::EdgeParams {
@@ -308,27 +245,8 @@ pub fn measure_trace(
             dwell_samples: dwell,
         };
         let scan = events::scan_edges(v, params);
-        let windows = events::event_windows(&scan, v.len(), max_samples);
-        let s = if polarity == Polarity::Up { 1.0 } else { -1.0 };
-        let extreme_v = if s > 0.0 { hi } else { lo };
-        let cx = event::Context {
-            v,
-            i: current,
-            dt_s: trace.dt_s,
-            t0_s: trace.t0_s,
-            v_on,
-            v_off,
-            polarity,
-            sigma_v: sigma,
-            adc_step_v,
-            adc_rail_v: trace.adc.map(|a| if s > 0.0 { a.max_v } else { a.min_v }),
-            extreme_v,
-            opts,
-        };
-        let mut evs = Vec::with_capacity(windows.len());
-        let mut befores = Vec::new();
-        let mut settleds = Vec::new();
-        let mut notes = Vec::new();
+        let windows = events::event_windows(&scan, v.len(), survey.max_samples);
+        let cx = survey.context(v, current, trace, &chosen, sigma, opts);
         // Windows are measured independently, on all cores; results are kept in order.
         let measured: Vec<(Event, event::LocalLevels)> = {
             use rayon::prelude::*;
@@ -349,80 +267,327 @@ pub fn measure_trace(
                 })
                 .collect()
         };
+        let mut found = Found::default();
         for (ev, local) in measured {
-            befores.extend(local.before_edge_v);
-            settleds.extend(local.settled_v);
-            notes.extend(local.notes);
-            evs.push(ev);
+            found.add(ev, local);
         }
-
-        // Cross-check of the histogram levels with the local ones. The local medians are
-        // precise to a fraction of the noise: a disagreement of one noise deviation (or half
-        // a code) is worth a warning, and any disagreement beyond a quarter of the noise is
-        // corrected (one more pass with the local levels), since every level-relative
-        // figure (crossings, settling, ring peaks) inherits it.
-        let tol = sigma.max(0.5 * adc_step_v).max(0.002 * step);
-        let refine_tol = (0.25 * sigma).max(1e-4 * step);
-        let mut new_on = v_on;
-        let mut new_off = v_off;
         if pass == 0 {
-            if let Some(l) = levels::median(&befores) {
-                if (l - v_on).abs() > tol {
-                    warnings.push(format!(
-                        "on level {v_on:.4} V from the histogram differs from {l:.4} V seen before the edges; using {l:.4} V"
-                    ));
-                }
-                if (l - v_on).abs() > refine_tol {
-                    new_on = l;
-                }
-            }
-            if let Some(l) = levels::median(&settleds) {
-                if (l - v_off).abs() > tol {
-                    warnings.push(format!(
-                        "off level {v_off:.4} V from the histogram differs from {l:.4} V where the events settled (a clamp plateau or ringing tail outnumbers the off state?); using {l:.4} V"
-                    ));
-                }
-                if (l - v_off).abs() > refine_tol {
-                    new_off = l;
-                }
-            }
-            let usable = (new_off - new_on).abs() > separation;
-            if (new_on != v_on || new_off != v_off) && usable {
-                v_on = new_on;
-                v_off = new_off;
+            if let Some(refined) = cross_check(&found, &chosen, sigma, &survey, &mut warnings) {
+                chosen = refined;
                 pass += 1;
                 continue;
             }
         }
+        let longest_runs = [v_on, v_off]
+            .map(|level| levels::longest_run_near(v, level, 2.0 * survey.resolution_v));
+        let windows = windows.iter().map(|&(a, b, _)| (a, b)).collect();
+        return Ok(conclude(
+            found,
+            windows,
+            &chosen,
+            longest_runs,
+            warnings,
+            opts,
+        ));
+    }
+}
 
-        // A note that holds for many events is said a few times, then counted.
-        let n_notes = notes.len();
-        warnings.extend(notes.into_iter().take(MAX_REPEATED_NOTES));
-        if n_notes > MAX_REPEATED_NOTES {
+/// The least a record needs: enough samples and a usable sample interval.
+fn check_length_and_interval(n: usize, dt_s: f64) -> Result<(), MeasureError> {
+    const MIN_SAMPLES: usize = 16;
+    if n < MIN_SAMPLES {
+        return Err(MeasureError::TooShort {
+            n,
+            min: MIN_SAMPLES,
+        });
+    }
+    if !(dt_s > 0.0 && dt_s.is_finite()) {
+        return Err(MeasureError::Invalid(format!(
+            "the sample interval must be a positive number of seconds, not {dt_s}"
+        )));
+    }
+    Ok(())
+}
+
+/// Capture-wide figures the level choice and the edge rules start from.
+#[derive(Debug, Clone)]
+struct Survey {
+    lo_v: f64,
+    hi_v: f64,
+    adc_step_v: f64,
+    rough_sigma_v: f64,
+    /// Finest detail the level histogram resolves.
+    resolution_v: f64,
+    /// Smallest separation of two states.
+    separation_v: f64,
+    /// `--min-on-time` in samples.
+    dwell_samples: Option<usize>,
+    /// `--max-window` in samples.
+    max_samples: Option<usize>,
+}
+
+impl Survey {
+    fn new(
+        lo_v: f64,
+        hi_v: f64,
+        adc_step_v: f64,
+        rough_sigma_v: f64,
+        dt_s: f64,
+        opts: &MeasureOptions,
+    ) -> Survey {
+        let range = hi_v - lo_v;
+        Survey {
+            lo_v,
+            hi_v,
+            adc_step_v,
+            rough_sigma_v,
+            resolution_v: (2.0 * rough_sigma_v).max(adc_step_v).max(range * 1e-5),
+            // "Separate" means many noise deviations apart, not a fraction of the range.
+            separation_v: (6.0 * rough_sigma_v + 2.0 * adc_step_v).max(range * 1e-3),
+            dwell_samples: opts
+                .min_on_time_s
+                .filter(|t| *t > 0.0)
+                .map(|t| ((t / dt_s).ceil() as usize).max(1)),
+            max_samples: opts
+                .max_window_s
+                .filter(|m| *m > 0.0)
+                .map(|m| (m / dt_s).ceil() as usize),
+        }
+    }
+
+    /// The pair search's view, for a record taken every `stride` samples.
+    fn setting(&self, opts: &MeasureOptions, stride: usize) -> states::Setting {
+        let per = |n: usize| (n / stride.max(1)).max(1);
+        states::Setting {
+            resolution_v: self.resolution_v,
+            separation_v: self.separation_v,
+            sigma_v: self.rough_sigma_v,
+            adc_step_v: self.adc_step_v,
+            lo_v: self.lo_v,
+            hi_v: self.hi_v,
+            polarity: opts.polarity,
+            dwell_samples: self.dwell_samples.map(per),
+            max_samples: self.max_samples.map(per),
+        }
+    }
+
+    /// What each event's measurement needs. `v` and `i` hold the samples from absolute
+    /// index `trace`'s start; see [`event::Context`].
+    fn context<'a>(
+        &self,
+        v: &'a [f64],
+        i: Option<&'a [f64]>,
+        trace: &Trace,
+        chosen: &Chosen,
+        sigma_v: f64,
+        opts: &'a MeasureOptions,
+    ) -> event::Context<'a> {
+        let up = chosen.polarity == Polarity::Up;
+        event::Context {
+            v,
+            i,
+            dt_s: trace.dt_s,
+            t0_s: trace.t0_s,
+            first_index: 0,
+            v_on: chosen.v_on,
+            v_off: chosen.v_off,
+            polarity: chosen.polarity,
+            sigma_v,
+            adc_step_v: self.adc_step_v,
+            adc_rail_v: trace.adc.map(|a| if up { a.max_v } else { a.min_v }),
+            extreme_v: if up { self.hi_v } else { self.lo_v },
+            opts,
+        }
+    }
+}
+
+/// The state levels and polarity in use.
+#[derive(Debug, Clone, Copy)]
+struct Chosen {
+    v_on: f64,
+    v_off: f64,
+    polarity: Polarity,
+}
+
+/// A first difference of the on state: both samples within a quarter step of it.
+fn near_on(a: f64, b: f64, v_on: f64, step: f64) -> bool {
+    (a - v_on).abs() < 0.25 * step && (b - v_on).abs() < 0.25 * step
+}
+
+/// Half-width of the edge detector's hysteresis band, in steps: four noise deviations (or
+/// codes), kept between 5 % and 35 % of the step.
+fn hysteresis_of(sigma_v: f64, adc_step_v: f64, step_v: f64) -> f64 {
+    (4.0 * sigma_v.max(adc_step_v) / step_v).clamp(0.05, 0.35)
+}
+
+/// The two state levels and the polarity, from `v` (the whole record, or every `stride`-th
+/// sample of a long one).
+fn choose_levels(
+    v: &[f64],
+    stride: usize,
+    survey: &Survey,
+    opts: &MeasureOptions,
+    warnings: &mut Vec<String>,
+) -> Result<Chosen, MeasureError> {
+    let states = levels::two_state_levels(v, survey.resolution_v, survey.separation_v).ok_or(
+        MeasureError::NoStates {
+            spread_v: survey.hi_v - survey.lo_v,
+        },
+    )?;
+    let setting = survey.setting(opts, stride);
+    // With the supply known the two states are ground and the supply, whichever side the
+    // switch is on: take the level the samples hold near each (within 15 %, so a sagging
+    // supply is still found). This also serves a record that ends before its only event
+    // settles, where no off state is in the histogram at all.
+    let (low_v, high_v) = match opts
+        .supply_v
+        .filter(|s| s.is_finite() && s.abs() > survey.separation_v)
+    {
+        Some(sup) => {
+            let hw = 0.15 * sup.abs();
+            let g = levels::level_near(v, 0.0, hw).unwrap_or(0.0);
+            let s = levels::level_near(v, sup, hw).unwrap_or(sup);
+            (g.min(s), g.max(s))
+        }
+        // The histogram pair, unless another pair of candidate levels explains the events
+        // better (a body-diode clip level on a clean record, see `states`).
+        None => match states::better_pair(v, states.low_v, states.high_v, &setting) {
+            Some(fit) => {
+                warnings.push(format!(
+                    "the most populated levels {:.4} V and {:.4} V do not explain the events (a clamped ring trough or a ringing tail?); using {:.4} V and {:.4} V, which do",
+                    states.low_v, states.high_v, fit.low_v, fit.high_v
+                ));
+                (fit.low_v, fit.high_v)
+            }
+            None => (states.low_v, states.high_v),
+        },
+    };
+    let polarity = states::polarity_of(low_v, high_v, &setting);
+    let (v_on, v_off) = match polarity {
+        Polarity::Up => (low_v, high_v),
+        Polarity::Down => (high_v, low_v),
+    };
+    Ok(Chosen {
+        v_on,
+        v_off,
+        polarity,
+    })
+}
+
+/// Events measured in one pass, with the local levels they saw.
+#[derive(Debug, Default)]
+struct Found {
+    events: Vec<Event>,
+    befores: Vec<f64>,
+    settleds: Vec<f64>,
+    notes: Vec<String>,
+}
+
+impl Found {
+    fn add(&mut self, ev: Event, local: event::LocalLevels) {
+        self.befores.extend(local.before_edge_v);
+        self.settleds.extend(local.settled_v);
+        self.notes.extend(local.notes);
+        self.events.push(ev);
+    }
+}
+
+/// Cross-check of the histogram levels with the local ones; the levels for one more pass
+/// when they should be corrected.
+///
+/// The local medians are precise to a fraction of the noise: a disagreement of one noise
+/// deviation (or half a code) is worth a warning, and any disagreement beyond a quarter of
+/// the noise is corrected, since every level-relative figure (crossings, settling, ring
+/// peaks) inherits it.
+fn cross_check(
+    found: &Found,
+    chosen: &Chosen,
+    sigma_v: f64,
+    survey: &Survey,
+    warnings: &mut Vec<String>,
+) -> Option<Chosen> {
+    let (v_on, v_off) = (chosen.v_on, chosen.v_off);
+    let step = (v_off - v_on).abs();
+    let tol = sigma_v.max(0.5 * survey.adc_step_v).max(0.002 * step);
+    let refine_tol = (0.25 * sigma_v).max(1e-4 * step);
+    let mut new_on = v_on;
+    let mut new_off = v_off;
+    if let Some(l) = levels::median(&found.befores) {
+        if (l - v_on).abs() > tol {
             warnings.push(format!(
-                "... and {} more event notes like the ones above",
-                n_notes - MAX_REPEATED_NOTES
+                "on level {v_on:.4} V from the histogram differs from {l:.4} V seen before the edges; using {l:.4} V"
             ));
         }
-        for (which, level) in [("on", v_on), ("off", v_off)] {
-            if opts.supply_v.is_none()
-                && levels::longest_run_near(v, level, 2.0 * resolution) < MIN_STATE_RUN
-            {
-                warnings.push(format!(
-                    "the signal never holds near the {which} level {level:.3} V for {MIN_STATE_RUN} samples: the record may end before the events settle; give --supply for dependable levels"
-                ));
-            }
+        if (l - v_on).abs() > refine_tol {
+            new_on = l;
         }
-        capture_warnings(&mut warnings, &evs, v_on, v_off, polarity, opts);
-        let windows = windows.iter().map(|&(a, b, _)| (a, b)).collect();
-        return Ok(CaptureMeasurement {
-            v_on,
-            v_off,
-            polarity,
-            events: evs,
-            warnings,
-            windows,
-        });
+    }
+    if let Some(l) = levels::median(&found.settleds) {
+        if (l - v_off).abs() > tol {
+            warnings.push(format!(
+                "off level {v_off:.4} V from the histogram differs from {l:.4} V where the events settled (a clamp plateau or ringing tail outnumbers the off state?); using {l:.4} V"
+            ));
+        }
+        if (l - v_off).abs() > refine_tol {
+            new_off = l;
+        }
+    }
+    let usable = (new_off - new_on).abs() > survey.separation_v;
+    ((new_on != v_on || new_off != v_off) && usable).then_some(Chosen {
+        v_on: new_on,
+        v_off: new_off,
+        polarity: chosen.polarity,
+    })
+}
+
+/// The measurement of a capture from its final pass: notes counted, level and capture
+/// warnings added. `longest_runs` are the longest stretches held near the on and the off
+/// level (see [`levels::longest_run_near`]).
+fn conclude(
+    found: Found,
+    windows: Vec<(usize, usize)>,
+    chosen: &Chosen,
+    longest_runs: [usize; 2],
+    mut warnings: Vec<String>,
+    opts: &MeasureOptions,
+) -> CaptureMeasurement {
+    // A state holds for at least this many consecutive samples.
+    const MIN_STATE_RUN: usize = 32;
+    let Found { events, notes, .. } = found;
+    // A note that holds for many events is said a few times, then counted.
+    let n_notes = notes.len();
+    warnings.extend(notes.into_iter().take(MAX_REPEATED_NOTES));
+    if n_notes > MAX_REPEATED_NOTES {
+        warnings.push(format!(
+            "... and {} more event notes like the ones above",
+            n_notes - MAX_REPEATED_NOTES
+        ));
+    }
+    for ((which, level), run) in [("on", chosen.v_on), ("off", chosen.v_off)]
+        .into_iter()
+        .zip(longest_runs)
+    {
+        if opts.supply_v.is_none() && run < MIN_STATE_RUN {
+            warnings.push(format!(
+                "the signal never holds near the {which} level {level:.3} V for {MIN_STATE_RUN} samples: the record may end before the events settle; give --supply for dependable levels"
+            ));
+        }
+    }
+    capture_warnings(
+        &mut warnings,
+        &events,
+        chosen.v_on,
+        chosen.v_off,
+        chosen.polarity,
+        opts,
+    );
+    CaptureMeasurement {
+        v_on: chosen.v_on,
+        v_off: chosen.v_off,
+        polarity: chosen.polarity,
+        events,
+        warnings,
+        windows,
     }
 }
 

@@ -13,6 +13,9 @@ use crate::document::{
 use crate::measure::{self, Event, MeasureOptions, Trace};
 use crate::report::TraceSketch;
 
+mod streamed;
+pub use streamed::IN_MEMORY_SAMPLES;
+
 /// Typed settings for a run, after the command line has been checked.
 #[derive(Debug, Clone, Default)]
 pub struct Settings {
@@ -35,6 +38,9 @@ pub struct Settings {
     /// Set (by the binary's Ctrl-C handler) to stop starting new files; files already being
     /// measured finish. See [`Settings::stopped`].
     pub stop: Option<std::sync::Arc<std::sync::atomic::AtomicBool>>,
+    /// Captures longer than this many samples per channel are measured as they stream
+    /// (default [`IN_MEMORY_SAMPLES`]); tests lower it to stream short captures.
+    pub stream_above: Option<usize>,
 }
 
 impl Settings {
@@ -166,47 +172,56 @@ fn walk_entries(
 
 /// What `inspect` shows of one file.
 pub fn inspect_file(path: &Path, read: &ReadOptions) -> Result<InspectFile, String> {
-    let cap = capture::read_capture(path, read).map_err(|e| e.to_string())?;
+    // Block by block: only each channel's extremes are kept, whatever the length.
+    let mut reader = capture::open_blocks(path, read).map_err(|e| e.to_string())?;
+    let mut ranges = vec![(f64::INFINITY, f64::NEG_INFINITY); reader.header().channels.len()];
+    let mut block = capture::Block::default();
+    let mut n = 0usize;
+    while reader
+        .next_block_into(&mut block)
+        .map_err(|e| e.to_string())?
+    {
+        n += block.len();
+        for ((lo, hi), part) in ranges.iter_mut().zip(&block.channels) {
+            for &x in part.iter().filter(|x| x.is_finite()) {
+                *lo = x.min(*lo);
+                *hi = x.max(*hi);
+            }
+        }
+    }
+    let mut cap = reader.finish();
+    if n == 0 {
+        return Err(format!(
+            "{}: no samples; expected at least one sample per channel",
+            path.display()
+        ));
+    }
+    cap.notes.push(format!("{n} samples per channel"));
+    let found = |v: f64| v.is_finite().then_some(v);
     Ok(InspectFile {
         file: path.display().to_string(),
         format: cap.format.to_string(),
         sample_interval_s: cap.sample_interval_s,
-        n_samples: cap.n_samples(),
+        n_samples: n,
         t0_s: cap.t0_s,
         channels: cap
             .channels
             .iter()
-            .map(|c| {
-                let (min, max) = finite_range(&c.samples);
-                InspectChannel {
-                    name: c.name.clone(),
-                    unit: c.unit.clone(),
-                    min,
-                    max,
-                    // A rail not seen is stored as infinite by the readers.
-                    adc_min_v: c.adc.map(|a| a.min_v).filter(|v| v.is_finite()),
-                    adc_max_v: c.adc.map(|a| a.max_v).filter(|v| v.is_finite()),
-                }
+            .zip(ranges)
+            .map(|(c, (lo, hi))| InspectChannel {
+                name: c.name.clone(),
+                unit: c.unit.clone(),
+                min: found(lo),
+                max: found(hi),
+                // A rail not seen is stored as infinite by the readers.
+                adc_min_v: c.adc.map(|a| a.min_v).filter(|v| v.is_finite()),
+                adc_max_v: c.adc.map(|a| a.max_v).filter(|v| v.is_finite()),
             })
             .collect(),
         metadata: cap.metadata.clone(),
         notes: cap.notes.clone(),
         warnings: cap.warnings.clone(),
     })
-}
-
-fn finite_range(v: &[f64]) -> (Option<f64>, Option<f64>) {
-    let mut lo = f64::INFINITY;
-    let mut hi = f64::NEG_INFINITY;
-    for &x in v.iter().filter(|x| x.is_finite()) {
-        lo = lo.min(x);
-        hi = hi.max(x);
-    }
-    if lo <= hi {
-        (Some(lo), Some(hi))
-    } else {
-        (None, None)
-    }
 }
 
 /// `inspect` over many files.
@@ -302,12 +317,33 @@ const SKETCH_POINTS: usize = 2000;
 
 /// Reads and measures one file; with `sketch`, also keeps a decimated copy of the trace for
 /// the plots.
+///
+/// A capture longer than [`IN_MEMORY_SAMPLES`] samples per channel is measured
+/// as it streams, in memory that does not grow with its length (see [`streamed`]).
 pub fn measure_file(
     path: &Path,
     settings: &Settings,
     sketch: bool,
 ) -> Result<(CaptureDoc, Option<TraceSketch>), String> {
-    let mut cap = capture::read_capture(path, &settings.read).map_err(|e| e.to_string())?;
+    // Skews shift channels against each other by interpolation over the whole record.
+    let cap = if settings.read.skew.is_empty() {
+        match streamed::load(path, settings, sketch)? {
+            streamed::Loaded::Whole(cap) => cap,
+            streamed::Loaded::Measured(doc, sketch) => return Ok((*doc, sketch)),
+        }
+    } else {
+        capture::read_capture(path, &settings.read).map_err(|e| e.to_string())?
+    };
+    measure_capture(path, cap, settings, sketch)
+}
+
+/// Measures a capture held in memory.
+fn measure_capture(
+    path: &Path,
+    mut cap: Capture,
+    settings: &Settings,
+    sketch: bool,
+) -> Result<(CaptureDoc, Option<TraceSketch>), String> {
     let n_samples = cap.n_samples();
     let (signal, current) = pick_channels(&mut cap, settings)?;
     let trace = Trace {
@@ -346,10 +382,12 @@ pub fn measure_file(
         sk.fit = worst_fit.map(|(k, fit)| {
             fit_plot(
                 &path.display().to_string(),
-                &m,
-                k,
+                &m.events[k],
+                m.windows[k],
                 &fit,
-                &signal,
+                &signal.samples,
+                0,
+                signal.adc,
                 cap.sample_interval_s,
                 cap.t0_s,
             )
@@ -517,15 +555,7 @@ fn fit_events(
     t0_s: f64,
     settings: &Settings,
 ) -> Option<(usize, crate::model::EventFit)> {
-    let clip_level_v = Some(match m.polarity {
-        measure::Polarity::Up => -BODY_DIODE_CLIP_V,
-        measure::Polarity::Down => m.v_on + BODY_DIODE_CLIP_V,
-    });
-    let ctx = crate::model::ModelContext {
-        inductance_h: settings.measure.inductance_h,
-        adc: signal.adc,
-        clip_level_v,
-    };
+    let ctx = model_context(m.polarity, m.v_on, signal.adc, settings);
     let mut worst: Option<(usize, crate::model::EventFit)> = None;
     let mut worst_stress = f64::NEG_INFINITY;
     // Events are fitted independently, on all cores; the results are applied in order.
@@ -551,19 +581,42 @@ fn fit_events(
     worst
 }
 
+/// What the model fit needs to know of a capture: the body-diode clip level beyond the
+/// rail the spike points away from, the digitiser range, `--inductance`.
+fn model_context(
+    polarity: measure::Polarity,
+    v_on: f64,
+    adc: Option<capture::AdcRange>,
+    settings: &Settings,
+) -> crate::model::ModelContext {
+    let clip_level_v = Some(match polarity {
+        measure::Polarity::Up => -BODY_DIODE_CLIP_V,
+        measure::Polarity::Down => v_on + BODY_DIODE_CLIP_V,
+    });
+    crate::model::ModelContext {
+        inductance_h: settings.measure.inductance_h,
+        adc,
+        clip_level_v,
+    }
+}
+
 /// The fit plot of event `k`: samples from shortly before the edge to the end of the fitted
 /// stretch, and the model over the stretch it was fitted to, times from the edge.
+/// `samples` start at absolute index `first`.
+#[allow(clippy::too_many_arguments)]
 fn fit_plot(
     file: &str,
-    m: &measure::CaptureMeasurement,
-    k: usize,
+    event: &Event,
+    window: (usize, usize),
     fit: &crate::model::EventFit,
-    signal: &capture::Channel,
+    samples: &[f64],
+    first: usize,
+    adc: Option<capture::AdcRange>,
     dt_s: f64,
     t0_s: f64,
 ) -> crate::report::FitPlot {
-    let event = &m.events[k];
-    let (start, end) = m.windows[k];
+    let (start, end) = window;
+    let sample = |i: usize| i.checked_sub(first).and_then(|k| samples.get(k)).copied();
     let t_edge = event.t_edge_s;
     let from = ((t_edge - t0_s) / dt_s - 8.0).max(start as f64) as usize;
     let to = (((fit.fit_end_s - t0_s) / dt_s).ceil() as usize + 1).min(end);
@@ -571,7 +624,7 @@ fn fit_plot(
     let t_of = |i: usize| t0_s + i as f64 * dt_s - t_edge;
     let measured: Vec<(f64, f64)> = (from..to)
         .step_by(stride)
-        .filter_map(|i| signal.samples.get(i).map(|&v| (t_of(i), v)))
+        .filter_map(|i| sample(i).map(|v| (t_of(i), v)))
         .filter(|p| p.1.is_finite())
         .collect();
     let n_model = 1000;
@@ -582,12 +635,12 @@ fn fit_plot(
         .filter(|p| p.1.is_finite())
         .collect();
     // Stretches at the digitiser's top rail, where the samples say nothing of the peak.
-    let rail = signal.adc.map(|a| a.max_v).filter(|v| v.is_finite());
+    let rail = adc.map(|a| a.max_v).filter(|v| v.is_finite());
     let mut clipped_spans = Vec::new();
     if let Some(rail) = rail {
         let mut run: Option<usize> = None;
         for i in from..to {
-            let at_rail = signal.samples.get(i).is_some_and(|&v| v >= rail);
+            let at_rail = sample(i).is_some_and(|v| v >= rail);
             match (at_rail, run) {
                 (true, None) => run = Some(i),
                 (false, Some(r)) => {

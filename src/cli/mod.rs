@@ -374,6 +374,7 @@ impl AnalysisArgs {
                 })
                 .collect::<Result<_>>()?,
             stop: None,
+            stream_above: None,
         })
     }
 }

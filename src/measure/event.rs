@@ -24,10 +24,14 @@ const PARASITIC_RATIO: f64 = 2.5;
 /// What the capture-wide analysis hands to each event.
 #[derive(Debug, Clone, Copy)]
 pub struct Context<'a> {
+    /// Samples from absolute index `first_index` on: the whole record, or the stretch of a
+    /// streamed record that holds the window (and the sample after it, where there is one).
     pub v: &'a [f64],
     pub i: Option<&'a [f64]>,
     pub dt_s: f64,
     pub t0_s: f64,
+    /// Absolute index of `v[0]`; window indices are relative to `v`.
+    pub first_index: usize,
     pub v_on: f64,
     pub v_off: f64,
     pub polarity: Polarity,
@@ -100,7 +104,7 @@ pub fn measure_event(cx: &Context, w: &Window) -> (Event, LocalLevels) {
     let step = cx.step();
     let end = w.end.min(n);
     let e = w.edge.min(end.saturating_sub(2));
-    let t_of = |x: f64| cx.t0_s + x * cx.dt_s;
+    let t_of = |x: f64| cx.t0_s + (cx.first_index as f64 + x) * cx.dt_s;
     let level = |pct: f64| cx.v_on + pct / 100.0 * (cx.v_off - cx.v_on);
 
     let edge_x = crossing_index(v, e, level(50.0)).unwrap_or(e as f64 + 0.5);

@@ -78,24 +78,28 @@ impl TraceSketch {
             .map(|(e, &(start, end))| {
                 let end = end.min(v.len());
                 let start = start.min(end);
-                let (t_s, wv) = decimate_window(v, start, end, dt_s, t0_s - e.t_edge_s);
-                EventWave {
-                    index: e.index,
-                    t_edge_s: e.t_edge_s,
-                    switch_stress_v: e.switch_stress_v,
-                    peak_v: e.peak_v,
-                    t_peak_s: e.t_peak_s,
-                    clipped: e.clipped,
-                    t_s,
-                    v: wv,
-                }
+                EventWave::of_window(e, v, 0, (start, end), dt_s, t0_s)
             })
             .collect();
+        TraceSketch::assemble(file, dt_s, t0_s, v.len(), envelope, waves, events)
+    }
+
+    /// A sketch from parts made while streaming a long capture (see [`EnvelopeBuilder`]
+    /// and [`EventWave::of_window`]).
+    pub fn assemble(
+        file: &str,
+        dt_s: f64,
+        t0_s: f64,
+        n_samples: usize,
+        envelope: Vec<EnvelopePoint>,
+        waves: Vec<EventWave>,
+        events: &[Event],
+    ) -> TraceSketch {
         TraceSketch {
             file: file.to_string(),
             dt_s,
             t0_s,
-            n_samples: v.len(),
+            n_samples,
             envelope,
             events: waves,
             v_off: median(events.iter().map(|e| e.v_off)),
@@ -134,40 +138,109 @@ fn median(values: impl Iterator<Item = f64>) -> Option<f64> {
     }
 }
 
+impl EventWave {
+    /// The wave of event `e` over `window` (absolute sample indices), from samples `v`
+    /// that start at absolute index `first`.
+    pub fn of_window(
+        e: &Event,
+        v: &[f64],
+        first: usize,
+        window: (usize, usize),
+        dt_s: f64,
+        t0_s: f64,
+    ) -> EventWave {
+        let start = window.0.saturating_sub(first).min(v.len());
+        let end = window.1.saturating_sub(first).clamp(start, v.len());
+        let offset_s = t0_s + first as f64 * dt_s - e.t_edge_s;
+        let (t_s, wv) = decimate_window(v, start, end, dt_s, offset_s);
+        EventWave {
+            index: e.index,
+            t_edge_s: e.t_edge_s,
+            switch_stress_v: e.switch_stress_v,
+            peak_v: e.peak_v,
+            t_peak_s: e.t_peak_s,
+            clipped: e.clipped,
+            t_s,
+            v: wv,
+        }
+    }
+}
+
 /// Min/max per column: every sample lands in exactly one column, so spikes one sample wide
 /// still show. O(n), no allocation per sample.
 fn envelope(v: &[f64], dt_s: f64, t0_s: f64, columns: usize) -> Vec<EnvelopePoint> {
-    let n = v.len();
-    if n == 0 {
-        return Vec::new();
-    }
-    let columns = columns.min(n);
-    let mut out = Vec::with_capacity(columns);
-    for c in 0..columns {
-        let start = c * n / columns;
-        let end = ((c + 1) * n / columns).min(n);
-        let Some(chunk) = v.get(start..end) else {
-            continue;
-        };
-        let (lo, hi) = min_max(chunk);
-        if lo.is_finite() && hi.is_finite() {
-            out.push(EnvelopePoint {
-                t_s: t0_s + start as f64 * dt_s,
-                min_v: lo,
-                max_v: hi,
-            });
-        }
-    }
-    out
+    let mut b = EnvelopeBuilder::new(v.len(), columns, dt_s, t0_s);
+    b.push(v);
+    b.finish()
 }
 
-fn min_max(chunk: &[f64]) -> (f64, f64) {
-    chunk
-        .iter()
-        .filter(|x| x.is_finite())
-        .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), &x| {
-            (lo.min(x), hi.max(x))
-        })
+/// The overview envelope of a capture of known length fed block by block: column `c`
+/// holds samples `[c n / columns, (c + 1) n / columns)`.
+#[derive(Debug, Clone)]
+pub struct EnvelopeBuilder {
+    n: usize,
+    columns: usize,
+    dt_s: f64,
+    t0_s: f64,
+    next_index: usize,
+    column: usize,
+    column_end: usize,
+    lo: f64,
+    hi: f64,
+    out: Vec<EnvelopePoint>,
+}
+
+impl EnvelopeBuilder {
+    pub fn new(n: usize, columns: usize, dt_s: f64, t0_s: f64) -> Self {
+        let columns = columns.max(1).min(n.max(1));
+        EnvelopeBuilder {
+            n,
+            columns,
+            dt_s,
+            t0_s,
+            next_index: 0,
+            column: 0,
+            column_end: n / columns,
+            lo: f64::INFINITY,
+            hi: f64::NEG_INFINITY,
+            out: Vec::with_capacity(columns),
+        }
+    }
+
+    fn close_column(&mut self) {
+        if self.lo.is_finite() && self.hi.is_finite() {
+            let start = self.column * self.n / self.columns;
+            self.out.push(EnvelopePoint {
+                t_s: self.t0_s + start as f64 * self.dt_s,
+                min_v: self.lo,
+                max_v: self.hi,
+            });
+        }
+        self.lo = f64::INFINITY;
+        self.hi = f64::NEG_INFINITY;
+        self.column += 1;
+        self.column_end = ((self.column + 1) * self.n / self.columns).min(self.n);
+    }
+
+    pub fn push(&mut self, block: &[f64]) {
+        for &x in block {
+            while self.next_index >= self.column_end && self.column < self.columns {
+                self.close_column();
+            }
+            if x.is_finite() {
+                self.lo = self.lo.min(x);
+                self.hi = self.hi.max(x);
+            }
+            self.next_index += 1;
+        }
+    }
+
+    pub fn finish(mut self) -> Vec<EnvelopePoint> {
+        while self.column < self.columns {
+            self.close_column();
+        }
+        self.out
+    }
 }
 
 /// An event window as (time, value) pairs; longer windows keep each bucket's minimum and

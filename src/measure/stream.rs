@@ -1,0 +1,869 @@
+//! Measuring a record too long to hold in memory, in a few passes over its samples.
+//!
+//! [`super::measure_trace`] looks at the whole record at once. Here the record is a
+//! [`Replay`]: something that can hand out its samples block by block, from the first to the
+//! last, as often as asked (a spill file, a WAV file opened again, a slice in tests). The
+//! steps are the same and share their code with `measure_trace`:
+//!
+//! 1. While the record is first read, a [`Surveyor`] keeps its range, a thinned copy
+//!    (every `stride`-th sample, at most [`StreamLimits::thin_samples`] of them) and a
+//!    thinned set of neighbouring-sample pairs. The state levels come from the thinned
+//!    copy, the noise and the ADC step from the pairs (the whole-record path also takes a
+//!    strided subset of the pairs, so for a record of up to `thin_samples` samples both
+//!    paths agree exactly).
+//! 2. One pass counts the on runs for the dwell (unless `--min-on-time` gives it).
+//! 3. One pass feeds the edge detector and keeps only the samples of the open event window
+//!    (and a short history for the stretch before the next edge); each window is measured
+//!    as soon as the turn-on after it is seen. Windows longer than
+//!    [`StreamLimits::window_samples`] are cut there, and a warning says so.
+//! 4. When the local levels disagree with the histogram ones, steps 2 and 3 run again
+//!    with the local levels, as in `measure_trace`.
+//!
+//! Memory is the thinned copy, the pairs, one window and the batch of short windows being
+//! measured in parallel: bounded by the limits, whatever the record's length.
+
+use super::{
+    check_length_and_interval, choose_levels, conclude, cross_check, event, hysteresis_of, near_on,
+    CaptureMeasurement, Event, Found, MeasureError, MeasureOptions, Survey, Trace,
+};
+use crate::capture::AdcRange;
+use crate::{events, levels};
+
+/// Memory bounds of the streaming measurement, in samples.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct StreamLimits {
+    /// Most samples of the thinned copy the state levels come from.
+    pub thin_samples: usize,
+    /// Most neighbouring-sample pairs kept for the noise and ADC-step estimates.
+    pub pairs: usize,
+    /// Longest event window kept, edge to end.
+    pub window_samples: usize,
+    /// Short windows are gathered up to this many samples and measured in parallel.
+    pub batch_samples: usize,
+}
+
+impl Default for StreamLimits {
+    fn default() -> Self {
+        StreamLimits {
+            thin_samples: 1 << 19,
+            pairs: 1 << 18,
+            // Measuring a window takes a few working copies of it: 4 MiB each at this
+            // length.
+            window_samples: 1 << 19,
+            batch_samples: 1 << 19,
+        }
+    }
+}
+
+/// What a [`Replay`] hands each block to: voltage and (if any) current samples; `false`
+/// stops the pass.
+pub type BlockSink<'a> = dyn FnMut(&[f64], Option<&[f64]>) -> bool + 'a;
+
+/// A record that can be read again from its start, block by block.
+pub trait Replay {
+    /// Calls `each(v, i)` with consecutive blocks of the voltage and (when the record has
+    /// one) current samples, both the same length, from the first sample to the last.
+    /// `each` returns `false` to stop early; the result says whether every block was
+    /// handed out. The error message names the file and place.
+    fn replay(&mut self, each: &mut BlockSink) -> Result<bool, String>;
+}
+
+/// A record already in memory, handed out in blocks of a fixed length (tests, and the
+/// model for any other source).
+pub struct SliceReplay<'a> {
+    pub v: &'a [f64],
+    pub i: Option<&'a [f64]>,
+    pub block: usize,
+}
+
+impl Replay for SliceReplay<'_> {
+    fn replay(&mut self, each: &mut BlockSink) -> Result<bool, String> {
+        let block = self.block.max(1);
+        for (k, v) in self.v.chunks(block).enumerate() {
+            let i = self.i.and_then(|i| i.get(k * block..k * block + v.len()));
+            if !each(v, i) {
+                return Ok(false);
+            }
+        }
+        Ok(true)
+    }
+}
+
+/// What is kept of the record while it is read the first time (step 1 of the module
+/// notes). Thinning doubles the stride whenever the copy fills, so the kept samples are
+/// always every `stride`-th one, whatever the length turns out to be.
+#[derive(Debug, Clone)]
+pub struct Surveyor {
+    limits: StreamLimits,
+    n: usize,
+    lo: f64,
+    hi: f64,
+    thin: Vec<f64>,
+    thin_stride: usize,
+    pairs: Vec<(f64, f64)>,
+    pair_stride: usize,
+    /// Next sample index the thinned copy and the pairs take.
+    next_thin: usize,
+    next_pair: usize,
+    last: Option<f64>,
+}
+
+impl Surveyor {
+    pub fn new(limits: StreamLimits) -> Self {
+        Surveyor {
+            limits,
+            n: 0,
+            lo: f64::INFINITY,
+            hi: f64::NEG_INFINITY,
+            thin: Vec::new(),
+            thin_stride: 1,
+            pairs: Vec::new(),
+            pair_stride: 1,
+            next_thin: 0,
+            next_pair: 1,
+            last: None,
+        }
+    }
+
+    /// Takes the next block of voltage samples.
+    pub fn push(&mut self, block: &[f64]) {
+        let base = self.n;
+        let end = base + block.len();
+        for &x in block {
+            if x.is_finite() {
+                self.lo = self.lo.min(x);
+                self.hi = self.hi.max(x);
+            }
+        }
+        while self.next_thin < end {
+            if self.thin.len() >= self.limits.thin_samples.max(2) {
+                self.thin = self.thin.iter().copied().step_by(2).collect();
+                self.thin_stride *= 2;
+                self.next_thin = self.next_thin.next_multiple_of(self.thin_stride);
+                continue;
+            }
+            self.thin.push(block[self.next_thin - base]);
+            self.next_thin += self.thin_stride;
+        }
+        while self.next_pair < end {
+            if self.pairs.len() >= self.limits.pairs.max(16) {
+                // Pair k sits at position k / stride - 1 (pairs start at sample 1), so the
+                // pairs of the doubled stride are those at the odd positions.
+                self.pairs = self.pairs.iter().copied().skip(1).step_by(2).collect();
+                self.pair_stride *= 2;
+                self.next_pair = self.next_pair.next_multiple_of(self.pair_stride);
+                continue;
+            }
+            let k = self.next_pair - base;
+            let prev = match k.checked_sub(1) {
+                Some(j) => block.get(j).copied(),
+                None => self.last,
+            };
+            if let (Some(a), Some(&b)) = (prev, block.get(k)) {
+                self.pairs.push((a, b));
+            }
+            self.next_pair += self.pair_stride;
+        }
+        self.last = block.last().copied().or(self.last);
+        self.n = end;
+    }
+
+    /// Samples taken so far.
+    pub fn len(&self) -> usize {
+        self.n
+    }
+
+    pub fn is_empty(&self) -> bool {
+        self.n == 0
+    }
+}
+
+/// The time base and digitiser range of a streamed record.
+#[derive(Debug, Clone, Copy)]
+pub struct StreamInfo {
+    pub dt_s: f64,
+    pub t0_s: f64,
+    pub adc: Option<AdcRange>,
+}
+
+/// One measured event window, as an [`Observer`] sees it.
+#[derive(Debug, Clone, Copy)]
+pub struct WindowView<'a> {
+    pub event: &'a Event,
+    /// Samples `[start, end)` of the window (absolute indices in `range`).
+    pub v: &'a [f64],
+    pub i: Option<&'a [f64]>,
+    pub range: (usize, usize),
+}
+
+/// Work done on the samples of the final pass, while they are at hand: plots, fits.
+pub trait Observer: Sync {
+    type Out: Send;
+    /// Every block of the final pass, in order.
+    fn block(&mut self, _v: &[f64]) {}
+    /// Each measured window (called in parallel on short windows).
+    fn window(&self, w: &WindowView) -> Self::Out;
+    /// The result of [`Observer::window`] for event `index`, in event order.
+    fn keep(&mut self, index: usize, out: Self::Out);
+    /// A pass starts again from the first sample: forget what was kept.
+    fn restart(&mut self);
+}
+
+/// An observer that does nothing.
+pub struct NoObserver;
+
+impl Observer for NoObserver {
+    type Out = ();
+    fn window(&self, _w: &WindowView) {}
+    fn keep(&mut self, _index: usize, _out: ()) {}
+    fn restart(&mut self) {}
+}
+
+/// Measures a record streamed from `src`, after `survey` saw it once. `stop` is polled
+/// between blocks: when it says so the measurement ends with [`MeasureError::Interrupted`].
+pub fn measure_stream<O: Observer>(
+    src: &mut dyn Replay,
+    survey: Surveyor,
+    info: StreamInfo,
+    opts: &MeasureOptions,
+    observer: &mut O,
+    stop: &dyn Fn() -> bool,
+) -> Result<CaptureMeasurement, MeasureError> {
+    let limits = survey.limits;
+    let n = survey.n;
+    check_length_and_interval(n, info.dt_s)?;
+    if survey.lo > survey.hi {
+        return Err(MeasureError::NoStates { spread_v: 0.0 });
+    }
+    let (lo, hi) = (survey.lo, survey.hi);
+    let pairs = survey.pairs;
+    let adc_step_v = info
+        .adc
+        .and_then(|a| a.step_v)
+        .or_else(|| levels::adc_step_of_diffs(pairs.iter().map(|(a, b)| b - a), hi - lo))
+        .unwrap_or(0.0);
+    let rough_sigma = levels::noise_sigma_of_pairs(pairs.iter().copied()).unwrap_or(0.0);
+    let sv = Survey::new(lo, hi, adc_step_v, rough_sigma, info.dt_s, opts);
+    let mut warnings = Vec::new();
+    let mut chosen = {
+        let thin = survey.thin;
+        choose_levels(&thin, survey.thin_stride, &sv, opts, &mut warnings)?
+    };
+    let trace = Trace {
+        v: &[],
+        i: None,
+        dt_s: info.dt_s,
+        t0_s: info.t0_s,
+        adc: info.adc,
+    };
+    // The window limit in force: the user's, or the memory bound when that is shorter.
+    let window_limit = match sv.max_samples {
+        Some(m) if m <= limits.window_samples => m,
+        _ => limits.window_samples,
+    };
+    let mut pass = 0;
+    loop {
+        let (v_on, v_off) = (chosen.v_on, chosen.v_off);
+        let step = (v_off - v_on).abs();
+        let sigma = levels::noise_sigma_of_pairs(
+            pairs
+                .iter()
+                .copied()
+                .filter(|&(a, b)| near_on(a, b, v_on, step)),
+        )
+        .unwrap_or(rough_sigma);
+        let hysteresis_f = hysteresis_of(sigma, adc_step_v, step);
+        let dwell = match sv.dwell_samples {
+            Some(d) => d,
+            None => {
+                let mut runs = events::LowRuns::new(v_on, v_off, hysteresis_f);
+                run_pass(src, stop, &mut |v, _| runs.push(v))?;
+                events::derive_dwell(&runs.finish())
+            }
+        };
+        let params = events::EdgeParams {
+            v_on,
+            v_off,
+            hysteresis_f,
+            dwell_samples: dwell,
+        };
+        let cx = sv.context(&[], None, &trace, &chosen, sigma, opts);
+        observer.restart();
+        let scan = Scan {
+            cx,
+            params,
+            n,
+            window_limit,
+            user_limit: sv.max_samples,
+            limits,
+            resolution_v: sv.resolution_v,
+        };
+        let out = scan.run(src, observer, stop)?;
+        if pass == 0 {
+            if let Some(refined) = cross_check(&out.found, &chosen, sigma, &sv, &mut warnings) {
+                chosen = refined;
+                pass += 1;
+                continue;
+            }
+        }
+        if out.memory_cuts > 0 {
+            warnings.push(format!(
+                "{} event window(s) longer than {} samples were cut there to keep memory bounded; figures past the cut (settling) are missing for them (give --max-window to choose the cut)",
+                out.memory_cuts, limits.window_samples
+            ));
+        }
+        return Ok(conclude(
+            out.found,
+            out.windows,
+            &chosen,
+            out.longest_runs,
+            warnings,
+            opts,
+        ));
+    }
+}
+
+/// Runs one pass over `src`, polling `stop` between blocks.
+#[allow(clippy::type_complexity)]
+fn run_pass(
+    src: &mut dyn Replay,
+    stop: &dyn Fn() -> bool,
+    each: &mut dyn FnMut(&[f64], Option<&[f64]>),
+) -> Result<(), MeasureError> {
+    let mut stopped = false;
+    let done = src
+        .replay(&mut |v, i| {
+            if stop() {
+                stopped = true;
+                return false;
+            }
+            each(v, i);
+            true
+        })
+        .map_err(MeasureError::Read)?;
+    if stopped || !done {
+        return Err(MeasureError::Interrupted);
+    }
+    Ok(())
+}
+
+/// Step 3 of the module notes: one pass finding and measuring the events.
+struct Scan<'a> {
+    cx: event::Context<'a>,
+    params: events::EdgeParams,
+    n: usize,
+    /// Longest window kept, edge to end, in samples.
+    window_limit: usize,
+    /// The user's `--max-window`, in samples.
+    user_limit: Option<usize>,
+    limits: StreamLimits,
+    resolution_v: f64,
+}
+
+/// What one scan pass found.
+struct ScanOut {
+    found: Found,
+    windows: Vec<(usize, usize)>,
+    longest_runs: [usize; 2],
+    /// Windows cut by the memory bound rather than by the user's limit.
+    memory_cuts: usize,
+}
+
+/// Samples of a stretch of the record: `v[k]` is absolute sample `first + k`.
+#[derive(Debug, Default)]
+struct Stretch {
+    first: usize,
+    v: Vec<f64>,
+    i: Option<Vec<f64>>,
+}
+
+impl Stretch {
+    fn end(&self) -> usize {
+        self.first + self.v.len()
+    }
+
+    fn push(&mut self, v: &[f64], i: Option<&[f64]>) {
+        // Grown by a quarter at a time, not doubled: a long window's slack stays small.
+        let grow = |all: &mut Vec<f64>, more: usize| {
+            if all.capacity() < all.len() + more {
+                all.reserve_exact(more.max(all.len() / 4));
+            }
+        };
+        grow(&mut self.v, v.len());
+        if let Some(all) = self.i.as_mut() {
+            grow(all, v.len());
+        }
+        self.v.extend_from_slice(v);
+        match (self.i.as_mut(), i) {
+            (Some(all), Some(i)) => all.extend_from_slice(i),
+            (None, Some(i)) if self.v.len() == v.len() => self.i = Some(i.to_vec()),
+            _ => self.i = None,
+        }
+    }
+
+    /// Keeps only the samples from absolute index `from` on.
+    fn drop_before(&mut self, from: usize) {
+        let k = from.saturating_sub(self.first).min(self.v.len());
+        self.v.drain(..k);
+        if let Some(i) = self.i.as_mut() {
+            i.drain(..k.min(i.len()));
+        }
+        self.first += k;
+    }
+
+    /// Drops the samples from absolute index `to` on.
+    fn truncate_at(&mut self, to: usize) {
+        let k = to.saturating_sub(self.first);
+        self.v.truncate(k);
+        if let Some(i) = self.i.as_mut() {
+            i.truncate(k);
+        }
+    }
+
+    /// A copy of `[from, to)` (cut to what is held).
+    fn copy(&self, from: usize, to: usize) -> Stretch {
+        let a = from.saturating_sub(self.first).min(self.v.len());
+        let b = to.saturating_sub(self.first).clamp(a, self.v.len());
+        Stretch {
+            first: self.first + a,
+            v: self.v[a..b].to_vec(),
+            i: self
+                .i
+                .as_ref()
+                .and_then(|i| i.get(a..b))
+                .map(<[f64]>::to_vec),
+        }
+    }
+}
+
+/// An event window waiting for the turn-on that ends it.
+struct OpenWindow {
+    edge: usize,
+    /// Samples before the edge the window may start at (half the on run, at most the
+    /// most any window's pre-edge stretch can be).
+    pre_max: usize,
+    samples: Stretch,
+}
+
+/// A window whose end is known, with its samples (and the one after its end, if any).
+struct ClosedWindow {
+    index: usize,
+    start: usize,
+    end: usize,
+    edge: usize,
+    cut: bool,
+    closed_by_turn_on: bool,
+    samples: Stretch,
+}
+
+/// Longest stretch held within a band around a level, fed block by block (as
+/// [`levels::longest_run_near`]).
+#[derive(Debug, Clone, Copy)]
+struct RunNear {
+    level_v: f64,
+    half_width_v: f64,
+    run: usize,
+    best: usize,
+}
+
+impl RunNear {
+    fn push(&mut self, v: &[f64]) {
+        for &x in v {
+            if (x - self.level_v).abs() <= self.half_width_v {
+                self.run += 1;
+                self.best = self.best.max(self.run);
+            } else {
+                self.run = 0;
+            }
+        }
+    }
+}
+
+impl Scan<'_> {
+    /// Samples before an edge any window can start at: the pre-edge stretch is at most a
+    /// tenth of the window after the edge, and at least 16 samples (see
+    /// [`events::event_windows`]).
+    fn history(&self) -> usize {
+        (self.window_limit / 10).max(16)
+    }
+
+    fn run<O: Observer>(
+        &self,
+        src: &mut dyn Replay,
+        observer: &mut O,
+        stop: &dyn Fn() -> bool,
+    ) -> Result<ScanOut, MeasureError> {
+        let mut det = events::EdgeDetector::new(self.params);
+        let mut marks = Vec::new();
+        let mut recent = Stretch::default();
+        let mut open: Option<OpenWindow> = None;
+        let mut last_on: Option<usize> = None;
+        let mut batch: Vec<ClosedWindow> = Vec::new();
+        let mut batch_samples = 0usize;
+        let mut found = Found::default();
+        let mut windows = Vec::new();
+        let mut memory_cuts = 0usize;
+        let mut index = 0usize;
+        let half_width = 2.0 * self.resolution_v;
+        let mut runs = [self.cx.v_on, self.cx.v_off].map(|level_v| RunNear {
+            level_v,
+            half_width_v: half_width,
+            run: 0,
+            best: 0,
+        });
+        // History kept beyond what the next edge can ask for: the edge is reported once
+        // the signal has risen past the hysteresis band, a little after the crossing.
+        let keep = self.history() + (1 << 16);
+
+        let mut each = |v: &[f64], i: Option<&[f64]>| {
+            observer.block(v);
+            for r in &mut runs {
+                r.push(v);
+            }
+            recent.push(v, i);
+            let here = recent.end();
+            if let Some(w) = open.as_mut() {
+                let cap_end = w.edge + self.window_limit + 1;
+                let from = w.samples.end();
+                if from < cap_end {
+                    let part = recent.copy(from, cap_end.min(here));
+                    w.samples.push(&part.v, part.i.as_deref());
+                }
+            }
+            marks.clear();
+            det.push(v, &mut marks);
+            for &m in &marks {
+                match m {
+                    events::Mark::TurnOn { index: t } => {
+                        if let Some(w) = open.take_if(|w| t > w.edge) {
+                            let closed = self.close(w, index, Some(t), here);
+                            index += 1;
+                            memory_cuts += usize::from(self.cut_by_memory(&closed, t));
+                            batch_samples += closed.samples.v.len();
+                            batch.push(closed);
+                        }
+                        last_on = Some(t);
+                    }
+                    events::Mark::Edge { index: e } => {
+                        if let Some(w) = open.take() {
+                            // Not expected (an edge needs a turn-on first); the earlier
+                            // window then ends where this one starts.
+                            let closed = self.close(w, index, Some(e), here);
+                            index += 1;
+                            batch_samples += closed.samples.v.len();
+                            batch.push(closed);
+                        }
+                        let prev_on = last_on.filter(|&t| t <= e).unwrap_or(0);
+                        let pre_max = (e.saturating_sub(prev_on) / 2).min(self.history());
+                        let from = e.saturating_sub(pre_max);
+                        let cap_end = e + self.window_limit + 1;
+                        open = Some(OpenWindow {
+                            edge: e,
+                            pre_max,
+                            samples: recent.copy(from, cap_end.min(here)),
+                        });
+                    }
+                }
+            }
+            if recent.v.len() > 2 * keep {
+                recent.drop_before(here - keep);
+            }
+            if batch_samples >= self.limits.batch_samples {
+                let out = self.measure_batch(std::mem::take(&mut batch), &*observer);
+                for (closed, (ev, local, o)) in out {
+                    windows.push((closed.0, closed.1));
+                    observer.keep(ev.index, o);
+                    found.add(ev, local);
+                }
+                batch_samples = 0;
+            }
+        };
+        run_pass(src, stop, &mut each)?;
+        if let Some(w) = open.take() {
+            let closed = self.close(w, index, None, self.n);
+            memory_cuts += usize::from(self.cut_by_memory(&closed, self.n));
+            batch.push(closed);
+        }
+        for (closed, (ev, local, o)) in self.measure_batch(batch, &*observer) {
+            windows.push((closed.0, closed.1));
+            observer.keep(ev.index, o);
+            found.add(ev, local);
+        }
+        Ok(ScanOut {
+            found,
+            windows,
+            longest_runs: runs.map(|r| r.best),
+            memory_cuts,
+        })
+    }
+
+    /// The window of `w` ending at turn-on `t` (or the end of the record when `None`), as
+    /// [`events::event_windows`] would place it.
+    fn close(&self, w: OpenWindow, index: usize, t: Option<usize>, held_to: usize) -> ClosedWindow {
+        let e = w.edge;
+        let next_on = t.unwrap_or(self.n);
+        let limit = self.window_limit;
+        let (end, cut) = if e.saturating_add(limit) < next_on {
+            (e + limit, true)
+        } else {
+            (next_on, false)
+        };
+        let pre = w.pre_max.min(((end - e) / 10).max(16));
+        let start = e.saturating_sub(pre).max(w.samples.first);
+        let mut samples = w.samples;
+        samples.drop_before(start);
+        samples.truncate_at((end + 1).min(held_to));
+        ClosedWindow {
+            index,
+            start,
+            end: end.min(self.n),
+            edge: e,
+            cut,
+            closed_by_turn_on: !cut && end < self.n,
+            samples,
+        }
+    }
+
+    /// A window cut by the memory bound where the user's limit (if any) would not have.
+    fn cut_by_memory(&self, w: &ClosedWindow, next_on: usize) -> bool {
+        w.cut
+            && self
+                .user_limit
+                .is_none_or(|m| w.edge.saturating_add(m) >= next_on)
+    }
+
+    /// Measures closed windows (in parallel), in order: `((start, end), (event, local
+    /// levels, observer's result))`.
+    #[allow(clippy::type_complexity)]
+    fn measure_batch<O: Observer>(
+        &self,
+        batch: Vec<ClosedWindow>,
+        observer: &O,
+    ) -> Vec<((usize, usize), (Event, event::LocalLevels, O::Out))> {
+        use rayon::prelude::*;
+        batch
+            .par_iter()
+            .map(|w| {
+                let s = &w.samples;
+                let mut cx = self.cx;
+                cx.v = &s.v;
+                cx.i = s.i.as_deref();
+                cx.first_index = s.first;
+                let rel = event::Window {
+                    index: w.index,
+                    start: w.start - s.first,
+                    end: w.end - s.first,
+                    edge: w.edge - s.first,
+                    cut: w.cut,
+                    closed_by_turn_on: w.closed_by_turn_on,
+                };
+                let (ev, local) = event::measure_event(&cx, &rel);
+                let len = (w.end - w.start).min(s.v.len());
+                let view = WindowView {
+                    event: &ev,
+                    v: &s.v[..len],
+                    i: s.i.as_deref().map(|i| &i[..len.min(i.len())]),
+                    range: (w.start, w.end),
+                };
+                let o = observer.window(&view);
+                ((w.start, w.end), (ev, local, o))
+            })
+            .collect()
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::measure::measure_trace;
+
+    /// Three turn-off events of an RLC ring (invented shape): on at 0.2 V for 300 samples,
+    /// then `24 + 60 exp(-x/40) sin(2 pi x / 25)` volts for 900 samples, with a little
+    /// deterministic noise.
+    fn record() -> Vec<f64> {
+        let mut v = Vec::new();
+        let mut seed = 12345u64;
+        let mut noise = || {
+            seed = seed
+                .wrapping_mul(6364136223846793005)
+                .wrapping_add(1442695040888963407);
+            ((seed >> 33) as f64 / (1u64 << 31) as f64 - 0.5) * 0.2
+        };
+        for _ in 0..3 {
+            for _ in 0..300 {
+                v.push(0.2 + noise());
+            }
+            for k in 0..900 {
+                let x = k as f64;
+                v.push(
+                    24.0 + 60.0 * (-x / 40.0).exp() * (2.0 * std::f64::consts::PI * x / 25.0).sin()
+                        + noise(),
+                );
+            }
+        }
+        v
+    }
+
+    fn streamed(v: &[f64], block: usize, limits: StreamLimits) -> CaptureMeasurement {
+        let mut s = Surveyor::new(limits);
+        for b in v.chunks(block) {
+            s.push(b);
+        }
+        let mut src = SliceReplay { v, i: None, block };
+        let info = StreamInfo {
+            dt_s: 1e-6,
+            t0_s: 0.0,
+            adc: None,
+        };
+        measure_stream(
+            &mut src,
+            s,
+            info,
+            &MeasureOptions::default(),
+            &mut NoObserver,
+            &|| false,
+        )
+        .expect("measurable")
+    }
+
+    #[test]
+    fn streaming_a_short_record_gives_what_the_whole_record_gives() {
+        let v = record();
+        let trace = Trace {
+            v: &v,
+            i: None,
+            dt_s: 1e-6,
+            t0_s: 0.0,
+            adc: None,
+        };
+        let whole = measure_trace(&trace, &MeasureOptions::default()).unwrap();
+        assert_eq!(whole.events.len(), 3);
+        for block in [1, 37, 4096] {
+            let s = streamed(&v, block, StreamLimits::default());
+            // Equal but for the last bits of times interpolated between samples (a window's
+            // crossings are found from its own first sample, then offset).
+            assert_same_events(&s.events, &whole.events);
+            assert_eq!(s.windows, whole.windows);
+            assert_eq!(s.warnings, whole.warnings);
+        }
+    }
+
+    fn assert_same_events(a: &[Event], b: &[Event]) {
+        assert_eq!(a.len(), b.len());
+        for (x, y) in a.iter().zip(b) {
+            let (x, y) = (
+                serde_json::to_value(x).unwrap(),
+                serde_json::to_value(y).unwrap(),
+            );
+            for (k, vx) in x.as_object().unwrap() {
+                let vy = &y[k];
+                match (vx.as_f64(), vy.as_f64()) {
+                    (Some(p), Some(q)) => {
+                        assert!(
+                            (p - q).abs() <= 1e-12 * p.abs().max(q.abs()),
+                            "{k}: {p} {q}"
+                        )
+                    }
+                    _ => assert_eq!(vx, vy, "{k}"),
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn a_thinned_survey_finds_the_same_events() {
+        let v = record();
+        let trace = Trace {
+            v: &v,
+            i: None,
+            dt_s: 1e-6,
+            t0_s: 0.0,
+            adc: None,
+        };
+        let whole = measure_trace(&trace, &MeasureOptions::default()).unwrap();
+        let limits = StreamLimits {
+            thin_samples: 256,
+            pairs: 512,
+            ..StreamLimits::default()
+        };
+        let s = streamed(&v, 100, limits);
+        assert_eq!(s.events.len(), whole.events.len());
+        for (a, b) in s.events.iter().zip(&whole.events) {
+            // Levels from a thinned copy and a quarter of the pairs are refined on the
+            // events themselves, so the figures agree to a small part of the noise.
+            assert!((a.peak_v - b.peak_v).abs() < 1e-9, "{a:?} {b:?}");
+            assert!((a.v_off - b.v_off).abs() < 0.05, "{} {}", a.v_off, b.v_off);
+            // The edge's 50 % crossing moves with the levels by far less than a sample.
+            assert!((a.t_peak_s - b.t_peak_s).abs() < 0.01e-6);
+            assert!((a.t_edge_s - b.t_edge_s).abs() < 0.01e-6);
+        }
+    }
+
+    #[test]
+    fn the_surveyor_keeps_every_stride_th_sample() {
+        let v: Vec<f64> = (0..1000).map(f64::from).collect();
+        let mut s = Surveyor::new(StreamLimits {
+            thin_samples: 100,
+            pairs: 100,
+            ..StreamLimits::default()
+        });
+        for b in v.chunks(33) {
+            s.push(b);
+        }
+        assert_eq!(s.thin_stride, 16);
+        assert!(s
+            .thin
+            .iter()
+            .enumerate()
+            .all(|(k, &x)| x == (k * 16) as f64));
+        assert_eq!(s.pair_stride, 16);
+        assert!(s
+            .pairs
+            .iter()
+            .enumerate()
+            .all(|(k, &(a, b))| b == ((k + 1) * 16) as f64 && a == b - 1.0));
+        assert_eq!(s.len(), 1000);
+    }
+
+    #[test]
+    fn long_windows_are_cut_at_the_memory_bound_with_a_warning() {
+        let v = record();
+        let limits = StreamLimits {
+            window_samples: 400,
+            ..StreamLimits::default()
+        };
+        let s = streamed(&v, 64, limits);
+        assert_eq!(s.events.len(), 3);
+        assert!(s.events.iter().all(|e| e.truncated));
+        assert!(s
+            .warnings
+            .iter()
+            .any(|w| w.contains("cut there to keep memory")));
+    }
+
+    #[test]
+    fn a_stop_request_interrupts_the_measurement() {
+        let v = record();
+        let mut s = Surveyor::new(StreamLimits::default());
+        s.push(&v);
+        let mut src = SliceReplay {
+            v: &v,
+            i: None,
+            block: 64,
+        };
+        let info = StreamInfo {
+            dt_s: 1e-6,
+            t0_s: 0.0,
+            adc: None,
+        };
+        let r = measure_stream(
+            &mut src,
+            s,
+            info,
+            &MeasureOptions::default(),
+            &mut NoObserver,
+            &|| true,
+        );
+        assert_eq!(r.unwrap_err(), MeasureError::Interrupted);
+    }
+}

@@ -1,0 +1,449 @@
+//! Reading a capture whole when it is short, and measuring it as it streams when it is
+//! long, so memory never grows with the capture's length.
+//!
+//! The file is read block by block. Up to [`IN_MEMORY_SAMPLES`] samples per channel it is
+//! kept whole and measured as before. Beyond that only the switch-node and current channels
+//! go on: a [`Surveyor`] looks at every sample once, and the later passes of
+//! [`measure_stream`] read the samples again, from a spill file of plain f64 values for
+//! delimited text (parsing text twice would cost more than writing and reading the
+//! numbers), or from the file itself for WAV and raw dumps (decoding binary samples again
+//! is as cheap as reading a spill).
+
+use std::fs::File;
+use std::io::{BufWriter, Read, Seek, SeekFrom, Write};
+use std::path::Path;
+
+use super::{fit_plot, model_context, pick_channels, Settings, SKETCH_POINTS};
+use crate::capture::{self, AdcRange, Block, BlockReader, Capture, Channel, Format};
+use crate::document::CaptureDoc;
+use crate::measure::stream::{
+    measure_stream, BlockSink, Observer, Replay, StreamInfo, StreamLimits, Surveyor, WindowView,
+};
+use crate::measure::MeasureError;
+use crate::model::{self, EventFit};
+use crate::report::sketch::EnvelopeBuilder;
+use crate::report::{EventWave, FitPlot, TraceSketch};
+
+/// Longest capture (samples per channel) held whole in memory: 8 MiB per channel.
+pub const IN_MEMORY_SAMPLES: usize = 1 << 20;
+
+/// What [`load`] gives.
+pub enum Loaded {
+    /// The capture, short enough to hold.
+    Whole(Capture),
+    /// The capture was long and is already measured.
+    Measured(Box<CaptureDoc>, Option<TraceSketch>),
+}
+
+fn interrupted(path: &Path) -> String {
+    format!("{}: interrupted", path.display())
+}
+
+/// Reads `path`; a long capture is measured on the way (see the module notes).
+pub fn load(path: &Path, settings: &Settings, sketch: bool) -> Result<Loaded, String> {
+    let mut reader = capture::open_blocks(path, &settings.read).map_err(|e| e.to_string())?;
+    let mut channels: Vec<Vec<f64>> = vec![Vec::new(); reader.header().channels.len()];
+    let mut block = Block::default();
+    let mut held = 0usize;
+    loop {
+        if settings.stopped() {
+            return Err(interrupted(path));
+        }
+        if !reader
+            .next_block_into(&mut block)
+            .map_err(|e| e.to_string())?
+        {
+            break;
+        }
+        held += block.len();
+        for (all, part) in channels.iter_mut().zip(&block.channels) {
+            all.extend_from_slice(part);
+        }
+        if held > settings.stream_above.unwrap_or(IN_MEMORY_SAMPLES) {
+            let (doc, sk) = measure_streaming(path, reader, channels, settings, sketch)?;
+            return Ok(Loaded::Measured(Box::new(doc), sk));
+        }
+    }
+    let mut cap = reader.finish();
+    for (ch, samples) in cap.channels.iter_mut().zip(channels) {
+        ch.samples = samples;
+    }
+    if cap.n_samples() == 0 {
+        return Err(format!(
+            "{}: no samples; expected at least one sample per channel",
+            path.display()
+        ));
+    }
+    Ok(Loaded::Whole(cap))
+}
+
+/// The switch-node and current channels of one block, picked as for a whole capture.
+fn pick_block(
+    header: &Capture,
+    channels: Vec<Vec<f64>>,
+    settings: &Settings,
+) -> Result<(Channel, Option<Channel>), String> {
+    let mut cap = Capture {
+        source: header.source.clone(),
+        format: header.format,
+        sample_interval_s: header.sample_interval_s,
+        t0_s: header.t0_s,
+        channels: header.channels.clone(),
+        metadata: Vec::new(),
+        notes: Vec::new(),
+        warnings: Vec::new(),
+    };
+    for (ch, samples) in cap.channels.iter_mut().zip(channels) {
+        ch.samples = samples;
+    }
+    pick_channels(&mut cap, settings)
+}
+
+/// Plain little-endian f64 values written to an unnamed temporary file and read back.
+struct Spill {
+    file: BufWriter<File>,
+}
+
+impl Spill {
+    fn new(path: &Path) -> Result<Spill, String> {
+        let file = tempfile::tempfile().map_err(|e| {
+            format!(
+                "{}: the capture is long and is measured from a temporary copy of its samples, which could not be created: {e}",
+                path.display()
+            )
+        })?;
+        Ok(Spill {
+            file: BufWriter::with_capacity(1 << 20, file),
+        })
+    }
+
+    fn write(&mut self, v: &[f64]) -> std::io::Result<()> {
+        let mut bytes = Vec::with_capacity(v.len() * 8);
+        for x in v {
+            bytes.extend_from_slice(&x.to_le_bytes());
+        }
+        self.file.write_all(&bytes)
+    }
+
+    fn finish(self) -> std::io::Result<File> {
+        self.file.into_inner().map_err(|e| e.into_error())
+    }
+}
+
+/// Where the later passes read the samples from.
+enum Source<'a> {
+    /// Spill files of the voltage and (if any) current samples.
+    Spilled {
+        path: &'a Path,
+        v: File,
+        i: Option<File>,
+    },
+    /// The capture file itself, opened again for each pass.
+    Reopened {
+        path: &'a Path,
+        header: &'a Capture,
+        settings: &'a Settings,
+    },
+}
+
+impl Replay for Source<'_> {
+    fn replay(&mut self, each: &mut BlockSink) -> Result<bool, String> {
+        match self {
+            Source::Spilled { path, v, i } => {
+                const BLOCK: usize = 1 << 16;
+                let fail = |e: std::io::Error| {
+                    format!(
+                        "{}: reading the temporary copy of the samples: {e}",
+                        path.display()
+                    )
+                };
+                v.seek(SeekFrom::Start(0)).map_err(fail)?;
+                if let Some(f) = i.as_mut() {
+                    f.seek(SeekFrom::Start(0)).map_err(fail)?;
+                }
+                let mut bytes = vec![0u8; BLOCK * 8];
+                let mut vb = Vec::with_capacity(BLOCK);
+                let mut ib = Vec::with_capacity(BLOCK);
+                loop {
+                    let n = read_values(v, &mut bytes, &mut vb).map_err(fail)?;
+                    if n == 0 {
+                        return Ok(true);
+                    }
+                    let cur = match i.as_mut() {
+                        Some(f) => {
+                            read_values(f, &mut bytes[..n * 8], &mut ib).map_err(fail)?;
+                            (ib.len() == n).then_some(ib.as_slice())
+                        }
+                        None => None,
+                    };
+                    if !each(&vb, cur) {
+                        return Ok(false);
+                    }
+                }
+            }
+            Source::Reopened {
+                path,
+                header,
+                settings,
+            } => {
+                let mut reader =
+                    capture::open_blocks(path, &settings.read).map_err(|e| e.to_string())?;
+                let mut block = Block::default();
+                while reader
+                    .next_block_into(&mut block)
+                    .map_err(|e| e.to_string())?
+                {
+                    let channels = std::mem::take(&mut block.channels);
+                    let (sig, cur) = pick_block(header, channels, settings)?;
+                    if !each(&sig.samples, cur.as_ref().map(|c| c.samples.as_slice())) {
+                        return Ok(false);
+                    }
+                }
+                Ok(true)
+            }
+        }
+    }
+}
+
+/// Fills `out` with up to `bytes.len() / 8` values read from `f`; returns how many.
+fn read_values(f: &mut File, bytes: &mut [u8], out: &mut Vec<f64>) -> std::io::Result<usize> {
+    let mut got = 0;
+    while got < bytes.len() {
+        match f.read(&mut bytes[got..])? {
+            0 => break,
+            k => got += k,
+        }
+    }
+    out.clear();
+    out.extend(
+        bytes[..got - got % 8]
+            .chunks_exact(8)
+            .map(|c| f64::from_le_bytes([c[0], c[1], c[2], c[3], c[4], c[5], c[6], c[7]])),
+    );
+    Ok(out.len())
+}
+
+/// Fits and plots made while the final pass has each window at hand.
+struct FileWork<'a> {
+    file: String,
+    settings: &'a Settings,
+    adc: Option<AdcRange>,
+    dt_s: f64,
+    t0_s: f64,
+    sketch: bool,
+    envelope: Option<EnvelopeBuilder>,
+    n: usize,
+    fits: Vec<Option<EventFit>>,
+    waves: Vec<EventWave>,
+    /// Index, switch stress and fit plot of the worst fitted event so far.
+    worst: Option<(usize, f64, FitPlot)>,
+}
+
+/// What one window gives: its fit, the event's stress with the fit applied, its wave and
+/// fit plot for the report.
+type WindowWork = (Option<EventFit>, f64, Option<EventWave>, Option<FitPlot>);
+
+impl Observer for FileWork<'_> {
+    type Out = WindowWork;
+
+    fn block(&mut self, v: &[f64]) {
+        if let Some(e) = self.envelope.as_mut() {
+            e.push(v);
+        }
+    }
+
+    fn window(&self, w: &WindowView) -> WindowWork {
+        let ctx = model_context(w.event.polarity, w.event.v_on, self.adc, self.settings);
+        let t_start_s = self.t0_s + w.range.0 as f64 * self.dt_s;
+        let fit = (!self.settings.no_fit)
+            .then(|| model::fit_event(w.v, self.dt_s, t_start_s, w.event, &ctx))
+            .flatten();
+        let mut event = w.event.clone();
+        if let Some(f) = &fit {
+            model::apply_fit(&mut event, f, &ctx);
+        }
+        let wave = self
+            .sketch
+            .then(|| EventWave::of_window(&event, w.v, w.range.0, w.range, self.dt_s, self.t0_s));
+        let plot = match (&fit, self.sketch) {
+            (Some(f), true) => Some(fit_plot(
+                &self.file, &event, w.range, f, w.v, w.range.0, self.adc, self.dt_s, self.t0_s,
+            )),
+            _ => None,
+        };
+        (fit, event.switch_stress_v, wave, plot)
+    }
+
+    fn keep(&mut self, index: usize, (fit, stress, wave, plot): WindowWork) {
+        if self.fits.len() <= index {
+            self.fits.resize(index + 1, None);
+        }
+        if fit.is_some() && self.worst.as_ref().is_none_or(|w| stress > w.1) {
+            self.worst = plot.map(|p| (index, stress, p));
+        }
+        self.fits[index] = fit;
+        self.waves.extend(wave);
+    }
+
+    fn restart(&mut self) {
+        self.envelope = self
+            .sketch
+            .then(|| EnvelopeBuilder::new(self.n, SKETCH_POINTS, self.dt_s, self.t0_s));
+        self.fits.clear();
+        self.waves.clear();
+        self.worst = None;
+    }
+}
+
+/// Goes on reading a long capture (whose first blocks are `held`) while surveying it, then
+/// measures it in further passes.
+fn measure_streaming(
+    path: &Path,
+    mut reader: BlockReader,
+    held: Vec<Vec<f64>>,
+    settings: &Settings,
+    sketch: bool,
+) -> Result<(CaptureDoc, Option<TraceSketch>), String> {
+    let header = reader.header().clone();
+    let spill = header.format == Format::Csv;
+    let mut survey = Surveyor::new(StreamLimits::default());
+    let (mut spill_v, mut spill_i) = (None, None);
+    let io = |e: std::io::Error| {
+        format!(
+            "{}: writing the temporary copy of the samples: {e}",
+            path.display()
+        )
+    };
+    let (signal, current) = pick_block(&header, held, settings)?;
+    let signal_name = signal.name.clone();
+    let current_name = current.as_ref().map(|c| c.name.clone());
+    if spill {
+        spill_v = Some(Spill::new(path)?);
+        if current.is_some() {
+            spill_i = Some(Spill::new(path)?);
+        }
+    }
+    let mut feed = |sig: &Channel, cur: Option<&Channel>| -> Result<(), String> {
+        survey.push(&sig.samples);
+        if let Some(s) = spill_v.as_mut() {
+            s.write(&sig.samples).map_err(io)?;
+        }
+        if let (Some(s), Some(c)) = (spill_i.as_mut(), cur) {
+            s.write(&c.samples).map_err(io)?;
+        }
+        Ok(())
+    };
+    feed(&signal, current.as_ref())?;
+    drop((signal, current));
+    let mut block = Block::default();
+    loop {
+        if settings.stopped() {
+            return Err(interrupted(path));
+        }
+        if !reader
+            .next_block_into(&mut block)
+            .map_err(|e| e.to_string())?
+        {
+            break;
+        }
+        let channels = std::mem::take(&mut block.channels);
+        let (sig, cur) = pick_block(&header, channels, settings)?;
+        feed(&sig, cur.as_ref())?;
+    }
+    let finished = reader.finish();
+    let n = survey.len();
+    // The digitiser range seen over the whole record (delimited text learns it by reading).
+    let adc = finished
+        .channels
+        .iter()
+        .find(|c| c.name == signal_name)
+        .and_then(|c| c.adc);
+    let info = StreamInfo {
+        dt_s: finished.sample_interval_s,
+        t0_s: finished.t0_s,
+        adc,
+    };
+    let mut source = match spill_v {
+        Some(s) => Source::Spilled {
+            path,
+            v: s.finish().map_err(io)?,
+            i: spill_i.map(Spill::finish).transpose().map_err(io)?,
+        },
+        None => Source::Reopened {
+            path,
+            header: &header,
+            settings,
+        },
+    };
+    let file = path.display().to_string();
+    let mut work = FileWork {
+        file: file.clone(),
+        settings,
+        adc,
+        dt_s: info.dt_s,
+        t0_s: info.t0_s,
+        sketch,
+        envelope: None,
+        n,
+        fits: Vec::new(),
+        waves: Vec::new(),
+        worst: None,
+    };
+    let mut m = measure_stream(
+        &mut source,
+        survey,
+        info,
+        &settings.measure,
+        &mut work,
+        &|| settings.stopped(),
+    )
+    .map_err(|e| match e {
+        MeasureError::Interrupted => interrupted(path),
+        MeasureError::Read(msg) => msg,
+        e => format!("{}: channel {signal_name}: {e}", path.display()),
+    })?;
+    for (event, fit) in m.events.iter_mut().zip(&work.fits) {
+        if let Some(f) = fit {
+            let ctx = model_context(event.polarity, event.v_on, adc, settings);
+            model::apply_fit(event, f, &ctx);
+        }
+    }
+    let mut warnings = finished.warnings.clone();
+    warnings.extend(m.warnings.iter().cloned());
+    let sketch = sketch.then(|| {
+        let envelope = work.envelope.take().map(EnvelopeBuilder::finish);
+        let mut sk = TraceSketch::assemble(
+            &file,
+            info.dt_s,
+            info.t0_s,
+            n,
+            envelope.unwrap_or_default(),
+            std::mem::take(&mut work.waves),
+            &m.events,
+        );
+        sk.label = settings.label.clone();
+        sk.settle_band_v = m
+            .events
+            .iter()
+            .filter_map(|e| e.settle_band_v)
+            .reduce(f64::max);
+        sk.fit = work.worst.take().map(|(_, _, p)| p);
+        sk
+    });
+    let doc = CaptureDoc {
+        file,
+        label: settings.label.clone(),
+        format: finished.format.to_string(),
+        sample_interval_s: info.dt_s,
+        n_samples: n,
+        t0_s: info.t0_s,
+        signal: signal_name,
+        current: current_name,
+        polarity: m.polarity,
+        v_on: m.v_on,
+        v_off: m.v_off,
+        warnings,
+        events: m.events,
+    };
+    Ok((doc, sketch))
+}
