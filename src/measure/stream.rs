@@ -11,13 +11,17 @@
 //!    copy, the noise and the ADC step from the pairs (the whole-record path also takes a
 //!    strided subset of the pairs, so for a record of up to `thin_samples` samples both
 //!    paths agree exactly).
-//! 2. One pass counts the on runs for the dwell (unless `--min-on-time` gives it).
+//! 2. The dwell (unless `--min-on-time` gives it) comes from the on runs of the thinned
+//!    copy, their lengths times the stride.
 //! 3. One pass feeds the edge detector and keeps only the samples of the open event window
 //!    (and a short history for the stretch before the next edge); each window is measured
 //!    as soon as the turn-on after it is seen. Windows longer than
 //!    [`StreamLimits::window_samples`] are cut there, and a warning says so.
 //! 4. When the local levels disagree with the histogram ones, steps 2 and 3 run again
 //!    with the local levels, as in `measure_trace`.
+//!
+//! So a record is read twice (three times when the levels are refined), whatever its
+//! length.
 //!
 //! Memory is the thinned copy, the pairs, one window and the batch of short windows being
 //! measured in parallel: bounded by the limits, whatever the record's length.
@@ -129,12 +133,23 @@ impl Surveyor {
     pub fn push(&mut self, block: &[f64]) {
         let base = self.n;
         let end = base + block.len();
-        for &x in block {
-            if x.is_finite() {
-                self.lo = self.lo.min(x);
-                self.hi = self.hi.max(x);
-            }
+        // `f64::min`/`max` skip NaN and vectorise; infinities are rare and are filtered out
+        // by a second look only when they show up.
+        let (mut lo, mut hi) = block
+            .iter()
+            .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &x| {
+                (a.min(x), b.max(x))
+            });
+        if lo == f64::NEG_INFINITY || hi == f64::INFINITY {
+            (lo, hi) = block
+                .iter()
+                .filter(|x| x.is_finite())
+                .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &x| {
+                    (a.min(x), b.max(x))
+                });
         }
+        self.lo = self.lo.min(lo);
+        self.hi = self.hi.max(hi);
         while self.next_thin < end {
             if self.thin.len() >= self.limits.thin_samples.max(2) {
                 self.thin = self.thin.iter().copied().step_by(2).collect();
@@ -245,10 +260,8 @@ pub fn measure_stream<O: Observer>(
     let rough_sigma = levels::noise_sigma_of_pairs(pairs.iter().copied()).unwrap_or(0.0);
     let sv = Survey::new(lo, hi, adc_step_v, rough_sigma, info.dt_s, opts);
     let mut warnings = Vec::new();
-    let mut chosen = {
-        let thin = survey.thin;
-        choose_levels(&thin, survey.thin_stride, &sv, opts, &mut warnings)?
-    };
+    let (thin, stride) = (survey.thin, survey.thin_stride);
+    let mut chosen = choose_levels(&thin, stride, &sv, opts, &mut warnings)?;
     let trace = Trace {
         v: &[],
         i: None,
@@ -273,14 +286,16 @@ pub fn measure_stream<O: Observer>(
         )
         .unwrap_or(rough_sigma);
         let hysteresis_f = hysteresis_of(sigma, adc_step_v, step);
-        let dwell = match sv.dwell_samples {
-            Some(d) => d,
-            None => {
-                let mut runs = events::LowRuns::new(v_on, v_off, hysteresis_f);
-                run_pass(src, stop, &mut |v, _| runs.push(v))?;
-                events::derive_dwell(&runs.finish())
-            }
-        };
+        // The dwell only has to fall in the wide gap between ring dips and on states
+        // (ratio DWELL_GAP_RATIO or more), which run lengths counted on the thinned copy
+        // locate to a stride either way; with a stride of 1 they are the exact ones.
+        let dwell = sv.dwell_samples.unwrap_or_else(|| {
+            let runs: Vec<usize> = events::low_run_lengths(&thin, v_on, v_off, hysteresis_f)
+                .into_iter()
+                .map(|r| r * stride)
+                .collect();
+            events::derive_dwell(&runs)
+        });
         let params = events::EdgeParams {
             v_on,
             v_off,
@@ -308,8 +323,10 @@ pub fn measure_stream<O: Observer>(
         }
         if out.memory_cuts > 0 {
             warnings.push(format!(
-                "{} event window(s) longer than {} samples were cut there to keep memory bounded; figures past the cut (settling) are missing for them (give --max-window to choose the cut)",
-                out.memory_cuts, limits.window_samples
+                "{} event window(s) longer than {} samples ({:.3} s) were cut there to keep memory bounded and are marked truncated: settling is judged on the part kept (give --max-window to choose the cut)",
+                out.memory_cuts,
+                limits.window_samples,
+                limits.window_samples as f64 * info.dt_s
             ));
         }
         return Ok(conclude(
@@ -420,19 +437,12 @@ impl Stretch {
         }
     }
 
-    /// A copy of `[from, to)` (cut to what is held).
-    fn copy(&self, from: usize, to: usize) -> Stretch {
-        let a = from.saturating_sub(self.first).min(self.v.len());
-        let b = to.saturating_sub(self.first).clamp(a, self.v.len());
-        Stretch {
-            first: self.first + a,
-            v: self.v[a..b].to_vec(),
-            i: self
-                .i
-                .as_ref()
-                .and_then(|i| i.get(a..b))
-                .map(<[f64]>::to_vec),
-        }
+    /// Appends `other`'s samples `[from, to)` (cut to what it holds).
+    fn extend_from(&mut self, other: &Stretch, from: usize, to: usize) {
+        let a = from.saturating_sub(other.first).min(other.v.len());
+        let b = to.saturating_sub(other.first).clamp(a, other.v.len());
+        let i = other.i.as_ref().and_then(|i| i.get(a..b));
+        self.push(&other.v[a..b], i);
     }
 }
 
@@ -526,8 +536,7 @@ impl Scan<'_> {
                 let cap_end = w.edge + self.window_limit + 1;
                 let from = w.samples.end();
                 if from < cap_end {
-                    let part = recent.copy(from, cap_end.min(here));
-                    w.samples.push(&part.v, part.i.as_deref());
+                    w.samples.extend_from(&recent, from, cap_end.min(here));
                 }
             }
             marks.clear();
@@ -557,10 +566,15 @@ impl Scan<'_> {
                         let pre_max = (e.saturating_sub(prev_on) / 2).min(self.history());
                         let from = e.saturating_sub(pre_max);
                         let cap_end = e + self.window_limit + 1;
+                        let mut samples = Stretch {
+                            first: from.max(recent.first),
+                            ..Stretch::default()
+                        };
+                        samples.extend_from(&recent, from, cap_end.min(here));
                         open = Some(OpenWindow {
                             edge: e,
                             pre_max,
-                            samples: recent.copy(from, cap_end.min(here)),
+                            samples,
                         });
                     }
                 }

@@ -10,7 +10,7 @@
 //! is as cheap as reading a spill).
 
 use std::fs::File;
-use std::io::{BufWriter, Read, Seek, SeekFrom, Write};
+use std::io::{Read, Seek, SeekFrom, Write};
 use std::path::Path;
 
 use super::{fit_plot, model_context, pick_channels, Settings, SKETCH_POINTS};
@@ -101,7 +101,8 @@ fn pick_block(
 
 /// Plain little-endian f64 values written to an unnamed temporary file and read back.
 struct Spill {
-    file: BufWriter<File>,
+    file: File,
+    bytes: Vec<u8>,
 }
 
 impl Spill {
@@ -113,20 +114,20 @@ impl Spill {
             )
         })?;
         Ok(Spill {
-            file: BufWriter::with_capacity(1 << 20, file),
+            file,
+            bytes: Vec::new(),
         })
     }
 
+    /// Writes a block (blocks are long: no further buffering).
     fn write(&mut self, v: &[f64]) -> std::io::Result<()> {
-        let mut bytes = Vec::with_capacity(v.len() * 8);
-        for x in v {
-            bytes.extend_from_slice(&x.to_le_bytes());
-        }
-        self.file.write_all(&bytes)
+        self.bytes.clear();
+        self.bytes.extend(v.iter().flat_map(|x| x.to_le_bytes()));
+        self.file.write_all(&self.bytes)
     }
 
     fn finish(self) -> std::io::Result<File> {
-        self.file.into_inner().map_err(|e| e.into_error())
+        Ok(self.file)
     }
 }
 
