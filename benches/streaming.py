@@ -16,7 +16,8 @@ one run.
 
 The WAV holds the capture maker's scenario (a 24 V coil, series RLC ring after turn-off,
 body diode at -0.7 V, noise 0.4 V) as 16-bit codes over -50..500 V; the folder's captures
-hold one event each (on for 3500 samples, then the ring), with their own noise seeds.
+hold one event each (100 ns sampling, on for 2000 samples, then 0.8 ms of ring, sixteen
+decay time constants), with their own noise seeds.
 Invented demo data.
 """
 import argparse
@@ -86,12 +87,12 @@ def make_folder(py, folder, files):
 import numpy as np, os, sys
 sys.path.insert(0, {HERE!r})
 from streaming import ring
-dt = 20e-9
+dt = 100e-9
 os.makedirs({folder!r} + '.tmp', exist_ok=True)
 t = np.arange(10_000) * dt
 for k in range({files}):
     rng = np.random.default_rng(1000 + k)
-    v = ring(np, 3500, 10_000, dt, 0.04 * rng.uniform(0.8, 1.2), rng) + rng.normal(0, 0.4, 10_000)
+    v = ring(np, 2000, 10_000, dt, 0.04 * rng.uniform(0.8, 1.2), rng) + rng.normal(0, 0.4, 10_000)
     code = np.clip(np.round((v + 50.0) / 550.0 * 255), 0, 255)
     v = -50.0 + code * 550.0 / 255
     with open(os.path.join({folder!r} + '.tmp', f'shot-{{k:04d}}.csv'), 'w') as f:

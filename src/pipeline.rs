@@ -433,11 +433,14 @@ pub fn measure_inputs_sketched(
     let results: Vec<_> = files
         .par_iter()
         .map(|f| {
-            // Checked between files: a stop request lets the files under way finish.
+            // Checked between files; files under way stop at their next block.
             if settings.stopped() {
                 return None;
             }
             let r = measure_file(f, settings, sketch);
+            if r.is_err() && settings.stopped() {
+                return None;
+            }
             progress();
             Some((f, r))
         })
