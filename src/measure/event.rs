@@ -230,8 +230,8 @@ pub fn measure_event(cx: &Context, w: &Window) -> (Event, LocalLevels) {
         (Some(_), Some(x)) => (x.ceil() as usize).min(ae),
         _ => p,
     };
-    let ring_y: Vec<f64> = (ring_start..ae).map(|k| cx.y(k)).collect();
-    let after_ring = ring::analyse(&ring_y, cx.dt_s, cx.noise_band());
+    let ring_y = ys.get(ring_start.saturating_sub(e)..).unwrap_or(&[]);
+    let after_ring = ring::analyse(ring_y, cx.dt_s, cx.noise_band());
     // A fast ring on the clamp plateau (the clamp's own loop inductance with the node
     // capacitance) is looked for around the plateau level; the larger of the two rings is
     // the one reported.
@@ -293,8 +293,12 @@ pub fn measure_event(cx: &Context, w: &Window) -> (Event, LocalLevels) {
     } else {
         1
     };
-    let tail: Vec<f64> = (e..ae).map(|k| cx.y(k)).collect();
-    let tail_smooth = moving_average(&tail, settle_w);
+    let tail = &ys;
+    let tail_smooth = if settle_w == smooth_w {
+        sm
+    } else {
+        moving_average(tail, settle_w)
+    };
     let last_out = tail_smooth.iter().rposition(|y| y.abs() > band);
     let needed_in_band = settle_w.max(8);
     let (settle_time_s, settle_idx) = match last_out {

@@ -23,8 +23,8 @@
 //! So a record is read twice (three times when the levels are refined), whatever its
 //! length.
 //!
-//! Memory is the thinned copy, the pairs, one window and the batch of short windows being
-//! measured in parallel: bounded by the limits, whatever the record's length.
+//! Memory is the thinned copy, the pairs, the open window and the closed ones being
+//! measured on other threads: bounded by the limits, whatever the record's length.
 
 use super::{
     check_length_and_interval, choose_levels, conclude, cross_check, event, hysteresis_of, near_on,
@@ -42,7 +42,7 @@ pub struct StreamLimits {
     pub pairs: usize,
     /// Longest event window kept, edge to end.
     pub window_samples: usize,
-    /// Short windows are gathered up to this many samples and measured in parallel.
+    /// Most samples of closed windows being measured on other threads at once.
     pub batch_samples: usize,
 }
 
@@ -214,9 +214,10 @@ pub struct WindowView<'a> {
 /// Work done on the samples of the final pass, while they are at hand: plots, fits.
 pub trait Observer: Sync {
     type Out: Send;
-    /// Every block of the final pass, in order.
-    fn block(&mut self, _v: &[f64]) {}
-    /// Each measured window (called in parallel on short windows).
+    /// Every block of each pass, in order (from the reading thread, while windows are
+    /// being measured on others).
+    fn block(&self, _v: &[f64]) {}
+    /// Each measured window (called in parallel, from any thread).
     fn window(&self, w: &WindowView) -> Self::Out;
     /// The result of [`Observer::window`] for event `index`, in event order.
     fn keep(&mut self, index: usize, out: Self::Out);
@@ -508,10 +509,6 @@ impl Scan<'_> {
         let mut recent = Stretch::default();
         let mut open: Option<OpenWindow> = None;
         let mut last_on: Option<usize> = None;
-        let mut batch: Vec<ClosedWindow> = Vec::new();
-        let mut batch_samples = 0usize;
-        let mut found = Found::default();
-        let mut windows = Vec::new();
         let mut memory_cuts = 0usize;
         let mut index = 0usize;
         let half_width = 2.0 * self.resolution_v;
@@ -524,84 +521,107 @@ impl Scan<'_> {
         // History kept beyond what the next edge can ask for: the edge is reported once
         // the signal has risen past the hysteresis band, a little after the crossing.
         let keep = self.history() + (1 << 16);
+        let measured: std::sync::Mutex<Vec<Measured<O::Out>>> = Default::default();
+        let in_flight = std::sync::atomic::AtomicUsize::new(0);
+        let shared: &O = observer;
 
-        let mut each = |v: &[f64], i: Option<&[f64]>| {
-            observer.block(v);
-            for r in &mut runs {
-                r.push(v);
-            }
-            recent.push(v, i);
-            let here = recent.end();
-            if let Some(w) = open.as_mut() {
-                let cap_end = w.edge + self.window_limit + 1;
-                let from = w.samples.end();
-                if from < cap_end {
-                    w.samples.extend_from(&recent, from, cap_end.min(here));
+        // Closed windows are measured on the thread pool while this thread reads on; past
+        // the memory budget of windows in flight, a window is measured right here (never a
+        // blocking wait, which could stall a pool already busy with other files).
+        let scanned = rayon::in_place_scope(|scope| {
+            let dispatch = |closed: ClosedWindow| {
+                use std::sync::atomic::Ordering;
+                let size = closed.samples.v.len();
+                let (measured, in_flight) = (&measured, &in_flight);
+                let push = move |m: Measured<O::Out>| {
+                    measured.lock().unwrap_or_else(|p| p.into_inner()).push(m)
+                };
+                if in_flight.load(Ordering::Acquire) + size <= self.limits.batch_samples {
+                    in_flight.fetch_add(size, Ordering::AcqRel);
+                    scope.spawn(move |_| {
+                        push(self.measure_window(&closed, shared));
+                        in_flight.fetch_sub(size, Ordering::AcqRel);
+                    });
+                } else {
+                    push(self.measure_window(&closed, shared));
                 }
-            }
-            marks.clear();
-            det.push(v, &mut marks);
-            for &m in &marks {
-                match m {
-                    events::Mark::TurnOn { index: t } => {
-                        if let Some(w) = open.take_if(|w| t > w.edge) {
-                            let closed = self.close(w, index, Some(t), here);
-                            index += 1;
-                            memory_cuts += usize::from(self.cut_by_memory(&closed, t));
-                            batch_samples += closed.samples.v.len();
-                            batch.push(closed);
-                        }
-                        last_on = Some(t);
-                    }
-                    events::Mark::Edge { index: e } => {
-                        if let Some(w) = open.take() {
-                            // Not expected (an edge needs a turn-on first); the earlier
-                            // window then ends where this one starts.
-                            let closed = self.close(w, index, Some(e), here);
-                            index += 1;
-                            batch_samples += closed.samples.v.len();
-                            batch.push(closed);
-                        }
-                        let prev_on = last_on.filter(|&t| t <= e).unwrap_or(0);
-                        let pre_max = (e.saturating_sub(prev_on) / 2).min(self.history());
-                        let from = e.saturating_sub(pre_max);
-                        let cap_end = e + self.window_limit + 1;
-                        let mut samples = Stretch {
-                            first: from.max(recent.first),
-                            ..Stretch::default()
-                        };
-                        samples.extend_from(&recent, from, cap_end.min(here));
-                        open = Some(OpenWindow {
-                            edge: e,
-                            pre_max,
-                            samples,
-                        });
+            };
+            let mut each = |v: &[f64], i: Option<&[f64]>| {
+                shared.block(v);
+                for r in &mut runs {
+                    r.push(v);
+                }
+                recent.push(v, i);
+                let here = recent.end();
+                if let Some(w) = open.as_mut() {
+                    let cap_end = w.edge + self.window_limit + 1;
+                    let from = w.samples.end();
+                    if from < cap_end {
+                        w.samples.extend_from(&recent, from, cap_end.min(here));
                     }
                 }
-            }
-            if recent.v.len() > 2 * keep {
-                recent.drop_before(here - keep);
-            }
-            if batch_samples >= self.limits.batch_samples {
-                let out = self.measure_batch(std::mem::take(&mut batch), &*observer);
-                for (closed, (ev, local, o)) in out {
-                    windows.push((closed.0, closed.1));
-                    observer.keep(ev.index, o);
-                    found.add(ev, local);
+                marks.clear();
+                det.push(v, &mut marks);
+                for &m in &marks {
+                    match m {
+                        events::Mark::TurnOn { index: t } => {
+                            if let Some(w) = open.take_if(|w| t > w.edge) {
+                                let closed = self.close(w, index, Some(t), here);
+                                index += 1;
+                                memory_cuts += usize::from(self.cut_by_memory(&closed, t));
+                                dispatch(closed);
+                            }
+                            last_on = Some(t);
+                        }
+                        events::Mark::Edge { index: e } => {
+                            if let Some(w) = open.take() {
+                                // Not expected (an edge needs a turn-on first); the earlier
+                                // window then ends where this one starts.
+                                let closed = self.close(w, index, Some(e), here);
+                                index += 1;
+                                dispatch(closed);
+                            }
+                            let prev_on = last_on.filter(|&t| t <= e).unwrap_or(0);
+                            let pre_max = (e.saturating_sub(prev_on) / 2).min(self.history());
+                            let from = e.saturating_sub(pre_max);
+                            let cap_end = e + self.window_limit + 1;
+                            let mut samples = Stretch {
+                                first: from.max(recent.first),
+                                ..Stretch::default()
+                            };
+                            samples.extend_from(&recent, from, cap_end.min(here));
+                            open = Some(OpenWindow {
+                                edge: e,
+                                pre_max,
+                                samples,
+                            });
+                        }
+                    }
                 }
-                batch_samples = 0;
+                // Trimmed seldom, so moving the kept history costs little per sample.
+                if recent.v.len() > 8 * keep {
+                    recent.drop_before(here - keep);
+                }
+            };
+            let r = run_pass(src, stop, &mut each);
+            if r.is_ok() {
+                if let Some(w) = open.take() {
+                    let closed = self.close(w, index, None, self.n);
+                    memory_cuts += usize::from(self.cut_by_memory(&closed, self.n));
+                    dispatch(closed);
+                }
             }
-        };
-        run_pass(src, stop, &mut each)?;
-        if let Some(w) = open.take() {
-            let closed = self.close(w, index, None, self.n);
-            memory_cuts += usize::from(self.cut_by_memory(&closed, self.n));
-            batch.push(closed);
-        }
-        for (closed, (ev, local, o)) in self.measure_batch(batch, &*observer) {
-            windows.push((closed.0, closed.1));
-            observer.keep(ev.index, o);
-            found.add(ev, local);
+            r
+        });
+        scanned?;
+        let mut measured = measured.into_inner().unwrap_or_else(|p| p.into_inner());
+        measured.sort_by_key(|m| m.event.index);
+        let mut found = Found::default();
+        let mut windows = Vec::with_capacity(measured.len());
+        for m in measured {
+            windows.push(m.range);
+            observer.keep(m.event.index, m.out);
+            found.add(m.event, m.local);
         }
         Ok(ScanOut {
             found,
@@ -646,44 +666,45 @@ impl Scan<'_> {
                 .is_none_or(|m| w.edge.saturating_add(m) >= next_on)
     }
 
-    /// Measures closed windows (in parallel), in order: `((start, end), (event, local
-    /// levels, observer's result))`.
-    #[allow(clippy::type_complexity)]
-    fn measure_batch<O: Observer>(
-        &self,
-        batch: Vec<ClosedWindow>,
-        observer: &O,
-    ) -> Vec<((usize, usize), (Event, event::LocalLevels, O::Out))> {
-        use rayon::prelude::*;
-        batch
-            .par_iter()
-            .map(|w| {
-                let s = &w.samples;
-                let mut cx = self.cx;
-                cx.v = &s.v;
-                cx.i = s.i.as_deref();
-                cx.first_index = s.first;
-                let rel = event::Window {
-                    index: w.index,
-                    start: w.start - s.first,
-                    end: w.end - s.first,
-                    edge: w.edge - s.first,
-                    cut: w.cut,
-                    closed_by_turn_on: w.closed_by_turn_on,
-                };
-                let (ev, local) = event::measure_event(&cx, &rel);
-                let len = (w.end - w.start).min(s.v.len());
-                let view = WindowView {
-                    event: &ev,
-                    v: &s.v[..len],
-                    i: s.i.as_deref().map(|i| &i[..len.min(i.len())]),
-                    range: (w.start, w.end),
-                };
-                let o = observer.window(&view);
-                ((w.start, w.end), (ev, local, o))
-            })
-            .collect()
+    /// Measures one closed window and lets the observer work on it.
+    fn measure_window<O: Observer>(&self, w: &ClosedWindow, observer: &O) -> Measured<O::Out> {
+        let s = &w.samples;
+        let mut cx = self.cx;
+        cx.v = &s.v;
+        cx.i = s.i.as_deref();
+        cx.first_index = s.first;
+        let rel = event::Window {
+            index: w.index,
+            start: w.start - s.first,
+            end: w.end - s.first,
+            edge: w.edge - s.first,
+            cut: w.cut,
+            closed_by_turn_on: w.closed_by_turn_on,
+        };
+        let (event, local) = event::measure_event(&cx, &rel);
+        let len = (w.end - w.start).min(s.v.len());
+        let view = WindowView {
+            event: &event,
+            v: &s.v[..len],
+            i: s.i.as_deref().map(|i| &i[..len.min(i.len())]),
+            range: (w.start, w.end),
+        };
+        let out = observer.window(&view);
+        Measured {
+            range: (w.start, w.end),
+            event,
+            local,
+            out,
+        }
     }
+}
+
+/// One measured window: its sample range, event, local levels and the observer's result.
+struct Measured<T> {
+    range: (usize, usize),
+    event: Event,
+    local: event::LocalLevels,
+    out: T,
 }
 
 #[cfg(test)]

@@ -232,7 +232,7 @@ struct FileWork<'a> {
     dt_s: f64,
     t0_s: f64,
     sketch: bool,
-    envelope: Option<EnvelopeBuilder>,
+    envelope: std::sync::Mutex<Option<EnvelopeBuilder>>,
     n: usize,
     fits: Vec<Option<EventFit>>,
     waves: Vec<EventWave>,
@@ -247,8 +247,9 @@ type WindowWork = (Option<EventFit>, f64, Option<EventWave>, Option<FitPlot>);
 impl Observer for FileWork<'_> {
     type Out = WindowWork;
 
-    fn block(&mut self, v: &[f64]) {
-        if let Some(e) = self.envelope.as_mut() {
+    fn block(&self, v: &[f64]) {
+        let mut envelope = self.envelope.lock().unwrap_or_else(|p| p.into_inner());
+        if let Some(e) = envelope.as_mut() {
             e.push(v);
         }
     }
@@ -287,7 +288,7 @@ impl Observer for FileWork<'_> {
     }
 
     fn restart(&mut self) {
-        self.envelope = self
+        *self.envelope.get_mut().unwrap_or_else(|p| p.into_inner()) = self
             .sketch
             .then(|| EnvelopeBuilder::new(self.n, SKETCH_POINTS, self.dt_s, self.t0_s));
         self.fits.clear();
@@ -384,7 +385,7 @@ fn measure_streaming(
         dt_s: info.dt_s,
         t0_s: info.t0_s,
         sketch,
-        envelope: None,
+        envelope: Default::default(),
         n,
         fits: Vec::new(),
         waves: Vec::new(),
@@ -412,7 +413,12 @@ fn measure_streaming(
     let mut warnings = finished.warnings.clone();
     warnings.extend(m.warnings.iter().cloned());
     let sketch = sketch.then(|| {
-        let envelope = work.envelope.take().map(EnvelopeBuilder::finish);
+        let envelope = work
+            .envelope
+            .get_mut()
+            .unwrap_or_else(|p| p.into_inner())
+            .take()
+            .map(EnvelopeBuilder::finish);
         let mut sk = TraceSketch::assemble(
             &file,
             info.dt_s,
