@@ -1,10 +1,14 @@
 //! Analysis throughput on an in-memory record: edge finding, the whole measurement (levels,
-//! edges, per-event metrics) and the per-event model fit, in samples per second.
+//! edges, per-event metrics), the same measurement streamed in blocks (as long captures are)
+//! and the per-event model fit, in samples per second.
 
 mod common;
 
 use criterion::{criterion_group, criterion_main, Criterion, Throughput};
 use kickscan::events::{scan_edges, EdgeParams};
+use kickscan::measure::stream::{
+    measure_stream, NoObserver, SliceReplay, StreamInfo, StreamLimits, Surveyor,
+};
 use kickscan::measure::{measure_trace, MeasureOptions, Polarity, Trace};
 use kickscan::model::{fit_event, ModelContext};
 
@@ -54,6 +58,45 @@ fn measurement(c: &mut Criterion) {
     g.finish();
 }
 
+fn streamed_measurement(c: &mut Criterion) {
+    // Four times the in-memory length, so the survey thins its copy as a long capture's does.
+    let n = 4 * N;
+    let v = common::switch_node(n, 4 * EVENTS);
+    let mut g = c.benchmark_group("streamed_measurement");
+    g.sample_size(10);
+    g.throughput(Throughput::Elements(n as u64));
+    g.bench_function("measure_stream_4M", |b| {
+        b.iter(|| {
+            let mut survey = Surveyor::new(StreamLimits::default());
+            for block in v.chunks(1 << 16) {
+                survey.push(block);
+            }
+            let mut src = SliceReplay {
+                v: &v,
+                i: None,
+                block: 1 << 16,
+            };
+            let info = StreamInfo {
+                dt_s: common::DT_S,
+                t0_s: 0.0,
+                adc: None,
+            };
+            let m = measure_stream(
+                &mut src,
+                survey,
+                info,
+                &MeasureOptions::default(),
+                &mut NoObserver,
+                &|| false,
+            )
+            .expect("measure");
+            assert_eq!(m.events.len(), 4 * EVENTS);
+            m
+        })
+    });
+    g.finish();
+}
+
 fn fit(c: &mut Criterion) {
     let v = common::switch_node(N, EVENTS);
     let m = measure_trace(&trace(&v), &MeasureOptions::default()).expect("measure");
@@ -89,5 +132,5 @@ fn fit(c: &mut Criterion) {
     g.finish();
 }
 
-criterion_group!(benches, event_finding, measurement, fit);
+criterion_group!(benches, event_finding, measurement, streamed_measurement, fit);
 criterion_main!(benches);
