@@ -132,5 +132,11 @@ fn fit(c: &mut Criterion) {
     g.finish();
 }
 
-criterion_group!(benches, event_finding, measurement, streamed_measurement, fit);
+criterion_group!(
+    benches,
+    event_finding,
+    measurement,
+    streamed_measurement,
+    fit
+);
 criterion_main!(benches);

@@ -133,13 +133,25 @@ impl Surveyor {
     pub fn push(&mut self, block: &[f64]) {
         let base = self.n;
         let end = base + block.len();
-        // `f64::min`/`max` skip NaN and vectorise; infinities are rare and are filtered out
-        // by a second look only when they show up.
-        let (mut lo, mut hi) = block
-            .iter()
-            .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &x| {
-                (a.min(x), b.max(x))
-            });
+        // `f64::min`/`max` skip NaN and, over eight lanes, vectorise; infinities are rare and
+        // are filtered out by a second look only when they show up.
+        let mut lanes_lo = [f64::INFINITY; 8];
+        let mut lanes_hi = [f64::NEG_INFINITY; 8];
+        let chunks = block.chunks_exact(8);
+        let rest = chunks.remainder();
+        for c in chunks {
+            for j in 0..8 {
+                lanes_lo[j] = lanes_lo[j].min(c[j]);
+                lanes_hi[j] = lanes_hi[j].max(c[j]);
+            }
+        }
+        let (mut lo, mut hi) = rest.iter().fold(
+            (
+                lanes_lo.iter().copied().fold(f64::INFINITY, f64::min),
+                lanes_hi.iter().copied().fold(f64::NEG_INFINITY, f64::max),
+            ),
+            |(a, b), &x| (a.min(x), b.max(x)),
+        );
         if lo == f64::NEG_INFINITY || hi == f64::INFINITY {
             (lo, hi) = block
                 .iter()
@@ -478,14 +490,16 @@ struct RunNear {
 }
 
 impl RunNear {
-    fn push(&mut self, v: &[f64]) {
+    /// Feeds a block to both levels' counters in one sweep, without branches.
+    fn push_both(runs: &mut [RunNear; 2], v: &[f64]) {
+        let [a, b] = runs;
         for &x in v {
-            if (x - self.level_v).abs() <= self.half_width_v {
-                self.run += 1;
-                self.best = self.best.max(self.run);
-            } else {
-                self.run = 0;
-            }
+            let near_a = (x - a.level_v).abs() <= a.half_width_v;
+            let near_b = (x - b.level_v).abs() <= b.half_width_v;
+            a.run = (a.run + 1) * usize::from(near_a);
+            b.run = (b.run + 1) * usize::from(near_b);
+            a.best = a.best.max(a.run);
+            b.best = b.best.max(b.run);
         }
     }
 }
@@ -548,9 +562,7 @@ impl Scan<'_> {
             };
             let mut each = |v: &[f64], i: Option<&[f64]>| {
                 shared.block(v);
-                for r in &mut runs {
-                    r.push(v);
-                }
+                RunNear::push_both(&mut runs, v);
                 recent.push(v, i);
                 let here = recent.end();
                 if let Some(w) = open.as_mut() {
