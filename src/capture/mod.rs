@@ -28,6 +28,8 @@ mod cells;
 mod channel;
 mod columns;
 mod csv;
+mod decimal;
+mod frames;
 mod lines;
 mod raw;
 pub mod sidecar;

@@ -10,6 +10,7 @@ use std::fs::File;
 use std::io::{BufReader, Read, Seek, SeekFrom};
 use std::path::{Path, PathBuf};
 
+use super::frames::{decode_frames, Encoding};
 use super::sidecar::read_sidecar;
 use super::wav::{describe_channels, Scaling};
 use super::{Capture, CaptureError, Format, RawKind, ReadOptions};
@@ -44,21 +45,13 @@ impl RawKind {
         }
     }
 
-    /// Decodes one little-endian sample; `bytes` has exactly [`RawKind::bytes`] bytes.
-    fn decode(self, b: &[u8]) -> f64 {
-        fn arr<const N: usize>(b: &[u8]) -> [u8; N] {
-            let mut a = [0u8; N];
-            for (d, s) in a.iter_mut().zip(b) {
-                *d = *s;
-            }
-            a
-        }
+    fn encoding(self) -> Encoding {
         match self {
-            RawKind::I8 => f64::from(i8::from_le_bytes(arr(b))),
-            RawKind::I16 => f64::from(i16::from_le_bytes(arr(b))),
-            RawKind::I32 => f64::from(i32::from_le_bytes(arr(b))),
-            RawKind::F32 => f64::from(f32::from_le_bytes(arr(b))),
-            RawKind::F64 => f64::from_le_bytes(arr(b)),
+            RawKind::I8 => Encoding::I8,
+            RawKind::I16 => Encoding::I16,
+            RawKind::I32 => Encoding::I32,
+            RawKind::F32 => Encoding::F32,
+            RawKind::F64 => Encoding::F64,
         }
     }
 }
@@ -215,22 +208,14 @@ impl RawStream {
                 offset: start,
                 message: format!("cannot read {} bytes of samples: {e}", self.buf.len()),
             })?;
-        for (f, frame) in self.buf.chunks_exact(frame_bytes).enumerate() {
-            for (ch, (bytes, s)) in frame.chunks_exact(sb).zip(&self.scalings).enumerate() {
-                let x = self.kind.decode(bytes);
-                if !x.is_finite() {
-                    return Err(CaptureError::Binary {
-                        file: self.file.clone(),
-                        offset: start + (f * frame_bytes + ch * sb) as u64,
-                        message: format!(
-                            "sample is {x}; expected a finite number (NaN and infinity cannot be measured)"
-                        ),
-                    });
-                }
-                if let Some(v) = out.get_mut(ch) {
-                    v.push(x * s.gain + s.offset);
-                }
-            }
+        if let Err((k, x)) = decode_frames(self.kind.encoding(), &self.buf, &self.scalings, out) {
+            return Err(CaptureError::Binary {
+                file: self.file.clone(),
+                offset: start + (k * sb) as u64,
+                message: format!(
+                    "sample is {x}; expected a finite number (NaN and infinity cannot be measured)"
+                ),
+            });
         }
         self.frames_read += frames as u64;
         Ok(frames)

@@ -1,11 +1,13 @@
-//! RIFF/WAVE captures (8, 16, 24, 32-bit integer and 32-bit float) through `hound`, scaled
-//! to physical units by the sidecar (see [`super::sidecar`]) or left as fractions of full
-//! scale for `--scale` to convert.
+//! RIFF/WAVE captures (8, 16, 24, 32-bit integer and 32-bit float), scaled to physical units
+//! by the sidecar (see [`super::sidecar`]) or left as fractions of full scale for `--scale`
+//! to convert. `hound` reads and checks the header; the sample data is read in large runs of
+//! bytes and decoded in bulk ([`super::frames`]).
 
 use std::fs::File;
-use std::io::BufReader;
+use std::io::{BufReader, ErrorKind, Read, Seek};
 use std::path::{Path, PathBuf};
 
+use super::frames::{decode_frames, Encoding};
 use super::sidecar::{read_sidecar, Sidecar};
 use super::{AdcRange, Capture, CaptureError, Channel, Format, ReadOptions};
 
@@ -146,13 +148,21 @@ pub(crate) fn describe_channels(
 /// Streaming reader of a WAV file's frames.
 pub(crate) struct WavStream {
     file: PathBuf,
-    reader: hound::WavReader<BufReader<File>>,
-    float: bool,
+    reader: BufReader<File>,
+    /// How the samples are stored; `None` for a layout no decoder reads (refused at the
+    /// first sample, where the previous per-sample reader refused it).
+    encoding: Option<Encoding>,
     scalings: Vec<Scaling>,
     file_len: u64,
+    /// Byte offset of the first sample.
+    data_start: u64,
     frames_declared: u64,
     frames_read: u64,
+    buf: Vec<u8>,
 }
+
+/// Bytes of sample data read at a time: whole frames up to this much (at least one).
+const READ_BYTES: usize = 1 << 20;
 
 fn wav_error(file: &Path, offset: u64, e: hound::Error) -> CaptureError {
     CaptureError::Binary {
@@ -215,6 +225,10 @@ pub(crate) fn open(path: &Path, opts: &ReadOptions) -> Result<(Capture, WavStrea
         if float { "float" } else { "integer" }
     ));
     let frames_declared = u64::from(reader.duration());
+    let n_stored = u64::from(reader.len());
+    let mut inner = reader.into_inner();
+    let (data_start, data_len) = data_chunk(path, &mut inner)?;
+    let encoding = encoding_of(spec, data_len, n_stored);
     cap.metadata
         .push(("frames (header)".to_string(), frames_declared.to_string()));
     let sidecar = read_sidecar(path)?;
@@ -249,84 +263,125 @@ pub(crate) fn open(path: &Path, opts: &ReadOptions) -> Result<(Capture, WavStrea
         cap,
         WavStream {
             file: path.to_path_buf(),
-            reader,
-            float,
+            reader: inner,
+            encoding,
             scalings: d.scalings,
             file_len,
+            data_start,
             frames_declared,
             frames_read: 0,
+            buf: Vec::new(),
         },
     ))
+}
+
+/// Where the sample data starts and how long the header says it is. `hound` has just read
+/// the data chunk's header (`data`, length) and stopped before the first sample.
+fn data_chunk(path: &Path, r: &mut BufReader<File>) -> Result<(u64, u64), CaptureError> {
+    let io = |source| CaptureError::Io {
+        file: path.to_path_buf(),
+        source,
+    };
+    let start = r.stream_position().map_err(io)?;
+    r.seek_relative(-8).map_err(io)?;
+    let mut head = [0u8; 8];
+    r.read_exact(&mut head).map_err(io)?;
+    let [b0, b1, b2, b3, l0, l1, l2, l3] = head;
+    if [b0, b1, b2, b3] != *b"data" {
+        return Err(CaptureError::Binary {
+            file: path.to_path_buf(),
+            offset: start.saturating_sub(8),
+            message: "expected the 'data' chunk header before the samples".to_string(),
+        });
+    }
+    Ok((start, u64::from(u32::from_le_bytes([l0, l1, l2, l3]))))
+}
+
+/// The decoder for the header's layout: bytes per stored sample (the data length over the
+/// samples it holds) and valid bits.
+fn encoding_of(spec: hound::WavSpec, data_len: u64, n_stored: u64) -> Option<Encoding> {
+    if n_stored == 0 {
+        return None;
+    }
+    let bytes = data_len / n_stored;
+    match (spec.sample_format, bytes, spec.bits_per_sample) {
+        (hound::SampleFormat::Int, 1, 8) => Some(Encoding::U8),
+        (hound::SampleFormat::Int, 2, 16) => Some(Encoding::I16),
+        (hound::SampleFormat::Int, 3, 24) => Some(Encoding::I24),
+        (hound::SampleFormat::Int, 4, 24) => Some(Encoding::I24In4),
+        (hound::SampleFormat::Int, 4, 32) => Some(Encoding::I32),
+        (hound::SampleFormat::Float, 4, 32) => Some(Encoding::F32),
+        _ => None,
+    }
 }
 
 impl WavStream {
     /// Appends up to `max` frames; returns how many were read.
     pub(crate) fn fill(&mut self, out: &mut [Vec<f64>], max: usize) -> Result<usize, CaptureError> {
-        let nch = self.scalings.len();
         let want = (max as u64).min(self.frames_declared.saturating_sub(self.frames_read)) as usize;
-        let mut k = 0usize;
-        let total = want * nch;
-        let mut failure = None;
-        if self.float {
-            for s in self.reader.samples::<f32>().take(total) {
-                match s {
-                    Ok(x) => push(out, &self.scalings, k, f64::from(x)),
-                    Err(e) => {
-                        failure = Some(e);
-                        break;
-                    }
-                }
-                k += 1;
-            }
-        } else {
-            for s in self.reader.samples::<i32>().take(total) {
-                match s {
-                    Ok(x) => push(out, &self.scalings, k, f64::from(x)),
-                    Err(e) => {
-                        failure = Some(e);
-                        break;
-                    }
-                }
-                k += 1;
-            }
+        if want == 0 {
+            return Ok(0);
         }
-        let frames = k / nch.max(1);
-        self.frames_read += frames as u64;
-        if failure.is_some() || k < total {
-            let complete = self.frames_read;
-            let message = format!(
-                "the file ends inside the sample data: the header promises {} frames, only {complete} are complete (the file was cut short)",
-                self.frames_declared
-            );
-            return Err(match failure {
-                // hound reports a short read as `Other` with this text.
-                Some(hound::Error::IoError(e))
-                    if e.kind() != std::io::ErrorKind::UnexpectedEof
-                        && !e.to_string().contains("enough bytes") =>
-                {
-                    CaptureError::Io {
+        let Some(enc) = self.encoding else {
+            return Err(wav_error(&self.file, self.file_len, hound::Error::Unsupported));
+        };
+        let frame_bytes = enc.bytes() * self.scalings.len();
+        if frame_bytes == 0 {
+            return Ok(0);
+        }
+        let per_read = (READ_BYTES / frame_bytes).max(1);
+        let mut done = 0usize;
+        while done < want {
+            let n = (want - done).min(per_read);
+            self.buf.resize(n * frame_bytes, 0);
+            let (got, failure) = read_full(&mut self.reader, &mut self.buf);
+            let frames = got / frame_bytes;
+            let whole = self.buf.get(..frames * frame_bytes).unwrap_or(&[]);
+            if let Err((k, x)) = decode_frames(enc, whole, &self.scalings, out) {
+                let first = self.frames_read + done as u64;
+                return Err(CaptureError::Binary {
+                    file: self.file.clone(),
+                    offset: self.data_start + first * frame_bytes as u64 + (k * enc.bytes()) as u64,
+                    message: format!(
+                        "sample is {x}; expected a finite number (NaN and infinity cannot be measured)"
+                    ),
+                });
+            }
+            done += frames;
+            if frames < n {
+                self.frames_read += done as u64;
+                return Err(match failure {
+                    Some(e) => CaptureError::Io {
                         file: self.file.clone(),
                         source: e,
-                    }
-                }
-                Some(e @ (hound::Error::FormatError(_) | hound::Error::Unsupported)) => {
-                    wav_error(&self.file, self.file_len, e)
-                }
-                _ => CaptureError::Binary {
-                    file: self.file.clone(),
-                    offset: self.file_len,
-                    message,
-                },
-            });
+                    },
+                    None => CaptureError::Binary {
+                        file: self.file.clone(),
+                        offset: self.file_len,
+                        message: format!(
+                            "the file ends inside the sample data: the header promises {} frames, only {} are complete (the file was cut short)",
+                            self.frames_declared, self.frames_read
+                        ),
+                    },
+                });
+            }
         }
-        Ok(frames)
+        self.frames_read += done as u64;
+        Ok(done)
     }
 }
 
-#[inline]
-fn push(out: &mut [Vec<f64>], scalings: &[Scaling], k: usize, x: f64) {
-    let ch = k % scalings.len().max(1);
-    if let (Some(v), Some(s)) = (out.get_mut(ch), scalings.get(ch)) {
-        v.push(x * s.gain + s.offset);
+/// Reads until `buf` is full, the file ends, or reading fails: the bytes read, and the
+/// failure if there was one.
+fn read_full(r: &mut impl Read, buf: &mut [u8]) -> (usize, Option<std::io::Error>) {
+    let mut got = 0;
+    while got < buf.len() {
+        match r.read(buf.get_mut(got..).unwrap_or(&mut [])) {
+            Ok(0) => break,
+            Ok(k) => got += k,
+            Err(e) if e.kind() == ErrorKind::Interrupted => {}
+            Err(e) => return (got, Some(e)),
+        }
     }
+    (got, None)
 }

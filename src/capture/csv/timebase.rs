@@ -153,6 +153,19 @@ pub(super) fn check_time(
 }
 
 impl TimeCheck {
+    /// The same check with nothing seen yet: for a stretch of rows checked on its own and
+    /// joined to the rows before it later.
+    pub(super) fn fresh(&self) -> TimeCheck {
+        TimeCheck {
+            prev: None,
+            steps: 0,
+            jittered: 0,
+            first_jitter_line: 0,
+            max_deviation: 0.0,
+            ..*self
+        }
+    }
+
     /// The sample interval and the checks for the rest of the column, from the times of the
     /// first rows (in the file's unit; `factor` converts to seconds).
     pub(super) fn from_first_rows(times: &[(f64, f64, usize)], factor: f64) -> Option<TimeCheck> {
