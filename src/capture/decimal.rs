@@ -18,8 +18,7 @@ const POW10: [f64; 23] = [
 /// Mantissas up to this value are exact doubles.
 const MAX_EXACT_MANTISSA: u64 = 1 << 53;
 
-/// Most digits gathered into a `u64` mantissa (10^19 - 1 < 2^64), leading zeros of the
-/// integer part left out.
+/// Most digits gathered into a `u64` mantissa (10^19 - 1 < 2^64).
 const MAX_DIGITS: usize = 19;
 
 /// A number read by the fast path.
@@ -43,85 +42,72 @@ pub(crate) fn read_fast(cell: &[u8], decimal_comma: bool) -> Option<Decimal> {
 
 /// Reads the number at the start of `text` as [`read_fast`] does and returns it with the
 /// length of its text; what follows is the caller's to judge (a delimiter, a line end).
-#[inline]
+#[inline(always)]
 pub(crate) fn read_prefix(text: &[u8], decimal_comma: bool) -> Option<(Decimal, usize)> {
-    let mut i = 0;
-    let negative = match text.first() {
-        Some(b'-') => {
-            i = 1;
-            true
-        }
-        Some(b'+') => {
-            i = 1;
-            false
-        }
-        _ => false,
+    let (negative, mut i) = match text.first() {
+        Some(b'-') => (true, 1),
+        Some(b'+') => (false, 1),
+        _ => (false, 0),
     };
     let int_start = i;
-    // Leading zeros add nothing to the mantissa and do not count as digits.
-    while text.get(i) == Some(&b'0') {
+    // The integer part is short (a few digits) in what instruments print: one at a time.
+    let mut w: u64 = 0;
+    while let Some(d) = text.get(i).map(|b| b.wrapping_sub(b'0')).filter(|&d| d <= 9) {
+        w = w.wrapping_mul(10).wrapping_add(u64::from(d));
         i += 1;
     }
-    let mut w: u64 = 0;
-    let mut n_digits = 0usize;
-    digits(text, &mut i, &mut w, &mut n_digits);
     let n_int = i - int_start;
     let mut n_frac = 0usize;
     if let Some(&b) = text.get(i) {
         if b == b'.' || (decimal_comma && b == b',') {
             i += 1;
             let frac_start = i;
-            digits(text, &mut i, &mut w, &mut n_digits);
+            w = fraction_digits(text, &mut i, w);
             n_frac = i - frac_start;
         }
     }
-    if n_int + n_frac == 0 || n_digits > MAX_DIGITS {
+    // Leading zeros count too: fewer than 20 digits cannot have wrapped the mantissa.
+    if n_int + n_frac == 0 || n_int + n_frac > MAX_DIGITS {
         return None;
     }
     let mut exp: i32 = 0;
-    if let Some(&b) = text.get(i) {
-        if b == b'e' || b == b'E' {
-            i += 1;
-            let exp_negative = match text.get(i) {
-                Some(b'-') => {
-                    i += 1;
-                    true
-                }
-                Some(b'+') => {
-                    i += 1;
-                    false
-                }
-                _ => false,
-            };
-            let exp_start = i;
-            while let Some(&b) = text.get(i) {
-                let d = b.wrapping_sub(b'0');
-                if d > 9 {
-                    break;
-                }
-                exp = exp * 10 + i32::from(d);
+    if let Some(b'e' | b'E') = text.get(i) {
+        i += 1;
+        let exp_negative = match text.get(i) {
+            Some(b'-') => {
                 i += 1;
-                // Four digits bound the exponent far beyond any double; longer ones go to
-                // the general parser.
-                if i - exp_start > 4 {
-                    return None;
-                }
+                true
             }
-            if i == exp_start {
+            Some(b'+') => {
+                i += 1;
+                false
+            }
+            _ => false,
+        };
+        let exp_start = i;
+        while let Some(d) = text.get(i).map(|b| b.wrapping_sub(b'0')).filter(|&d| d <= 9) {
+            exp = exp * 10 + i32::from(d);
+            i += 1;
+            // Four digits bound the exponent far beyond any double; longer ones go to
+            // the general parser.
+            if i - exp_start > 4 {
                 return None;
             }
-            if exp_negative {
-                exp = -exp;
-            }
         }
-    }
-    let last_place = exp - i32::try_from(n_frac).ok()?;
-    let magnitude = if w == 0 {
-        0.0
-    } else {
-        if w > MAX_EXACT_MANTISSA {
+        if i == exp_start {
             return None;
         }
+        if exp_negative {
+            exp = -exp;
+        }
+    }
+    // n_frac <= MAX_DIGITS here.
+    let last_place = exp - n_frac as i32;
+    let magnitude = if w == 0 {
+        0.0
+    } else if w > MAX_EXACT_MANTISSA {
+        return None;
+    } else {
         let m = w as f64;
         match last_place {
             0..=22 => m * POW10[last_place as usize],
@@ -151,65 +137,59 @@ const POW10_INT: [u64; 9] = [
     100_000_000,
 ];
 
-/// Gathers the digits from `i` on into `w` (it wraps once past 19 digits; the caller
-/// refuses those). Eight bytes are looked at together: the run of digits at their start is
-/// found and converted without a branch per digit, so numbers of varying length cost the
-/// same (SWAR, "SIMD within a register", as in Lemire's fast_float).
+/// Appends the digits from `i` on to `w` (it wraps past 19 digits; the caller refuses
+/// those). The first eight bytes are looked at together: the run of digits at their start
+/// is found and converted without a branch per digit, so fractions of varying length cost
+/// the same (SWAR, "SIMD within a register", as in Lemire's fast_float); digits past them
+/// (`%.9e` writes nine) go one at a time.
 #[inline(always)]
-fn digits(text: &[u8], i: &mut usize, w: &mut u64, n: &mut usize) {
-    while let Some(eight) = text.get(*i..*i + 8).and_then(|s| <[u8; 8]>::try_from(s).ok()) {
-        let v = u64::from_le_bytes(eight);
-        let run = digit_run(v);
+fn fraction_digits(text: &[u8], i: &mut usize, mut w: u64) -> u64 {
+    if let Some(eight) = text.get(*i..*i + 8).and_then(|s| <[u8; 8]>::try_from(s).ok()) {
+        let codes = u64::from_le_bytes(eight).wrapping_sub(ZEROS);
+        let run = digit_run(codes);
         if run == 0 {
-            return;
+            return w;
         }
-        *w = w
+        w = w
             .wrapping_mul(POW10_INT[run])
-            .wrapping_add(leading_digits_value(v, run));
-        *n += run;
+            .wrapping_add(leading_digits_value(codes, run));
         *i += run;
         if run < 8 {
-            return;
+            return w;
         }
     }
-    while let Some(&b) = text.get(*i) {
-        let d = b.wrapping_sub(b'0');
-        if d > 9 {
-            break;
-        }
-        *w = w.wrapping_mul(10).wrapping_add(u64::from(d));
-        *n += 1;
+    while let Some(d) = text.get(*i).map(|b| b.wrapping_sub(b'0')).filter(|&d| d <= 9) {
+        w = w.wrapping_mul(10).wrapping_add(u64::from(d));
         *i += 1;
     }
+    w
 }
 
-/// How many of the eight bytes in `v` (first byte lowest) are ASCII digits before the
-/// first that is not. A byte is a digit when its high nibble is 3 and adding 6 to it
-/// leaves the high nibble 3; carries between bytes only start at a non-digit byte, so they
-/// can only disturb bytes after the run.
+/// `'0'` in every byte.
+const ZEROS: u64 = 0x3030_3030_3030_3030;
+
+/// How many of eight bytes (first byte lowest), each already less `'0'`, are digits (0 to
+/// 9) before the first that is not. Adding 0x76 sets a byte's top bit exactly when it is
+/// 10 or more; borrows and carries between bytes only start at a byte that is not a digit,
+/// so they can only disturb bytes after the run.
 #[inline(always)]
-fn digit_run(v: u64) -> usize {
-    const HIGH: u64 = 0xF0F0_F0F0_F0F0_F0F0;
-    const THREES: u64 = 0x3030_3030_3030_3030;
-    let off = ((v & HIGH) ^ THREES) | ((v.wrapping_add(0x0606_0606_0606_0606) & HIGH) ^ THREES);
-    // The top bit of each byte of `off` that is not zero.
-    let nonzero = (((off & 0x7F7F_7F7F_7F7F_7F7F) + 0x7F7F_7F7F_7F7F_7F7F) | off) & 0x8080_8080_8080_8080;
-    (nonzero.trailing_zeros() / 8) as usize
+fn digit_run(codes: u64) -> usize {
+    let big = (codes.wrapping_add(0x7676_7676_7676_7676) | codes) & 0x8080_8080_8080_8080;
+    (big.trailing_zeros() / 8) as usize
 }
 
-/// The number spelled by the first `run` (1 to 8) bytes of `v`: the digits are moved to
-/// the top of the word, so the bytes below are leading zeros, then converted as eight.
+/// The number spelled by the first `run` (1 to 8) digit codes of `codes`: they are moved
+/// to the top of the word, so the bytes below are leading zeros, then converted as eight.
 #[inline(always)]
-fn leading_digits_value(v: u64, run: usize) -> u64 {
-    let d = v.wrapping_sub(0x3030_3030_3030_3030);
+fn leading_digits_value(codes: u64, run: usize) -> u64 {
     let shift = 64 - 8 * run as u32;
-    eight_digit_value_of_codes(d << shift)
+    eight_digit_value_of_codes(codes << shift)
 }
 
 /// The number eight ASCII digits (first digit in the low byte) spell.
 #[cfg(test)]
 fn eight_digit_value(v: u64) -> u64 {
-    eight_digit_value_of_codes(v.wrapping_sub(0x3030_3030_3030_3030))
+    eight_digit_value_of_codes(v.wrapping_sub(ZEROS))
 }
 
 /// The number eight digit values (0 to 9, first in the low byte) spell: pairs, then
@@ -293,21 +273,22 @@ mod tests {
 
     #[test]
     fn eight_bytes_at_a_time() {
-        assert_eq!(digit_run(u64::from_le_bytes(*b"01234567")), 8);
-        assert_eq!(digit_run(u64::from_le_bytes(*b"0123456.")), 7);
-        assert_eq!(digit_run(u64::from_le_bytes(*b"/1234567")), 0);
-        assert_eq!(digit_run(u64::from_le_bytes(*b"0123:567")), 4);
+        let codes = |b: &[u8; 8]| u64::from_le_bytes(*b).wrapping_sub(ZEROS);
+        assert_eq!(digit_run(codes(b"01234567")), 8);
+        assert_eq!(digit_run(codes(b"0123456.")), 7);
+        assert_eq!(digit_run(codes(b"/1234567")), 0);
+        assert_eq!(digit_run(codes(b"0123:567")), 4);
         assert_eq!(eight_digit_value(u64::from_le_bytes(*b"01234567")), 1_234_567);
         assert_eq!(eight_digit_value(u64::from_le_bytes(*b"98765432")), 98_765_432);
-        assert_eq!(leading_digits_value(u64::from_le_bytes(*b"407,xyz\n"), 3), 407);
+        assert_eq!(leading_digits_value(codes(b"407,xyz\n"), 3), 407);
         // Every byte value in every place, after runs of every length, against a scalar
-        // count: bytes near 0xFF (whose +6 carries) included.
+        // count: bytes below '0' (which borrow) and above 0x89 (which carry) included.
         for run in 0..8 {
             for b in 0..=255u8 {
                 let mut w = *b"98765432";
                 w[run] = b;
                 let want = w.iter().take_while(|c| c.is_ascii_digit()).count();
-                let v = u64::from_le_bytes(w);
+                let v = codes(&w);
                 assert_eq!(digit_run(v), want, "{w:?}");
                 if want > 0 {
                     let text = std::str::from_utf8(&w[..want]).unwrap();

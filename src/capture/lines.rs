@@ -1,16 +1,56 @@
 //! Reading text in large chunks that end at a line end, so rows are parsed where they lie
 //! (and in parallel) instead of being copied out line by line, with a bound on the length of
 //! one line so an enormous line cannot take all memory.
-
-use std::io::Read;
+//!
+//! Chunks are read at an offset rather than from a shared cursor, so the two halves of a
+//! large chunk are copied out of the file on two threads at once.
 
 /// Longest line accepted (a row of a thousand numbers fits many times over).
 pub(crate) const MAX_LINE_BYTES: usize = 1 << 20;
 
-/// Bytes read per chunk: large enough that the fixed costs of a chunk (a system call, a
+/// Bytes read per chunk: large enough that the fixed costs of a chunk (system calls, a
 /// split between threads) vanish, small enough that a chunk and the values parsed from it
 /// stay a few MiB.
-pub(crate) const CHUNK_BYTES: usize = 2 << 20;
+pub(crate) const CHUNK_BYTES: usize = 1 << 20;
+
+/// Reads of at least this many bytes are split in two halves read at once.
+const SPLIT_READ_BYTES: usize = 1 << 19;
+
+/// A source read at byte offsets, from any thread.
+pub(crate) trait ReadAt: Sync {
+    /// Reads into `buf` from `offset`; `Ok(0)` at the end.
+    fn read_at(&self, buf: &mut [u8], offset: u64) -> std::io::Result<usize>;
+}
+
+impl ReadAt for std::fs::File {
+    #[cfg(unix)]
+    fn read_at(&self, buf: &mut [u8], offset: u64) -> std::io::Result<usize> {
+        std::os::unix::fs::FileExt::read_at(self, buf, offset)
+    }
+
+    #[cfg(windows)]
+    fn read_at(&self, buf: &mut [u8], offset: u64) -> std::io::Result<usize> {
+        std::os::windows::fs::FileExt::seek_read(self, buf, offset)
+    }
+}
+
+impl<T: ReadAt + ?Sized> ReadAt for &T {
+    fn read_at(&self, buf: &mut [u8], offset: u64) -> std::io::Result<usize> {
+        (**self).read_at(buf, offset)
+    }
+}
+
+impl ReadAt for [u8] {
+    fn read_at(&self, buf: &mut [u8], offset: u64) -> std::io::Result<usize> {
+        let from = usize::try_from(offset).unwrap_or(usize::MAX).min(self.len());
+        let src = self.get(from..).unwrap_or(&[]);
+        let n = src.len().min(buf.len());
+        if let (Some(d), Some(s)) = (buf.get_mut(..n), src.get(..n)) {
+            d.copy_from_slice(s);
+        }
+        Ok(n)
+    }
+}
 
 /// How a chunk ended.
 #[derive(Debug)]
@@ -25,19 +65,46 @@ pub(crate) enum ChunkEnd {
     Failed(std::io::Error),
 }
 
+/// A buffer of whole lines. Its storage keeps its length between chunks, so it is
+/// zero-filled once, not at every read.
+#[derive(Debug, Default)]
+pub(crate) struct Chunk {
+    data: Vec<u8>,
+    len: usize,
+}
+
+impl Chunk {
+    pub(crate) fn bytes(&self) -> &[u8] {
+        self.data.get(..self.len).unwrap_or(&[])
+    }
+
+    /// Room for `n` more bytes after the text, returned for filling.
+    fn room(&mut self, n: usize) -> &mut [u8] {
+        let end = self.len + n;
+        if self.data.len() < end {
+            self.data.resize(end, 0);
+        }
+        self.data.get_mut(self.len..end).unwrap_or(&mut [])
+    }
+}
+
 /// Reads a text source chunk by chunk; every chunk but the last ends with `\n`.
 pub(crate) struct ChunkReader<R> {
     inner: R,
+    /// Offset of the next byte to read.
+    offset: u64,
     chunk_bytes: usize,
     /// The start of a line cut by the end of the previous chunk.
     carry: Vec<u8>,
     done: bool,
 }
 
-impl<R: Read> ChunkReader<R> {
-    pub(crate) fn new(inner: R) -> Self {
+impl<R: ReadAt> ChunkReader<R> {
+    /// Reads `inner` from byte `offset` on.
+    pub(crate) fn new(inner: R, offset: u64) -> Self {
         ChunkReader {
             inner,
+            offset,
             chunk_bytes: CHUNK_BYTES,
             carry: Vec::new(),
             done: false,
@@ -50,45 +117,48 @@ impl<R: Read> ChunkReader<R> {
         self.chunk_bytes = n.max(1);
     }
 
-    /// Fills `buf` with the next whole lines: at least `chunk_bytes` when the text has that
-    /// many, more when a line crosses the mark, never more than one line beyond
-    /// `MAX_LINE_BYTES`. An empty `buf` with [`ChunkEnd::Last`] is the end of the text.
-    pub(crate) fn read_chunk(&mut self, buf: &mut Vec<u8>) -> ChunkEnd {
-        buf.clear();
+    /// Fills `chunk` with the next whole lines: at least `chunk_bytes` when the text has
+    /// that many, more when a line crosses the mark, never more than one line beyond
+    /// `MAX_LINE_BYTES`. An empty chunk with [`ChunkEnd::Last`] is the end of the text.
+    pub(crate) fn read_chunk(&mut self, chunk: &mut Chunk) -> ChunkEnd {
+        chunk.len = 0;
         if self.done {
             return ChunkEnd::Last;
         }
-        buf.extend_from_slice(&self.carry);
+        let carried = self.carry.len();
+        chunk.room(carried).copy_from_slice(&self.carry);
+        chunk.len = carried;
         self.carry.clear();
         // The carry holds no line end; only new bytes are searched.
-        let mut searched = buf.len();
+        let mut searched = chunk.len;
         loop {
             // Past the mark (a line crossing it), read on in steps of a chunk, at most 4 KiB.
             let want = self
                 .chunk_bytes
-                .saturating_sub(buf.len())
+                .saturating_sub(chunk.len)
                 .max(self.chunk_bytes.min(1 << 12));
-            let before = buf.len();
-            let result = (&mut self.inner).take(want as u64).read_to_end(buf);
-            if let Err(e) = result {
+            let (got, failure) = fill_at(&self.inner, chunk.room(want), self.offset);
+            chunk.len += got;
+            self.offset += got as u64;
+            if let Some(e) = failure {
                 // The lines complete before the failure still count; a cut line does not.
                 self.done = true;
-                let keep = memchr::memrchr(b'\n', buf).map_or(0, |k| k + 1);
-                buf.truncate(keep);
+                chunk.len = memchr::memrchr(b'\n', chunk.bytes()).map_or(0, |k| k + 1);
                 return ChunkEnd::Failed(e);
             }
-            if buf.len() - before < want {
+            if got < want {
                 self.done = true;
                 return ChunkEnd::Last;
             }
-            if let Some(k) = memchr::memrchr(b'\n', buf.get(searched..).unwrap_or(&[])) {
+            let text = chunk.bytes();
+            if let Some(k) = memchr::memrchr(b'\n', text.get(searched..).unwrap_or(&[])) {
                 let end = searched + k + 1;
-                self.carry.extend_from_slice(buf.get(end..).unwrap_or(&[]));
-                buf.truncate(end);
+                self.carry.extend_from_slice(text.get(end..).unwrap_or(&[]));
+                chunk.len = end;
                 return ChunkEnd::More;
             }
-            searched = buf.len();
-            if buf.len() > MAX_LINE_BYTES {
+            searched = chunk.len;
+            if chunk.len > MAX_LINE_BYTES {
                 // One line already too long to accept: hand it over to be refused.
                 self.done = true;
                 return ChunkEnd::Last;
@@ -97,19 +167,60 @@ impl<R: Read> ChunkReader<R> {
     }
 }
 
+/// Fills `buf` from `offset`, the two halves of a large one on two threads: the bytes
+/// read (fewer at the end of the source) and the failure if reading failed.
+fn fill_at<R: ReadAt + ?Sized>(
+    r: &R,
+    buf: &mut [u8],
+    offset: u64,
+) -> (usize, Option<std::io::Error>) {
+    if buf.len() < SPLIT_READ_BYTES {
+        return fill_exact_at(r, buf, offset);
+    }
+    let (a, b) = buf.split_at_mut(buf.len() / 2);
+    let half = a.len();
+    let ((got_a, fail_a), (got_b, fail_b)) = rayon::join(
+        || fill_exact_at(r, a, offset),
+        || fill_exact_at(r, b, offset + half as u64),
+    );
+    if fail_a.is_some() || got_a < half {
+        // The second half does not follow the first (the source ended or failed in it).
+        return (got_a, fail_a);
+    }
+    (half + got_b, fail_b)
+}
+
+/// Reads until `buf` is full, the source ends, or reading fails.
+fn fill_exact_at<R: ReadAt + ?Sized>(
+    r: &R,
+    buf: &mut [u8],
+    offset: u64,
+) -> (usize, Option<std::io::Error>) {
+    let mut got = 0;
+    while let Some(rest) = buf.get_mut(got..).filter(|b| !b.is_empty()) {
+        match r.read_at(rest, offset + got as u64) {
+            Ok(0) => break,
+            Ok(n) => got += n,
+            Err(e) if e.kind() == std::io::ErrorKind::Interrupted => {}
+            Err(e) => return (got, Some(e)),
+        }
+    }
+    (got, None)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
 
     fn chunks(text: &[u8], chunk_bytes: usize) -> Vec<Vec<u8>> {
-        let mut r = ChunkReader::new(text);
+        let mut r = ChunkReader::new(text, 0);
         r.set_chunk_bytes(chunk_bytes);
         let mut out = Vec::new();
+        let mut c = Chunk::default();
         loop {
-            let mut buf = Vec::new();
-            let end = r.read_chunk(&mut buf);
-            if !buf.is_empty() {
-                out.push(buf);
+            let end = r.read_chunk(&mut c);
+            if !c.bytes().is_empty() {
+                out.push(c.bytes().to_vec());
             }
             match end {
                 ChunkEnd::More => {}
@@ -121,18 +232,28 @@ mod tests {
 
     #[test]
     fn chunks_end_at_line_ends_and_lose_nothing() {
-        // Every byte comes back once, in order, and every chunk but the last ends a line.
-        let text: Vec<u8> = (0..3000)
+        // Every byte comes back once, in order, and every chunk but the last ends a line;
+        // chunks of 2 MiB are read in two halves at once.
+        let text: Vec<u8> = (0..300_000)
             .flat_map(|k| format!("{k},{}\r\n", k * 7).into_bytes())
             .chain(b"last,1".iter().copied())
             .collect();
-        for size in [1, 5, 4096, 10_000, 1 << 20] {
-            let c = chunks(&text, size);
-            assert_eq!(c.concat(), text, "chunk size {size}");
+        for size in [1, 5, 4096, 10_000, CHUNK_BYTES] {
+            let sample = if size < 100 { &text[..30_000] } else { &text[..] };
+            let c = chunks(sample, size);
+            assert_eq!(c.concat(), sample, "chunk size {size}");
             for piece in &c[..c.len() - 1] {
                 assert_eq!(piece.last(), Some(&b'\n'));
             }
         }
+    }
+
+    #[test]
+    fn reading_starts_at_the_offset_given() {
+        let mut r = ChunkReader::new(&b"skip\n1,2\n3,4\n"[..], 5);
+        let mut c = Chunk::default();
+        assert!(matches!(r.read_chunk(&mut c), ChunkEnd::Last));
+        assert_eq!(c.bytes(), b"1,2\n3,4\n");
     }
 
     #[test]
@@ -148,23 +269,21 @@ mod tests {
 
     #[test]
     fn a_failed_read_keeps_the_whole_lines_before_it() {
-        struct Failing<'a>(&'a [u8]);
-        impl Read for Failing<'_> {
-            fn read(&mut self, buf: &mut [u8]) -> std::io::Result<usize> {
-                if self.0.is_empty() {
-                    return Err(std::io::Error::other("disk gone"));
+        /// Text that cannot be read past its end.
+        struct Failing(&'static [u8]);
+        impl ReadAt for Failing {
+            fn read_at(&self, buf: &mut [u8], offset: u64) -> std::io::Result<usize> {
+                match self.0.read_at(buf, offset)? {
+                    0 => Err(std::io::Error::other("disk gone")),
+                    n => Ok(n),
                 }
-                let n = buf.len().min(self.0.len());
-                buf[..n].copy_from_slice(&self.0[..n]);
-                self.0 = &self.0[n..];
-                Ok(n)
             }
         }
-        let mut r = ChunkReader::new(Failing(b"1,2\n3,4\n5,"));
-        let mut buf = Vec::new();
-        assert!(matches!(r.read_chunk(&mut buf), ChunkEnd::Failed(_)));
-        assert_eq!(buf, b"1,2\n3,4\n");
-        assert!(matches!(r.read_chunk(&mut buf), ChunkEnd::Last));
-        assert!(buf.is_empty());
+        let mut r = ChunkReader::new(Failing(b"1,2\n3,4\n5,"), 0);
+        let mut c = Chunk::default();
+        assert!(matches!(r.read_chunk(&mut c), ChunkEnd::Failed(_)));
+        assert_eq!(c.bytes(), b"1,2\n3,4\n");
+        assert!(matches!(r.read_chunk(&mut c), ChunkEnd::Last));
+        assert!(c.bytes().is_empty());
     }
 }

@@ -13,7 +13,7 @@ mod text;
 mod timebase;
 
 use std::fs::File;
-use std::io::{Read, Seek, SeekFrom};
+use std::io::Read;
 use std::path::Path;
 
 use super::cells::{trim_cell, CellError, Cells, Delim};
@@ -318,7 +318,6 @@ pub(crate) fn open(
 
     // Stream from the first data row.
     let offset = lines[data_idx].offset as u64;
-    f.seek(SeekFrom::Start(offset)).map_err(io)?;
     let format = RowFormat {
         file: path.to_path_buf(),
         delim,
@@ -327,7 +326,7 @@ pub(crate) fn open(
         roles,
         factors,
     };
-    let stream = CsvStream::new(format, f, data_line, time_check);
+    let stream = CsvStream::new(format, f, offset, data_line, time_check);
     Ok((cap, stream, pre.record_length))
 }
 

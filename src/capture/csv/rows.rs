@@ -13,7 +13,7 @@ use super::timebase::{check_time, TimeCheck, JITTER_FRACTION};
 use super::{cell_message, csv_err, Role};
 use crate::capture::cells::{parse_number, parse_time_cell, pow10, trim_cell, Cells, Delim};
 use crate::capture::decimal::read_prefix;
-use crate::capture::lines::{ChunkEnd, ChunkReader, MAX_LINE_BYTES};
+use crate::capture::lines::{Chunk, ChunkEnd, ChunkReader, MAX_LINE_BYTES};
 use crate::capture::CaptureError;
 
 /// How a data row is laid out, and what each cell becomes.
@@ -35,8 +35,8 @@ pub(crate) struct CsvStream {
     format: RowFormat,
     source: ChunkReader<File>,
     /// The chunk read while the previous one was parsed, and how it ended.
-    ahead: Option<(Vec<u8>, ChunkEnd)>,
-    spare: Vec<u8>,
+    ahead: Option<(Chunk, ChunkEnd)>,
+    spare: Chunk,
     /// Parsed pieces of the current chunk; the first `n_ready` are handed out.
     pieces: Vec<Piece>,
     n_ready: usize,
@@ -70,18 +70,30 @@ struct Piece {
     error: Option<CaptureError>,
 }
 
+impl Piece {
+    /// Keeps the piece's first problem and drops what the bad row left in the channels.
+    #[cold]
+    fn fail(&mut self, e: CaptureError) {
+        for c in &mut self.channels {
+            c.truncate(self.n_rows);
+        }
+        self.error = Some(e);
+    }
+}
+
 impl CsvStream {
     pub(super) fn new(
         format: RowFormat,
         file: File,
+        offset: u64,
         first_line: usize,
         time: Option<TimeCheck>,
     ) -> Self {
         CsvStream {
             format,
-            source: ChunkReader::new(file),
+            source: ChunkReader::new(file, offset),
             ahead: None,
-            spare: Vec::new(),
+            spare: Chunk::default(),
             pieces: Vec::new(),
             n_ready: 0,
             cursor: (0, 0),
@@ -149,7 +161,7 @@ impl CsvStream {
         let template = self.time.as_ref();
         let (next_end, ()) = rayon::join(
             || more.then(|| source.read_chunk(&mut next)),
-            || format.parse_chunk(&buf, template, pieces),
+            || format.parse_chunk(buf.bytes(), template, pieces),
         );
         // The parsed chunk's bytes are spent: its buffer takes the next read.
         match next_end {
@@ -307,9 +319,18 @@ impl RowFormat {
                 if let Some((len, t)) = self.fast_row(rest, d, comma, want_place, &mut p.channels)
                 {
                     pos += len;
-                    if !self.row_read(p, Ok(t)) {
-                        return;
+                    let here = p.n_lines;
+                    p.n_lines += 1;
+                    if let (Some(tc), Some((t, q))) = (p.time.as_mut(), t) {
+                        if p.first_time.is_none() {
+                            p.first_time = Some((t, q, here));
+                        }
+                        if let Err(e) = check_time(&self.file, tc, t, q, here) {
+                            p.fail(e);
+                            return;
+                        }
                     }
+                    p.n_rows += 1;
                     continue;
                 }
                 // Values the fast path took before it gave up.
@@ -445,10 +466,7 @@ impl RowFormat {
                 true
             }
             Some(e) => {
-                for c in &mut p.channels {
-                    c.truncate(p.n_rows);
-                }
-                p.error = Some(e);
+                p.fail(e);
                 false
             }
         }
