@@ -91,7 +91,10 @@ impl RailWatch {
                     continue;
                 }
             }
-            if let Some(&x) = usize::try_from(pos - self.n).ok().and_then(|i| values.get(i)) {
+            if let Some(&x) = usize::try_from(pos - self.n)
+                .ok()
+                .and_then(|i| values.get(i))
+            {
                 self.kept.push(x);
             }
             pos += self.stride;

@@ -149,7 +149,14 @@ pub(crate) fn parse_time_cell(
         Some(d) => Ok((d.value, if want_place { pow10(d.last_place) } else { 0.0 })),
         None => {
             let t = parse_number_general(cell, decimal_comma)?;
-            Ok((t, if want_place { last_digit_place(cell) } else { 0.0 }))
+            Ok((
+                t,
+                if want_place {
+                    last_digit_place(cell)
+                } else {
+                    0.0
+                },
+            ))
         }
     }
 }
@@ -269,13 +276,21 @@ mod tests {
         }
         if let Ok(x) = fast {
             if !comma {
-                if let Some(y) = std::str::from_utf8(cell).ok().and_then(|t| t.parse::<f64>().ok()) {
+                if let Some(y) = std::str::from_utf8(cell)
+                    .ok()
+                    .and_then(|t| t.parse::<f64>().ok())
+                {
                     prop_assert_eq!(x.to_bits(), y.to_bits(), "{}", shown);
                 }
             }
             let (t, place) = parse_time_cell(cell, comma, true).unwrap();
             prop_assert_eq!(t.to_bits(), x.to_bits());
-            prop_assert_eq!(place.to_bits(), last_digit_place(cell).to_bits(), "{}", shown);
+            prop_assert_eq!(
+                place.to_bits(),
+                last_digit_place(cell).to_bits(),
+                "{}",
+                shown
+            );
         }
         Ok(())
     }

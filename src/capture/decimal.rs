@@ -52,7 +52,11 @@ pub(crate) fn read_prefix(text: &[u8], decimal_comma: bool) -> Option<(Decimal, 
     let int_start = i;
     // The integer part is short (a few digits) in what instruments print: one at a time.
     let mut w: u64 = 0;
-    while let Some(d) = text.get(i).map(|b| b.wrapping_sub(b'0')).filter(|&d| d <= 9) {
+    while let Some(d) = text
+        .get(i)
+        .map(|b| b.wrapping_sub(b'0'))
+        .filter(|&d| d <= 9)
+    {
         w = w.wrapping_mul(10).wrapping_add(u64::from(d));
         i += 1;
     }
@@ -85,7 +89,11 @@ pub(crate) fn read_prefix(text: &[u8], decimal_comma: bool) -> Option<(Decimal, 
             _ => false,
         };
         let exp_start = i;
-        while let Some(d) = text.get(i).map(|b| b.wrapping_sub(b'0')).filter(|&d| d <= 9) {
+        while let Some(d) = text
+            .get(i)
+            .map(|b| b.wrapping_sub(b'0'))
+            .filter(|&d| d <= 9)
+        {
             exp = exp * 10 + i32::from(d);
             i += 1;
             // Four digits bound the exponent far beyond any double; longer ones go to
@@ -144,7 +152,10 @@ const POW10_INT: [u64; 9] = [
 /// (`%.9e` writes nine) go one at a time.
 #[inline(always)]
 fn fraction_digits(text: &[u8], i: &mut usize, mut w: u64) -> u64 {
-    if let Some(eight) = text.get(*i..*i + 8).and_then(|s| <[u8; 8]>::try_from(s).ok()) {
+    if let Some(eight) = text
+        .get(*i..*i + 8)
+        .and_then(|s| <[u8; 8]>::try_from(s).ok())
+    {
         let codes = u64::from_le_bytes(eight).wrapping_sub(ZEROS);
         let run = digit_run(codes);
         if run == 0 {
@@ -158,7 +169,11 @@ fn fraction_digits(text: &[u8], i: &mut usize, mut w: u64) -> u64 {
             return w;
         }
     }
-    while let Some(d) = text.get(*i).map(|b| b.wrapping_sub(b'0')).filter(|&d| d <= 9) {
+    while let Some(d) = text
+        .get(*i)
+        .map(|b| b.wrapping_sub(b'0'))
+        .filter(|&d| d <= 9)
+    {
         w = w.wrapping_mul(10).wrapping_add(u64::from(d));
         *i += 1;
     }
@@ -278,8 +293,14 @@ mod tests {
         assert_eq!(digit_run(codes(b"0123456.")), 7);
         assert_eq!(digit_run(codes(b"/1234567")), 0);
         assert_eq!(digit_run(codes(b"0123:567")), 4);
-        assert_eq!(eight_digit_value(u64::from_le_bytes(*b"01234567")), 1_234_567);
-        assert_eq!(eight_digit_value(u64::from_le_bytes(*b"98765432")), 98_765_432);
+        assert_eq!(
+            eight_digit_value(u64::from_le_bytes(*b"01234567")),
+            1_234_567
+        );
+        assert_eq!(
+            eight_digit_value(u64::from_le_bytes(*b"98765432")),
+            98_765_432
+        );
         assert_eq!(leading_digits_value(codes(b"407,xyz\n"), 3), 407);
         // Every byte value in every place, after runs of every length, against a scalar
         // count: bytes below '0' (which borrow) and above 0x89 (which carry) included.

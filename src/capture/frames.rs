@@ -153,27 +153,47 @@ mod tests {
     fn each_encoding_gives_the_stored_code() {
         // Expected codes from the little-endian two's-complement layout (and WAV's
         // unsigned 8-bit with 128 as zero).
-        assert_eq!(decoded(Encoding::U8, &[0, 128, 255], 1), [vec![-128.0, 0.0, 127.0]]);
-        assert_eq!(decoded(Encoding::I8, &[0x80, 0, 0x7f], 1), [vec![-128.0, 0.0, 127.0]]);
+        assert_eq!(
+            decoded(Encoding::U8, &[0, 128, 255], 1),
+            [vec![-128.0, 0.0, 127.0]]
+        );
+        assert_eq!(
+            decoded(Encoding::I8, &[0x80, 0, 0x7f], 1),
+            [vec![-128.0, 0.0, 127.0]]
+        );
         assert_eq!(
             decoded(Encoding::I16, &[0x00, 0x80, 0xff, 0x7f, 0xfe, 0xff], 1),
             [vec![-32768.0, 32767.0, -2.0]]
         );
         assert_eq!(
-            decoded(Encoding::I24, &[0x00, 0x00, 0x80, 0xff, 0xff, 0x7f, 0xff, 0xff, 0xff], 1),
+            decoded(
+                Encoding::I24,
+                &[0x00, 0x00, 0x80, 0xff, 0xff, 0x7f, 0xff, 0xff, 0xff],
+                1
+            ),
             [vec![-8_388_608.0, 8_388_607.0, -1.0]]
         );
         // The top byte of a 24-in-32 container is ignored, set or not.
         assert_eq!(
-            decoded(Encoding::I24In4, &[0x00, 0x00, 0x80, 0x00, 0xff, 0xff, 0x7f, 0xff], 1),
+            decoded(
+                Encoding::I24In4,
+                &[0x00, 0x00, 0x80, 0x00, 0xff, 0xff, 0x7f, 0xff],
+                1
+            ),
             [vec![-8_388_608.0, 8_388_607.0]]
         );
         assert_eq!(
             decoded(Encoding::I32, &i32::MIN.to_le_bytes(), 1),
             [vec![f64::from(i32::MIN)]]
         );
-        assert_eq!(decoded(Encoding::F32, &1.5f32.to_le_bytes(), 1), [vec![1.5]]);
-        assert_eq!(decoded(Encoding::F64, &(-0.25f64).to_le_bytes(), 1), [vec![-0.25]]);
+        assert_eq!(
+            decoded(Encoding::F32, &1.5f32.to_le_bytes(), 1),
+            [vec![1.5]]
+        );
+        assert_eq!(
+            decoded(Encoding::F64, &(-0.25f64).to_le_bytes(), 1),
+            [vec![-0.25]]
+        );
     }
 
     #[test]

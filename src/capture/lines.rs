@@ -42,7 +42,9 @@ impl<T: ReadAt + ?Sized> ReadAt for &T {
 
 impl ReadAt for [u8] {
     fn read_at(&self, buf: &mut [u8], offset: u64) -> std::io::Result<usize> {
-        let from = usize::try_from(offset).unwrap_or(usize::MAX).min(self.len());
+        let from = usize::try_from(offset)
+            .unwrap_or(usize::MAX)
+            .min(self.len());
         let src = self.get(from..).unwrap_or(&[]);
         let n = src.len().min(buf.len());
         if let (Some(d), Some(s)) = (buf.get_mut(..n), src.get(..n)) {
@@ -239,7 +241,11 @@ mod tests {
             .chain(b"last,1".iter().copied())
             .collect();
         for size in [1, 5, 4096, 10_000, CHUNK_BYTES] {
-            let sample = if size < 100 { &text[..30_000] } else { &text[..] };
+            let sample = if size < 100 {
+                &text[..30_000]
+            } else {
+                &text[..]
+            };
             let c = chunks(sample, size);
             assert_eq!(c.concat(), sample, "chunk size {size}");
             for piece in &c[..c.len() - 1] {

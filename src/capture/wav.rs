@@ -323,7 +323,11 @@ impl WavStream {
             return Ok(0);
         }
         let Some(enc) = self.encoding else {
-            return Err(wav_error(&self.file, self.file_len, hound::Error::Unsupported));
+            return Err(wav_error(
+                &self.file,
+                self.file_len,
+                hound::Error::Unsupported,
+            ));
         };
         let frame_bytes = enc.bytes() * self.scalings.len();
         if frame_bytes == 0 {

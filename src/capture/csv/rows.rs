@@ -27,7 +27,7 @@ pub(super) struct RowFormat {
     pub(super) factors: Vec<f64>,
 }
 
-/// Chunks below this many bytes are parsed on the calling thread in one piece.
+/// Chunks below this many bytes are parsed in one piece.
 const PARALLEL_MIN_BYTES: usize = 1 << 18;
 
 /// Streaming reader of the data rows.
@@ -50,6 +50,8 @@ pub(crate) struct CsvStream {
     line_no: usize,
     /// The time column's check, carried through the file in row order.
     time: Option<TimeCheck>,
+    /// Chunks below this many bytes are parsed in one piece.
+    parallel_min_bytes: usize,
 }
 
 /// The rows of one piece of a chunk, parsed.
@@ -101,6 +103,7 @@ impl CsvStream {
             exhausted: false,
             line_no: first_line,
             time,
+            parallel_min_bytes: PARALLEL_MIN_BYTES,
         }
     }
 
@@ -108,6 +111,12 @@ impl CsvStream {
     #[cfg(test)]
     pub(crate) fn set_chunk_bytes(&mut self, n: usize) {
         self.source.set_chunk_bytes(n);
+    }
+
+    /// Cuts every chunk into pieces, however small (tests check the joins on small files).
+    #[cfg(test)]
+    pub(crate) fn always_in_pieces(&mut self) {
+        self.parallel_min_bytes = 0;
     }
 
     /// Appends up to `max` samples to each channel; returns how many rows were read. The
@@ -159,9 +168,10 @@ impl CsvStream {
         let mut next = std::mem::take(&mut self.spare);
         let (source, format, pieces) = (&mut self.source, &self.format, &mut self.pieces);
         let template = self.time.as_ref();
+        let min_bytes = self.parallel_min_bytes;
         let (next_end, ()) = rayon::join(
             || more.then(|| source.read_chunk(&mut next)),
-            || format.parse_chunk(buf.bytes(), template, pieces),
+            || format.parse_chunk(buf.bytes(), template, min_bytes, pieces),
         );
         // The parsed chunk's bytes are spent: its buffer takes the next read.
         match next_end {
@@ -264,8 +274,14 @@ fn at_line_offset(e: CaptureError, base: usize) -> CaptureError {
 impl RowFormat {
     /// Cuts a chunk into pieces at line ends and parses them, on several threads when the
     /// chunk is large.
-    fn parse_chunk(&self, chunk: &[u8], time: Option<&TimeCheck>, pieces: &mut Vec<Piece>) {
-        let n_pieces = if chunk.len() < PARALLEL_MIN_BYTES {
+    fn parse_chunk(
+        &self,
+        chunk: &[u8],
+        time: Option<&TimeCheck>,
+        min_bytes: usize,
+        pieces: &mut Vec<Piece>,
+    ) {
+        let n_pieces = if chunk.len() < min_bytes.max(1) {
             1
         } else {
             // Twice the threads, so a thread busy reading ahead does not hold the others up.
@@ -316,8 +332,7 @@ impl RowFormat {
         let mut pos = 0;
         while let Some(rest) = text.get(pos..).filter(|r| !r.is_empty()) {
             if let Some((d, comma)) = fast {
-                if let Some((len, t)) = self.fast_row(rest, d, comma, want_place, &mut p.channels)
-                {
+                if let Some((len, t)) = self.fast_row(rest, d, comma, want_place, &mut p.channels) {
                     pos += len;
                     let here = p.n_lines;
                     p.n_lines += 1;
@@ -443,11 +458,7 @@ impl RowFormat {
     /// Counts a row read (its time checked against the row before it in the piece), or
     /// keeps the problem and drops what the bad row left; `false` at a problem.
     #[inline]
-    fn row_read(
-        &self,
-        p: &mut Piece,
-        row: Result<Option<(f64, f64)>, CaptureError>,
-    ) -> bool {
+    fn row_read(&self, p: &mut Piece, row: Result<Option<(f64, f64)>, CaptureError>) -> bool {
         let here = p.n_lines;
         p.n_lines += 1;
         let problem = match (row, p.time.as_mut()) {
@@ -562,6 +573,106 @@ mod tests {
                 ..
             } => (line, column, message),
             other => panic!("expected a CSV error, got {other}"),
+        }
+    }
+
+    /// Reads every row of `path` through the stream, `per_block` rows at a time, with
+    /// chunks of `chunk` bytes (the default when `None`), cut into pieces when `pieces`:
+    /// the values (as bits), the end warnings, or the error.
+    fn read_all(
+        path: &std::path::Path,
+        chunk: Option<usize>,
+        pieces: bool,
+        per_block: usize,
+    ) -> Result<(Vec<Vec<u64>>, Vec<String>), String> {
+        let (cap, mut s, _) =
+            crate::capture::csv::open(path, &ReadOptions::default()).map_err(|e| e.to_string())?;
+        if let Some(n) = chunk {
+            s.set_chunk_bytes(n);
+        }
+        if pieces {
+            s.always_in_pieces();
+        }
+        let mut all = vec![Vec::new(); cap.channels.len()];
+        loop {
+            let mut block = vec![Vec::new(); cap.channels.len()];
+            match s.fill(&mut block, per_block) {
+                Ok(0) => break,
+                Ok(n) => {
+                    for (a, b) in all.iter_mut().zip(&block) {
+                        assert_eq!(b.len(), n);
+                        a.extend(b.iter().map(|x| x.to_bits()));
+                    }
+                }
+                Err(e) => return Err(e.to_string()),
+            }
+        }
+        Ok((all, s.end_warnings()))
+    }
+
+    /// One line of an invented record: row `k` at 1 us steps, well formed or broken in one
+    /// of the ways files are.
+    fn line(kind: u8, k: usize, v: f64) -> String {
+        let t = k as f64 * 1e-6;
+        match kind {
+            0 => format!("{t:.9e},{v:.4}"),
+            1 => format!("{t:.9e},{v:.4}\r"),
+            2 => String::new(),
+            3 => "  \r".to_string(),
+            4 => format!(" {t:.9e} , \"{v:.4}\" "),
+            5 => format!("{t:.9e},{v:.4},"),
+            6 => format!("{t:.9e},abc"),
+            7 => format!("{t:.9e},{v:.4},1"),
+            8 => format!("{:.9e},{v:.4}", t + 0.3e-6),
+            9 => format!("{:.9e},{v:.4}", t - 1e-6),
+            10 => format!("{t:.9e}"),
+            11 => format!("{t:.9e},NaN"),
+            12 => format!("{t},{v}"),
+            _ => format!("{:.9e},{v:.4}", t + 3e-6),
+        }
+    }
+
+    proptest::proptest! {
+        #![proptest_config(proptest::prelude::ProptestConfig::with_cases(300))]
+
+        /// However the text is cut into chunks and pieces and the rows into blocks, the
+        /// values, warnings and first error are the same.
+        #[test]
+        fn chunks_pieces_and_blocks_do_not_change_what_is_read(
+            kinds in proptest::collection::vec(
+                proptest::prop_oneof![
+                    30 => proptest::strategy::Just(0u8),
+                    20 => 1u8..14,
+                ],
+                0..120,
+            ),
+            values in proptest::collection::vec(-500.0f64..500.0, 120),
+            last_newline: bool,
+        ) {
+            let mut text = String::from("t,v\n");
+            for k in 0..6 {
+                text.push_str(&line(0, k, 1.0));
+                text.push('\n');
+            }
+            for (j, &kind) in kinds.iter().enumerate() {
+                text.push_str(&line(kind, 6 + j, values[j]));
+                if j + 1 < kinds.len() || last_newline {
+                    text.push('\n');
+                }
+            }
+            let f = tempfile::Builder::new().suffix(".csv").tempfile().unwrap();
+            std::fs::write(f.path(), &text).unwrap();
+            let reference = read_all(f.path(), None, false, 1 << 16);
+            for (chunk, pieces, per_block) in [
+                (Some(1), true, 1),
+                (Some(13), true, 3),
+                (Some(64), false, 7),
+                (Some(200), true, 50),
+                (None, true, 2),
+            ] {
+                let got = read_all(f.path(), chunk, pieces, per_block);
+                proptest::prop_assert_eq!(&got, &reference, "chunk {:?} pieces {}", chunk, pieces);
+            }
         }
     }
 
