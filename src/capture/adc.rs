@@ -271,7 +271,7 @@ mod tests {
             } else if x == w.min {
                 w.n_min += 1;
             }
-            if w.n % w.stride == 0 {
+            if w.n.is_multiple_of(w.stride) {
                 if w.kept.len() >= KEPT_VALUES {
                     let mut k = 0;
                     w.kept.retain(|_| {
@@ -280,7 +280,7 @@ mod tests {
                     });
                     w.stride *= 2;
                 }
-                if w.n % w.stride == 0 {
+                if w.n.is_multiple_of(w.stride) {
                     w.kept.push(x);
                 }
             }
