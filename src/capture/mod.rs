@@ -32,6 +32,7 @@ mod decimal;
 mod frames;
 mod lines;
 mod raw;
+mod runs;
 pub mod sidecar;
 mod wav;
 

@@ -4,10 +4,11 @@
 //! bytes and decoded in bulk ([`super::frames`]).
 
 use std::fs::File;
-use std::io::{BufReader, ErrorKind, Read, Seek};
+use std::io::{BufReader, Read, Seek};
 use std::path::{Path, PathBuf};
 
 use super::frames::{decode_frames, Encoding};
+use super::runs::{Ended, FrameRuns};
 use super::sidecar::{read_sidecar, Sidecar};
 use super::{AdcRange, Capture, CaptureError, Channel, Format, ReadOptions};
 
@@ -148,7 +149,8 @@ pub(crate) fn describe_channels(
 /// Streaming reader of a WAV file's frames.
 pub(crate) struct WavStream {
     file: PathBuf,
-    reader: BufReader<File>,
+    /// The data chunk, frame by frame.
+    runs: FrameRuns<BufReader<File>>,
     /// How the samples are stored; `None` for a layout no decoder reads (refused at the
     /// first sample, where the previous per-sample reader refused it).
     encoding: Option<Encoding>,
@@ -158,11 +160,7 @@ pub(crate) struct WavStream {
     data_start: u64,
     frames_declared: u64,
     frames_read: u64,
-    buf: Vec<u8>,
 }
-
-/// Bytes of sample data read at a time: whole frames up to this much (at least one).
-const READ_BYTES: usize = 1 << 20;
 
 fn wav_error(file: &Path, offset: u64, e: hound::Error) -> CaptureError {
     CaptureError::Binary {
@@ -229,6 +227,8 @@ pub(crate) fn open(path: &Path, opts: &ReadOptions) -> Result<(Capture, WavStrea
     let mut inner = reader.into_inner();
     let (data_start, data_len) = data_chunk(path, &mut inner)?;
     let encoding = encoding_of(spec, data_len, n_stored);
+    let frame_bytes = encoding.map_or(1, |e| e.bytes() * usize::from(spec.channels));
+    let runs = FrameRuns::new(inner, frame_bytes, frames_declared * frame_bytes as u64);
     cap.metadata
         .push(("frames (header)".to_string(), frames_declared.to_string()));
     let sidecar = read_sidecar(path)?;
@@ -263,14 +263,13 @@ pub(crate) fn open(path: &Path, opts: &ReadOptions) -> Result<(Capture, WavStrea
         cap,
         WavStream {
             file: path.to_path_buf(),
-            reader: inner,
+            runs,
             encoding,
             scalings: d.scalings,
             file_len,
             data_start,
             frames_declared,
             frames_read: 0,
-            buf: Vec::new(),
         },
     ))
 }
@@ -329,63 +328,47 @@ impl WavStream {
                 hound::Error::Unsupported,
             ));
         };
-        let frame_bytes = enc.bytes() * self.scalings.len();
-        if frame_bytes == 0 {
-            return Ok(0);
-        }
-        let per_read = (READ_BYTES / frame_bytes).max(1);
+        let frame_bytes = (enc.bytes() * self.scalings.len()) as u64;
         let mut done = 0usize;
         while done < want {
-            let n = (want - done).min(per_read);
-            self.buf.resize(n * frame_bytes, 0);
-            let (got, failure) = read_full(&mut self.reader, &mut self.buf);
-            let frames = got / frame_bytes;
-            let whole = self.buf.get(..frames * frame_bytes).unwrap_or(&[]);
-            if let Err((k, x)) = decode_frames(enc, whole, &self.scalings, out) {
-                let first = self.frames_read + done as u64;
-                return Err(CaptureError::Binary {
-                    file: self.file.clone(),
-                    offset: self.data_start + first * frame_bytes as u64 + (k * enc.bytes()) as u64,
-                    message: format!(
-                        "sample is {x}; expected a finite number (NaN and infinity cannot be measured)"
-                    ),
-                });
-            }
-            done += frames;
-            if frames < n {
-                self.frames_read += done as u64;
-                return Err(match failure {
-                    Some(e) => CaptureError::Io {
+            let scalings = &self.scalings;
+            let sink = &mut *out;
+            let step = self
+                .runs
+                .with_frames(want - done, |b| decode_frames(enc, b, scalings, sink));
+            match step {
+                Ok(Some((n, Ok(())))) => done += n,
+                Ok(Some((_, Err((k, x))))) => {
+                    let frame = self.frames_read + done as u64;
+                    return Err(CaptureError::Binary {
                         file: self.file.clone(),
-                        source: e,
-                    },
-                    None => CaptureError::Binary {
+                        offset: self.data_start + frame * frame_bytes + (k * enc.bytes()) as u64,
+                        message: format!(
+                            "sample is {x}; expected a finite number (NaN and infinity cannot be measured)"
+                        ),
+                    });
+                }
+                Ok(None) | Err(Ended::Short) => {
+                    self.frames_read += done as u64;
+                    return Err(CaptureError::Binary {
                         file: self.file.clone(),
                         offset: self.file_len,
                         message: format!(
                             "the file ends inside the sample data: the header promises {} frames, only {} are complete (the file was cut short)",
                             self.frames_declared, self.frames_read
                         ),
-                    },
-                });
+                    });
+                }
+                Err(Ended::Failed(e)) => {
+                    self.frames_read += done as u64;
+                    return Err(CaptureError::Io {
+                        file: self.file.clone(),
+                        source: e,
+                    });
+                }
             }
         }
         self.frames_read += done as u64;
         Ok(done)
     }
-}
-
-/// Reads until `buf` is full, the file ends, or reading fails: the bytes read, and the
-/// failure if there was one.
-fn read_full(r: &mut impl Read, buf: &mut [u8]) -> (usize, Option<std::io::Error>) {
-    let mut got = 0;
-    while got < buf.len() {
-        match r.read(buf.get_mut(got..).unwrap_or(&mut [])) {
-            Ok(0) => break,
-            Ok(k) => got += k,
-            Err(e) if e.kind() == ErrorKind::Interrupted => {}
-            Err(e) => return (got, Some(e)),
-        }
-    }
-    (got, None)
 }
