@@ -5,7 +5,7 @@
 //! PLDI 1990): a number written as an integer mantissa `w` times `10^e` is exactly the
 //! correctly rounded double `w * 10^e` (or `w / 10^-e`) when `w <= 2^53` and `|e| <= 22`,
 //! because both operands are then exact doubles and IEEE 754 rounds the one product or
-//! quotient correctly. Anything else (more than 19 significant digits, larger exponents,
+//! quotient correctly. Anything else (more than 19 digits, larger exponents,
 //! `inf`, text) is left to the caller's general parser, so results are bit-identical to a
 //! correctly rounded parser for every input.
 
