@@ -49,34 +49,55 @@ impl Default for RailWatch {
 }
 
 impl RailWatch {
+    /// Takes in the next values of the channel. Same result as looking at them one by one:
+    /// the extremes are the first values reaching them, counted with every value equal to
+    /// them, and the subsample keeps every `stride`-th value of the whole channel.
     pub(crate) fn observe(&mut self, values: &[f64]) {
-        for &x in values {
-            if x > self.max {
-                self.max = x;
-                self.n_max = 1;
-            } else if x == self.max {
-                self.n_max += 1;
-            }
-            if x < self.min {
-                self.min = x;
-                self.n_min = 1;
-            } else if x == self.min {
-                self.n_min += 1;
-            }
-            if self.n.is_multiple_of(self.stride) {
-                if self.kept.len() >= KEPT_VALUES {
-                    let mut k = 0;
-                    self.kept.retain(|_| {
-                        k += 1;
-                        k % 2 == 1
-                    });
-                    self.stride *= 2;
+        let Some((lo, hi)) = extremes(values) else {
+            return;
+        };
+        if hi > self.max {
+            // Of equal values (0 and -0), the first one seen is the one kept.
+            self.max = values.iter().copied().find(|&x| x == hi).unwrap_or(hi);
+            self.n_max = count_equal(values, hi);
+        } else if hi == self.max {
+            self.n_max += count_equal(values, hi);
+        }
+        if lo < self.min {
+            self.min = values.iter().copied().find(|&x| x == lo).unwrap_or(lo);
+            self.n_min = count_equal(values, lo);
+        } else if lo == self.min {
+            self.n_min += count_equal(values, lo);
+        }
+        self.keep_subsample(values);
+        self.n += values.len() as u64;
+    }
+
+    /// Keeps the values at positions (counted over the whole channel) that are multiples
+    /// of the stride, halving the store and doubling the stride whenever it is full.
+    fn keep_subsample(&mut self, values: &[f64]) {
+        let n = values.len() as u64;
+        let mut pos = self.n.next_multiple_of(self.stride);
+        while pos < self.n + n {
+            if self.kept.len() >= KEPT_VALUES {
+                let mut k = 0;
+                self.kept.retain(|_| {
+                    k += 1;
+                    k % 2 == 1
+                });
+                self.stride *= 2;
+                if !pos.is_multiple_of(self.stride) {
+                    pos = pos.next_multiple_of(self.stride);
+                    continue;
                 }
-                if self.n.is_multiple_of(self.stride) {
-                    self.kept.push(x);
-                }
             }
-            self.n += 1;
+            if let Some(&x) = usize::try_from(pos - self.n)
+                .ok()
+                .and_then(|i| values.get(i))
+            {
+                self.kept.push(x);
+            }
+            pos += self.stride;
         }
     }
 
@@ -136,6 +157,31 @@ impl RailWatch {
             format!("'{name}': {} (seen in the data)", parts.join(", ")),
         ))
     }
+}
+
+/// Least and greatest of finite values, in independent lanes so the loop vectorizes.
+fn extremes(values: &[f64]) -> Option<(f64, f64)> {
+    let first = *values.first()?;
+    let mut lo = [first; 4];
+    let mut hi = [first; 4];
+    let mut quads = values.chunks_exact(4);
+    for q in &mut quads {
+        for j in 0..4 {
+            lo[j] = if q[j] < lo[j] { q[j] } else { lo[j] };
+            hi[j] = if q[j] > hi[j] { q[j] } else { hi[j] };
+        }
+    }
+    let mut l = lo[0].min(lo[1]).min(lo[2].min(lo[3]));
+    let mut h = hi[0].max(hi[1]).max(hi[2].max(hi[3]));
+    for &x in quads.remainder() {
+        l = l.min(x);
+        h = h.max(x);
+    }
+    Some((l, h))
+}
+
+fn count_equal(values: &[f64], target: f64) -> u64 {
+    values.iter().map(|&x| u64::from(x == target)).sum()
 }
 
 /// Smallest gap between distinct values, when the values sit on a grid of that step.
@@ -208,6 +254,75 @@ mod tests {
         assert!(w.kept.len() <= KEPT_VALUES);
         assert_eq!(w.stride, 4);
         assert_eq!(w.kept[1], 4.0);
+    }
+
+    /// The one-value-at-a-time watch these blocks must agree with.
+    fn observe_one_by_one(w: &mut RailWatch, values: &[f64]) {
+        for &x in values {
+            if x > w.max {
+                w.max = x;
+                w.n_max = 1;
+            } else if x == w.max {
+                w.n_max += 1;
+            }
+            if x < w.min {
+                w.min = x;
+                w.n_min = 1;
+            } else if x == w.min {
+                w.n_min += 1;
+            }
+            if w.n.is_multiple_of(w.stride) {
+                if w.kept.len() >= KEPT_VALUES {
+                    let mut k = 0;
+                    w.kept.retain(|_| {
+                        k += 1;
+                        k % 2 == 1
+                    });
+                    w.stride *= 2;
+                }
+                if w.n.is_multiple_of(w.stride) {
+                    w.kept.push(x);
+                }
+            }
+            w.n += 1;
+        }
+    }
+
+    #[test]
+    fn blocks_of_any_length_give_what_one_value_at_a_time_gives() {
+        // Invented values on a coarse grid (many ties) with signed zeros, through the
+        // subsample's first halvings, cut into blocks of awkward lengths.
+        let mut seed = 0x9e37_79b9_7f4a_7c15u64;
+        let values: Vec<f64> = (0..(5 * KEPT_VALUES / 2))
+            .map(|_| {
+                seed ^= seed << 13;
+                seed ^= seed >> 7;
+                seed ^= seed << 17;
+                match seed % 11 {
+                    0 => 0.0,
+                    1 => -0.0,
+                    r => (r as f64 - 6.0) * 0.5,
+                }
+            })
+            .collect();
+        for len in [1usize, 3, 4, 7, 1000, 65_536, values.len()] {
+            let mut blocks = RailWatch::default();
+            for b in values.chunks(len) {
+                blocks.observe(b);
+            }
+            let mut single = RailWatch::default();
+            observe_one_by_one(&mut single, &values);
+            assert_eq!(blocks.max.to_bits(), single.max.to_bits(), "{len}");
+            assert_eq!(blocks.min.to_bits(), single.min.to_bits(), "{len}");
+            assert_eq!((blocks.n_max, blocks.n_min), (single.n_max, single.n_min));
+            assert_eq!((blocks.n, blocks.stride), (single.n, single.stride));
+            assert_eq!(blocks.kept, single.kept, "{len}");
+        }
+        // A block starting with -0 after a +0 maximum keeps the +0 first seen.
+        let mut w = RailWatch::default();
+        w.observe(&[-1.0, 0.0]);
+        w.observe(&[-0.0, -2.0]);
+        assert_eq!((w.max.to_bits(), w.n_max), (0.0f64.to_bits(), 2));
     }
 
     #[test]

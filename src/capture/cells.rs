@@ -126,7 +126,43 @@ pub(crate) enum CellError {
 const MAX_NUMBER_LEN: usize = 64;
 
 /// Reads a trimmed cell as a finite number, with a decimal comma when asked.
+///
+/// Plain decimals take the exact fast path of [`super::decimal`]; everything else goes to
+/// `fast_float2`, which rounds correctly too, so the value is the same either way.
+#[inline]
 pub(crate) fn parse_number(cell: &[u8], decimal_comma: bool) -> Result<f64, CellError> {
+    match super::decimal::read_fast(cell, decimal_comma) {
+        Some(d) => Ok(d.value),
+        None => parse_number_general(cell, decimal_comma),
+    }
+}
+
+/// Reads a time cell: its value and the place value of its last printed digit (see
+/// [`last_digit_place`]), the latter only when `want_place`, else 0.
+#[inline]
+pub(crate) fn parse_time_cell(
+    cell: &[u8],
+    decimal_comma: bool,
+    want_place: bool,
+) -> Result<(f64, f64), CellError> {
+    match super::decimal::read_fast(cell, decimal_comma) {
+        Some(d) => Ok((d.value, if want_place { pow10(d.last_place) } else { 0.0 })),
+        None => {
+            let t = parse_number_general(cell, decimal_comma)?;
+            Ok((
+                t,
+                if want_place {
+                    last_digit_place(cell)
+                } else {
+                    0.0
+                },
+            ))
+        }
+    }
+}
+
+/// Any number `fast_float2` reads (it rounds correctly), refusing NaN and infinities.
+fn parse_number_general(cell: &[u8], decimal_comma: bool) -> Result<f64, CellError> {
     if cell.is_empty() {
         return Err(CellError::Empty);
     }
@@ -179,7 +215,7 @@ pub(crate) fn last_digit_place(cell: &[u8]) -> f64 {
 }
 
 /// `10f64.powi(k)`, looked up for the exponents printed numbers have (it runs once per row).
-fn pow10(k: i32) -> f64 {
+pub(crate) fn pow10(k: i32) -> f64 {
     const LO: i32 = -64;
     static TABLE: std::sync::OnceLock<[f64; 129]> = std::sync::OnceLock::new();
     let table = TABLE.get_or_init(|| {
@@ -223,6 +259,95 @@ mod tests {
         assert_eq!(parse_number(b"NaN", false), Err(CellError::NotFinite));
         assert_eq!(parse_number(b"-inf", false), Err(CellError::NotFinite));
         assert_eq!(parse_number(b"", false), Err(CellError::Empty));
+    }
+
+    /// The fast path against the general parser it stands in for (`fast_float2`, the
+    /// reader before it, same values and same refusals) and against Rust's correctly
+    /// rounded `str::parse::<f64>`: bit for bit, and the printed resolution as
+    /// [`last_digit_place`] reads it.
+    fn agrees(cell: &[u8], comma: bool) -> Result<(), proptest::test_runner::TestCaseError> {
+        use proptest::prelude::*;
+        let fast = parse_number(cell, comma);
+        let general = parse_number_general(cell, comma);
+        let shown = String::from_utf8_lossy(cell);
+        match (fast, general) {
+            (Ok(a), Ok(b)) => prop_assert_eq!(a.to_bits(), b.to_bits(), "{}", shown),
+            (a, b) => prop_assert_eq!(a, b, "{}", shown),
+        }
+        if let Ok(x) = fast {
+            if !comma {
+                if let Some(y) = std::str::from_utf8(cell)
+                    .ok()
+                    .and_then(|t| t.parse::<f64>().ok())
+                {
+                    prop_assert_eq!(x.to_bits(), y.to_bits(), "{}", shown);
+                }
+            }
+            let (t, place) = parse_time_cell(cell, comma, true).unwrap();
+            prop_assert_eq!(t.to_bits(), x.to_bits());
+            prop_assert_eq!(
+                place.to_bits(),
+                last_digit_place(cell).to_bits(),
+                "{}",
+                shown
+            );
+        }
+        Ok(())
+    }
+
+    /// `%.{p}e` as C prints it: at least two exponent digits, with a sign.
+    fn c_exponent(x: f64, p: usize) -> String {
+        let s = format!("{x:.p$e}");
+        let (m, e) = s.split_once('e').unwrap();
+        let e: i32 = e.parse().unwrap();
+        format!("{m}e{}{:02}", if e < 0 { '-' } else { '+' }, e.abs())
+    }
+
+    proptest::proptest! {
+        #![proptest_config(proptest::prelude::ProptestConfig::with_cases(4000))]
+
+        #[test]
+        fn printed_numbers_read_the_same_by_either_path(
+            m in 1.0f64..10.0,
+            negative: bool,
+            scale in -30i32..30,
+            p in 0usize..20,
+        ) {
+            // The forms scopes and scripts write: %.4f, %.9e, %.{p}f, %.{p}e, shortest.
+            let x = if negative { -m } else { m } * 10f64.powi(scale);
+            for s in [
+                format!("{x:.4}"),
+                c_exponent(x, 9),
+                format!("{x:.p$}"),
+                c_exponent(x, p),
+                format!("{x:.p$e}"),
+                format!("{x:e}"),
+                format!("{x}"),
+                format!("{x:.4}").replace('.', ","),
+            ] {
+                agrees(s.as_bytes(), false)?;
+                agrees(s.as_bytes(), true)?;
+            }
+        }
+
+        #[test]
+        fn number_like_text_reads_the_same_by_either_path(
+            s in "[-+]?[0-9]{0,24}([.,][0-9]{0,24})?([eE][-+]?[0-9]{0,6})?",
+        ) {
+            agrees(s.as_bytes(), false)?;
+            agrees(s.as_bytes(), true)?;
+        }
+
+        #[test]
+        fn any_mix_of_number_bytes_reads_the_same_by_either_path(
+            bytes in proptest::collection::vec(
+                proptest::sample::select(b"0123456789+-.,eE xi\xff".to_vec()),
+                0..32,
+            ),
+        ) {
+            agrees(&bytes, false)?;
+            agrees(&bytes, true)?;
+        }
     }
 
     #[test]

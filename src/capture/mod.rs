@@ -28,8 +28,11 @@ mod cells;
 mod channel;
 mod columns;
 mod csv;
+mod decimal;
+mod frames;
 mod lines;
 mod raw;
+mod runs;
 pub mod sidecar;
 mod wav;
 

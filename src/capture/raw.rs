@@ -7,9 +7,11 @@
 //! the type and `--dt`/`--sample-rate` the rate.
 
 use std::fs::File;
-use std::io::{BufReader, Read, Seek, SeekFrom};
+use std::io::{BufReader, Seek, SeekFrom};
 use std::path::{Path, PathBuf};
 
+use super::frames::{decode_frames, Encoding};
+use super::runs::{Ended, FrameRuns};
 use super::sidecar::read_sidecar;
 use super::wav::{describe_channels, Scaling};
 use super::{Capture, CaptureError, Format, RawKind, ReadOptions};
@@ -44,21 +46,13 @@ impl RawKind {
         }
     }
 
-    /// Decodes one little-endian sample; `bytes` has exactly [`RawKind::bytes`] bytes.
-    fn decode(self, b: &[u8]) -> f64 {
-        fn arr<const N: usize>(b: &[u8]) -> [u8; N] {
-            let mut a = [0u8; N];
-            for (d, s) in a.iter_mut().zip(b) {
-                *d = *s;
-            }
-            a
-        }
+    fn encoding(self) -> Encoding {
         match self {
-            RawKind::I8 => f64::from(i8::from_le_bytes(arr(b))),
-            RawKind::I16 => f64::from(i16::from_le_bytes(arr(b))),
-            RawKind::I32 => f64::from(i32::from_le_bytes(arr(b))),
-            RawKind::F32 => f64::from(f32::from_le_bytes(arr(b))),
-            RawKind::F64 => f64::from_le_bytes(arr(b)),
+            RawKind::I8 => Encoding::I8,
+            RawKind::I16 => Encoding::I16,
+            RawKind::I32 => Encoding::I32,
+            RawKind::F32 => Encoding::F32,
+            RawKind::F64 => Encoding::F64,
         }
     }
 }
@@ -66,13 +60,12 @@ impl RawKind {
 /// Streaming reader of a raw dump.
 pub(crate) struct RawStream {
     file: PathBuf,
-    reader: BufReader<File>,
+    runs: FrameRuns<BufReader<File>>,
     kind: RawKind,
     scalings: Vec<Scaling>,
     data_offset: u64,
     frames_total: u64,
     frames_read: u64,
-    buf: Vec<u8>,
 }
 
 /// Opens a raw dump and describes its channels.
@@ -185,13 +178,16 @@ pub(crate) fn open(path: &Path, opts: &ReadOptions) -> Result<(Capture, RawStrea
         cap,
         RawStream {
             file: path.to_path_buf(),
-            reader: BufReader::with_capacity(1 << 18, f),
+            runs: FrameRuns::new(
+                BufReader::with_capacity(1 << 16, f),
+                frame_bytes as usize,
+                frames_total * frame_bytes,
+            ),
             kind,
             scalings: d.scalings,
             data_offset,
             frames_total,
             frames_read: 0,
-            buf: Vec::new(),
         },
     ))
 }
@@ -199,40 +195,46 @@ pub(crate) fn open(path: &Path, opts: &ReadOptions) -> Result<(Capture, RawStrea
 impl RawStream {
     /// Appends up to `max` frames; returns how many were read.
     pub(crate) fn fill(&mut self, out: &mut [Vec<f64>], max: usize) -> Result<usize, CaptureError> {
-        let nch = self.scalings.len();
         let sb = self.kind.bytes();
-        let frame_bytes = sb * nch;
-        let frames = (max as u64).min(self.frames_total - self.frames_read) as usize;
-        if frames == 0 {
-            return Ok(0);
-        }
-        self.buf.resize(frames * frame_bytes, 0);
-        let start = self.data_offset + self.frames_read * frame_bytes as u64;
-        self.reader
-            .read_exact(&mut self.buf)
-            .map_err(|e| CaptureError::Binary {
+        let frame_bytes = (sb * self.scalings.len()) as u64;
+        let want = (max as u64).min(self.frames_total - self.frames_read) as usize;
+        let enc = self.kind.encoding();
+        let mut done = 0usize;
+        while done < want {
+            let start = self.data_offset + (self.frames_read + done as u64) * frame_bytes;
+            let scalings = &self.scalings;
+            let sink = &mut *out;
+            let step = self
+                .runs
+                .with_frames(want - done, |b| decode_frames(enc, b, scalings, sink));
+            let cannot_read = |why: String| CaptureError::Binary {
                 file: self.file.clone(),
                 offset: start,
-                message: format!("cannot read {} bytes of samples: {e}", self.buf.len()),
-            })?;
-        for (f, frame) in self.buf.chunks_exact(frame_bytes).enumerate() {
-            for (ch, (bytes, s)) in frame.chunks_exact(sb).zip(&self.scalings).enumerate() {
-                let x = self.kind.decode(bytes);
-                if !x.is_finite() {
+                message: format!(
+                    "cannot read {} bytes of samples: {why}",
+                    (want - done) as u64 * frame_bytes
+                ),
+            };
+            match step {
+                Ok(Some((n, Ok(())))) => done += n,
+                Ok(Some((_, Err((k, x))))) => {
                     return Err(CaptureError::Binary {
                         file: self.file.clone(),
-                        offset: start + (f * frame_bytes + ch * sb) as u64,
+                        offset: start + (k * sb) as u64,
                         message: format!(
                             "sample is {x}; expected a finite number (NaN and infinity cannot be measured)"
                         ),
                     });
                 }
-                if let Some(v) = out.get_mut(ch) {
-                    v.push(x * s.gain + s.offset);
+                Ok(None) | Err(Ended::Short) => {
+                    return Err(cannot_read(
+                        "the file ended (it was cut short while being read)".to_string(),
+                    ))
                 }
+                Err(Ended::Failed(e)) => return Err(cannot_read(e.to_string())),
             }
         }
-        self.frames_read += frames as u64;
-        Ok(frames)
+        self.frames_read += done as u64;
+        Ok(done)
     }
 }

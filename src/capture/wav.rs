@@ -1,11 +1,14 @@
-//! RIFF/WAVE captures (8, 16, 24, 32-bit integer and 32-bit float) through `hound`, scaled
-//! to physical units by the sidecar (see [`super::sidecar`]) or left as fractions of full
-//! scale for `--scale` to convert.
+//! RIFF/WAVE captures (8, 16, 24, 32-bit integer and 32-bit float), scaled to physical units
+//! by the sidecar (see [`super::sidecar`]) or left as fractions of full scale for `--scale`
+//! to convert. `hound` reads and checks the header; the sample data is read in large runs of
+//! bytes and decoded in bulk ([`super::frames`]).
 
 use std::fs::File;
-use std::io::BufReader;
+use std::io::{BufReader, Read, Seek};
 use std::path::{Path, PathBuf};
 
+use super::frames::{decode_frames, Encoding};
+use super::runs::{Ended, FrameRuns};
 use super::sidecar::{read_sidecar, Sidecar};
 use super::{AdcRange, Capture, CaptureError, Channel, Format, ReadOptions};
 
@@ -146,10 +149,15 @@ pub(crate) fn describe_channels(
 /// Streaming reader of a WAV file's frames.
 pub(crate) struct WavStream {
     file: PathBuf,
-    reader: hound::WavReader<BufReader<File>>,
-    float: bool,
+    /// The data chunk, frame by frame.
+    runs: FrameRuns<BufReader<File>>,
+    /// How the samples are stored; `None` for a layout no decoder reads (refused at the
+    /// first sample, where the previous per-sample reader refused it).
+    encoding: Option<Encoding>,
     scalings: Vec<Scaling>,
     file_len: u64,
+    /// Byte offset of the first sample.
+    data_start: u64,
     frames_declared: u64,
     frames_read: u64,
 }
@@ -215,6 +223,12 @@ pub(crate) fn open(path: &Path, opts: &ReadOptions) -> Result<(Capture, WavStrea
         if float { "float" } else { "integer" }
     ));
     let frames_declared = u64::from(reader.duration());
+    let n_stored = u64::from(reader.len());
+    let mut inner = reader.into_inner();
+    let (data_start, data_len) = data_chunk(path, &mut inner)?;
+    let encoding = encoding_of(spec, data_len, n_stored);
+    let frame_bytes = encoding.map_or(1, |e| e.bytes() * usize::from(spec.channels));
+    let runs = FrameRuns::new(inner, frame_bytes, frames_declared * frame_bytes as u64);
     cap.metadata
         .push(("frames (header)".to_string(), frames_declared.to_string()));
     let sidecar = read_sidecar(path)?;
@@ -249,84 +263,112 @@ pub(crate) fn open(path: &Path, opts: &ReadOptions) -> Result<(Capture, WavStrea
         cap,
         WavStream {
             file: path.to_path_buf(),
-            reader,
-            float,
+            runs,
+            encoding,
             scalings: d.scalings,
             file_len,
+            data_start,
             frames_declared,
             frames_read: 0,
         },
     ))
 }
 
-impl WavStream {
-    /// Appends up to `max` frames; returns how many were read.
-    pub(crate) fn fill(&mut self, out: &mut [Vec<f64>], max: usize) -> Result<usize, CaptureError> {
-        let nch = self.scalings.len();
-        let want = (max as u64).min(self.frames_declared.saturating_sub(self.frames_read)) as usize;
-        let mut k = 0usize;
-        let total = want * nch;
-        let mut failure = None;
-        if self.float {
-            for s in self.reader.samples::<f32>().take(total) {
-                match s {
-                    Ok(x) => push(out, &self.scalings, k, f64::from(x)),
-                    Err(e) => {
-                        failure = Some(e);
-                        break;
-                    }
-                }
-                k += 1;
-            }
-        } else {
-            for s in self.reader.samples::<i32>().take(total) {
-                match s {
-                    Ok(x) => push(out, &self.scalings, k, f64::from(x)),
-                    Err(e) => {
-                        failure = Some(e);
-                        break;
-                    }
-                }
-                k += 1;
-            }
-        }
-        let frames = k / nch.max(1);
-        self.frames_read += frames as u64;
-        if failure.is_some() || k < total {
-            let complete = self.frames_read;
-            let message = format!(
-                "the file ends inside the sample data: the header promises {} frames, only {complete} are complete (the file was cut short)",
-                self.frames_declared
-            );
-            return Err(match failure {
-                // hound reports a short read as `Other` with this text.
-                Some(hound::Error::IoError(e))
-                    if e.kind() != std::io::ErrorKind::UnexpectedEof
-                        && !e.to_string().contains("enough bytes") =>
-                {
-                    CaptureError::Io {
-                        file: self.file.clone(),
-                        source: e,
-                    }
-                }
-                Some(e @ (hound::Error::FormatError(_) | hound::Error::Unsupported)) => {
-                    wav_error(&self.file, self.file_len, e)
-                }
-                _ => CaptureError::Binary {
-                    file: self.file.clone(),
-                    offset: self.file_len,
-                    message,
-                },
-            });
-        }
-        Ok(frames)
+/// Where the sample data starts and how long the header says it is. `hound` has just read
+/// the data chunk's header (`data`, length) and stopped before the first sample.
+fn data_chunk(path: &Path, r: &mut BufReader<File>) -> Result<(u64, u64), CaptureError> {
+    let io = |source| CaptureError::Io {
+        file: path.to_path_buf(),
+        source,
+    };
+    let start = r.stream_position().map_err(io)?;
+    r.seek_relative(-8).map_err(io)?;
+    let mut head = [0u8; 8];
+    r.read_exact(&mut head).map_err(io)?;
+    let [b0, b1, b2, b3, l0, l1, l2, l3] = head;
+    if [b0, b1, b2, b3] != *b"data" {
+        return Err(CaptureError::Binary {
+            file: path.to_path_buf(),
+            offset: start.saturating_sub(8),
+            message: "expected the 'data' chunk header before the samples".to_string(),
+        });
+    }
+    Ok((start, u64::from(u32::from_le_bytes([l0, l1, l2, l3]))))
+}
+
+/// The decoder for the header's layout: bytes per stored sample (the data length over the
+/// samples it holds) and valid bits.
+fn encoding_of(spec: hound::WavSpec, data_len: u64, n_stored: u64) -> Option<Encoding> {
+    if n_stored == 0 {
+        return None;
+    }
+    let bytes = data_len / n_stored;
+    match (spec.sample_format, bytes, spec.bits_per_sample) {
+        (hound::SampleFormat::Int, 1, 8) => Some(Encoding::U8),
+        (hound::SampleFormat::Int, 2, 16) => Some(Encoding::I16),
+        (hound::SampleFormat::Int, 3, 24) => Some(Encoding::I24),
+        (hound::SampleFormat::Int, 4, 24) => Some(Encoding::I24In4),
+        (hound::SampleFormat::Int, 4, 32) => Some(Encoding::I32),
+        (hound::SampleFormat::Float, 4, 32) => Some(Encoding::F32),
+        _ => None,
     }
 }
 
-#[inline]
-fn push(out: &mut [Vec<f64>], scalings: &[Scaling], k: usize, x: f64) {
-    let ch = k % scalings.len().max(1);
-    if let (Some(v), Some(s)) = (out.get_mut(ch), scalings.get(ch)) {
-        v.push(x * s.gain + s.offset);
+impl WavStream {
+    /// Appends up to `max` frames; returns how many were read.
+    pub(crate) fn fill(&mut self, out: &mut [Vec<f64>], max: usize) -> Result<usize, CaptureError> {
+        let want = (max as u64).min(self.frames_declared.saturating_sub(self.frames_read)) as usize;
+        if want == 0 {
+            return Ok(0);
+        }
+        let Some(enc) = self.encoding else {
+            return Err(wav_error(
+                &self.file,
+                self.file_len,
+                hound::Error::Unsupported,
+            ));
+        };
+        let frame_bytes = (enc.bytes() * self.scalings.len()) as u64;
+        let mut done = 0usize;
+        while done < want {
+            let scalings = &self.scalings;
+            let sink = &mut *out;
+            let step = self
+                .runs
+                .with_frames(want - done, |b| decode_frames(enc, b, scalings, sink));
+            match step {
+                Ok(Some((n, Ok(())))) => done += n,
+                Ok(Some((_, Err((k, x))))) => {
+                    let frame = self.frames_read + done as u64;
+                    return Err(CaptureError::Binary {
+                        file: self.file.clone(),
+                        offset: self.data_start + frame * frame_bytes + (k * enc.bytes()) as u64,
+                        message: format!(
+                            "sample is {x}; expected a finite number (NaN and infinity cannot be measured)"
+                        ),
+                    });
+                }
+                Ok(None) | Err(Ended::Short) => {
+                    self.frames_read += done as u64;
+                    return Err(CaptureError::Binary {
+                        file: self.file.clone(),
+                        offset: self.file_len,
+                        message: format!(
+                            "the file ends inside the sample data: the header promises {} frames, only {} are complete (the file was cut short)",
+                            self.frames_declared, self.frames_read
+                        ),
+                    });
+                }
+                Err(Ended::Failed(e)) => {
+                    self.frames_read += done as u64;
+                    return Err(CaptureError::Io {
+                        file: self.file.clone(),
+                        source: e,
+                    });
+                }
+            }
+        }
+        self.frames_read += done as u64;
+        Ok(done)
     }
 }

@@ -13,16 +13,16 @@ mod text;
 mod timebase;
 
 use std::fs::File;
-use std::io::{BufReader, Read, Seek, SeekFrom};
+use std::io::Read;
 use std::path::Path;
 
 use super::cells::{trim_cell, CellError, Cells, Delim};
 use super::columns;
-use super::lines::LineReader;
 use super::{Capture, CaptureError, Channel, Format, ReadOptions};
 use layout::{locate_rows, pick_delimiter, Located};
 use preamble::read_preamble;
 pub(crate) use rows::CsvStream;
+use rows::RowFormat;
 use text::{check_text, split_lines, SNIFF_BYTES, UTF8_BOM};
 use timebase::{looks_like_time, window_times, TimeCheck, JITTER_FRACTION};
 
@@ -318,21 +318,15 @@ pub(crate) fn open(
 
     // Stream from the first data row.
     let offset = lines[data_idx].offset as u64;
-    f.seek(SeekFrom::Start(offset)).map_err(io)?;
-    let reader = BufReader::with_capacity(1 << 18, f);
-    let stream = CsvStream {
+    let format = RowFormat {
         file: path.to_path_buf(),
-        lines: LineReader::new(reader, offset, data_line),
-        text: Vec::new(),
-        spans: Vec::new(),
         delim,
         decimal_comma: comma,
         n_fields,
         roles,
         factors,
-        time: time_check,
-        rows: 0,
     };
+    let stream = CsvStream::new(format, f, offset, data_line, time_check);
     Ok((cap, stream, pre.record_length))
 }
 

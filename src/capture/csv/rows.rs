@@ -1,199 +1,497 @@
 //! Streaming the data rows into channels, block by block.
+//!
+//! The text is read in chunks of whole lines ([`ChunkReader`]). Each chunk is cut at line
+//! ends into pieces parsed on separate threads while the next chunk is read; the pieces are
+//! then joined in file order: their line numbers are offset by the lines before them, and
+//! the time check is carried across each join, so the first problem in the file is the one
+//! reported, at its exact line, as when every row is read one after the other.
 
 use std::fs::File;
-use std::io::BufReader;
 use std::path::PathBuf;
 
 use super::timebase::{check_time, TimeCheck, JITTER_FRACTION};
 use super::{cell_message, csv_err, Role};
-use crate::capture::cells::{last_digit_place, parse_number, trim_cell, Cells, Delim};
-use crate::capture::lines::{LineError, LineReader, MAX_LINE_BYTES};
+use crate::capture::cells::{parse_number, parse_time_cell, pow10, trim_cell, Cells, Delim};
+use crate::capture::decimal::read_prefix;
+use crate::capture::lines::{Chunk, ChunkEnd, ChunkReader, MAX_LINE_BYTES};
 use crate::capture::CaptureError;
 
-/// Streaming reader of the data rows.
-pub(crate) struct CsvStream {
+/// How a data row is laid out, and what each cell becomes.
+pub(super) struct RowFormat {
     pub(super) file: PathBuf,
-    pub(super) lines: LineReader<BufReader<File>>,
-    /// Rows of the block being read, one after the other, and where each lies in it.
-    pub(super) text: Vec<u8>,
-    pub(super) spans: Vec<(usize, usize, usize)>,
     pub(super) delim: Delim,
     pub(super) decimal_comma: bool,
     pub(super) n_fields: usize,
     pub(super) roles: Vec<Role>,
+    /// Unit factor per value channel.
     pub(super) factors: Vec<f64>,
-    pub(super) time: Option<TimeCheck>,
-    pub(crate) rows: u64,
 }
 
-/// Rows below this count are parsed on the calling thread; above it the block is split
-/// between threads (a block of the default 65 536 rows is a few milliseconds of parsing).
-const PARALLEL_MIN_ROWS: usize = 8192;
+/// Chunks below this many bytes are parsed in one piece.
+const PARALLEL_MIN_BYTES: usize = 1 << 18;
 
-/// The cells of one gathered stretch of rows, parsed: values per channel, the time cell of
-/// each row with its printed resolution, and the first error in the stretch.
+/// Streaming reader of the data rows.
+pub(crate) struct CsvStream {
+    format: RowFormat,
+    source: ChunkReader<File>,
+    /// The chunk read while the previous one was parsed, and how it ended.
+    ahead: Option<(Chunk, ChunkEnd)>,
+    spare: Chunk,
+    /// Parsed pieces of the current chunk; the first `n_ready` are handed out.
+    pieces: Vec<Piece>,
+    n_ready: usize,
+    /// Next piece and row within it to hand out.
+    cursor: (usize, usize),
+    /// The first problem after the rows handed out so far.
+    pending: Option<CaptureError>,
+    /// No text left to read.
+    exhausted: bool,
+    /// Line number of the first line of the next chunk.
+    line_no: usize,
+    /// The time column's check, carried through the file in row order.
+    time: Option<TimeCheck>,
+    /// Chunks below this many bytes are parsed in one piece.
+    parallel_min_bytes: usize,
+}
+
+/// The rows of one piece of a chunk, parsed.
 #[derive(Default)]
-struct Parsed {
+struct Piece {
+    /// Values per channel, `n_rows` each.
     channels: Vec<Vec<f64>>,
-    /// Time cell of each good row (when the file has a time column).
-    times: Vec<(f64, f64)>,
-    /// Rows parsed without a problem, all before `error`.
-    n_ok: usize,
+    n_rows: usize,
+    /// Lines passed (blank ones too); line numbers in the piece count from 0.
+    n_lines: usize,
+    /// The time check over this piece's rows alone (its first row not checked against
+    /// the row before the piece), with lines counted within the piece.
+    time: Option<TimeCheck>,
+    /// Time cell of the piece's first row (value, printed resolution, line in the piece),
+    /// checked against the previous piece's last row when the pieces are joined.
+    first_time: Option<(f64, f64, usize)>,
+    /// The first problem, its line counted within the piece.
     error: Option<CaptureError>,
 }
 
-impl CsvStream {
-    /// Appends up to `max` samples to each channel; returns how many rows were read.
-    ///
-    /// The rows are gathered into one buffer first (reading stays sequential), parsed in
-    /// parallel stretches, then the time column is checked row by row in file order, so the
-    /// first problem in the file is the one reported, with its line, exactly as when every
-    /// row is read one after the other.
-    pub(crate) fn fill(&mut self, out: &mut [Vec<f64>], max: usize) -> Result<usize, CaptureError> {
-        let mut text = std::mem::take(&mut self.text);
-        let mut spans = std::mem::take(&mut self.spans);
-        text.clear();
-        spans.clear();
-        let read_error = self.gather(&mut text, &mut spans, max);
-        let r = self.parse_gathered(&text, &spans, out);
-        self.text = text;
-        self.spans = spans;
-        let n = r?;
-        // A read problem comes after every row gathered before it.
-        if let Some(e) = read_error {
-            return Err(e);
+impl Piece {
+    /// Keeps the piece's first problem and drops what the bad row left in the channels.
+    #[cold]
+    fn fail(&mut self, e: CaptureError) {
+        for c in &mut self.channels {
+            c.truncate(self.n_rows);
         }
-        self.rows += n as u64;
-        Ok(n)
+        self.error = Some(e);
+    }
+}
+
+impl CsvStream {
+    pub(super) fn new(
+        format: RowFormat,
+        file: File,
+        offset: u64,
+        first_line: usize,
+        time: Option<TimeCheck>,
+    ) -> Self {
+        CsvStream {
+            format,
+            source: ChunkReader::new(file, offset),
+            ahead: None,
+            spare: Chunk::default(),
+            pieces: Vec::new(),
+            n_ready: 0,
+            cursor: (0, 0),
+            pending: None,
+            exhausted: false,
+            line_no: first_line,
+            time,
+            parallel_min_bytes: PARALLEL_MIN_BYTES,
+        }
     }
 
-    /// Reads up to `max` non-blank lines into `text`, each as `(start, end, line number)`.
-    /// A read error is returned after the lines before it, which still count.
-    fn gather(
-        &mut self,
-        text: &mut Vec<u8>,
-        spans: &mut Vec<(usize, usize, usize)>,
-        max: usize,
-    ) -> Option<CaptureError> {
-        while spans.len() < max {
-            let line_no = self.lines.line_no;
-            let start = text.len();
-            let more = match self.lines.append_line(text) {
-                Ok(m) => m,
-                Err(LineError::Io(source)) => {
-                    return Some(CaptureError::Io {
-                        file: self.file.clone(),
+    /// Sets the bytes read per chunk (tests cut lines at every place with tiny chunks).
+    #[cfg(test)]
+    pub(crate) fn set_chunk_bytes(&mut self, n: usize) {
+        self.source.set_chunk_bytes(n);
+    }
+
+    /// Cuts every chunk into pieces, however small (tests check the joins on small files).
+    #[cfg(test)]
+    pub(crate) fn always_in_pieces(&mut self) {
+        self.parallel_min_bytes = 0;
+    }
+
+    /// Appends up to `max` samples to each channel; returns how many rows were read. The
+    /// block that would hold a bad row is an error.
+    pub(crate) fn fill(&mut self, out: &mut [Vec<f64>], max: usize) -> Result<usize, CaptureError> {
+        let mut n = 0;
+        loop {
+            while n < max && self.cursor.0 < self.n_ready {
+                let Some(p) = self.pieces.get(self.cursor.0) else {
+                    break;
+                };
+                let from = self.cursor.1;
+                let take = p.n_rows.saturating_sub(from).min(max - n);
+                if take == 0 {
+                    self.cursor = (self.cursor.0 + 1, 0);
+                    continue;
+                }
+                for (o, ch) in out.iter_mut().zip(&p.channels) {
+                    o.extend_from_slice(ch.get(from..from + take).unwrap_or(&[]));
+                }
+                self.cursor.1 += take;
+                n += take;
+            }
+            if n >= max {
+                return Ok(n);
+            }
+            if let Some(e) = self.pending.take() {
+                self.exhausted = true;
+                return Err(e);
+            }
+            if self.exhausted {
+                return Ok(n);
+            }
+            self.next_chunk();
+        }
+    }
+
+    /// Parses the next chunk while reading the one after it, then joins its pieces.
+    fn next_chunk(&mut self) {
+        let (buf, end) = match self.ahead.take() {
+            Some(a) => a,
+            None => {
+                let mut buf = std::mem::take(&mut self.spare);
+                let end = self.source.read_chunk(&mut buf);
+                (buf, end)
+            }
+        };
+        let more = matches!(end, ChunkEnd::More);
+        let mut next = std::mem::take(&mut self.spare);
+        let (source, format, pieces) = (&mut self.source, &self.format, &mut self.pieces);
+        let template = self.time.as_ref();
+        let min_bytes = self.parallel_min_bytes;
+        let (next_end, ()) = rayon::join(
+            || more.then(|| source.read_chunk(&mut next)),
+            || format.parse_chunk(buf.bytes(), template, min_bytes, pieces),
+        );
+        // The parsed chunk's bytes are spent: its buffer takes the next read.
+        match next_end {
+            Some(e) => self.ahead = Some((next, e)),
+            None => drop(next),
+        }
+        self.spare = buf;
+        self.join_pieces();
+        match end {
+            ChunkEnd::More => {}
+            ChunkEnd::Last => self.exhausted = true,
+            ChunkEnd::Failed(source) => {
+                self.exhausted = true;
+                if self.pending.is_none() {
+                    self.pending = Some(CaptureError::Io {
+                        file: self.format.file.clone(),
                         source,
-                    })
+                    });
                 }
-                Err(LineError::TooLong) => {
-                    return Some(csv_err(
-                        &self.file,
-                        line_no,
-                        1,
-                        format!(
-                            "line is longer than {} KiB; expected a row of {} numbers",
-                            MAX_LINE_BYTES / 1024,
-                            self.n_fields
-                        ),
-                    ))
+            }
+        }
+    }
+
+    /// Puts the parsed pieces in file order: line numbers, the time check across each
+    /// join, and the first problem, after which nothing is handed out.
+    fn join_pieces(&mut self) {
+        self.cursor = (0, 0);
+        self.n_ready = self.pieces.len();
+        let file = &self.format.file;
+        let mut base = self.line_no;
+        for (i, p) in self.pieces.iter_mut().enumerate() {
+            if let (Some(all), Some(own), Some((t, q, line))) =
+                (self.time.as_mut(), p.time.as_ref(), p.first_time)
+            {
+                if let Err(e) = check_time(file, all, t, q, base + line) {
+                    p.n_rows = 0;
+                    self.pending = Some(e);
+                    self.n_ready = i + 1;
+                    return;
                 }
+                all.steps += own.steps;
+                if own.jittered > 0 {
+                    if all.jittered == 0 {
+                        all.first_jitter_line = base + own.first_jitter_line;
+                    }
+                    all.jittered += own.jittered;
+                    all.max_deviation = all.max_deviation.max(own.max_deviation);
+                }
+                all.prev = own.prev;
+            }
+            if let Some(e) = p.error.take() {
+                self.pending = Some(at_line_offset(e, base));
+                self.n_ready = i + 1;
+                return;
+            }
+            base += p.n_lines;
+        }
+        self.line_no = base;
+    }
+
+    /// Warnings known only once every row has been read.
+    pub(crate) fn end_warnings(&self) -> Vec<String> {
+        let mut w = Vec::new();
+        if let Some(tc) = &self.time {
+            if tc.jittered > 0 {
+                w.push(format!(
+                    "time steps deviate by more than {:.0} % from the sample interval at {} of {} steps (first on line {}, largest {:.1} %); the {} of the first rows, {:e} s, is used",
+                    JITTER_FRACTION * 100.0,
+                    tc.jittered,
+                    tc.steps,
+                    tc.first_jitter_line,
+                    tc.max_deviation * 100.0,
+                    tc.dt_from,
+                    crate::capture::sig(tc.dt_s)
+                ));
+            }
+        }
+        w
+    }
+}
+
+/// The same error with its line moved from a count within a piece to the file's count.
+fn at_line_offset(e: CaptureError, base: usize) -> CaptureError {
+    match e {
+        CaptureError::Csv {
+            file,
+            line,
+            column,
+            message,
+        } => CaptureError::Csv {
+            file,
+            line: line + base,
+            column,
+            message,
+        },
+        other => other,
+    }
+}
+
+impl RowFormat {
+    /// Cuts a chunk into pieces at line ends and parses them, on several threads when the
+    /// chunk is large.
+    fn parse_chunk(
+        &self,
+        chunk: &[u8],
+        time: Option<&TimeCheck>,
+        min_bytes: usize,
+        pieces: &mut Vec<Piece>,
+    ) {
+        let n_pieces = if chunk.len() < min_bytes.max(1) {
+            1
+        } else {
+            // Twice the threads, so a thread busy reading ahead does not hold the others up.
+            (2 * rayon::current_num_threads()).clamp(2, 16)
+        };
+        let mut bounds = Vec::with_capacity(n_pieces + 1);
+        bounds.push(0);
+        for k in 1..n_pieces {
+            let from = (chunk.len() * k / n_pieces).max(bounds.last().copied().unwrap_or(0));
+            let cut = memchr::memchr(b'\n', chunk.get(from..).unwrap_or(&[]))
+                .map_or(chunk.len(), |j| from + j + 1);
+            if cut > bounds.last().copied().unwrap_or(0) && cut < chunk.len() {
+                bounds.push(cut);
+            }
+        }
+        bounds.push(chunk.len());
+        let n = bounds.len() - 1;
+        pieces.resize_with(n, Piece::default);
+        let work = |(k, p): (usize, &mut Piece)| {
+            let text = match (bounds.get(k), bounds.get(k + 1)) {
+                (Some(&a), Some(&b)) => chunk.get(a..b).unwrap_or(&[]),
+                _ => &[],
             };
-            if !more {
-                break;
+            self.parse_piece(text, time, p);
+        };
+        if n > 1 {
+            use rayon::prelude::*;
+            pieces.par_iter_mut().enumerate().for_each(work);
+        } else {
+            pieces.iter_mut().enumerate().for_each(work);
+        }
+    }
+
+    /// Parses the lines of one piece, stopping at the first problem.
+    fn parse_piece(&self, text: &[u8], time: Option<&TimeCheck>, p: &mut Piece) {
+        let n_channels = self.factors.len();
+        p.channels.resize_with(n_channels, Vec::new);
+        for c in &mut p.channels {
+            c.clear();
+        }
+        p.n_rows = 0;
+        p.n_lines = 0;
+        p.first_time = None;
+        p.error = None;
+        p.time = time.map(TimeCheck::fresh);
+        let want_place = time.is_some_and(|tc| !tc.exact);
+        let fast = self.fast_delimiter();
+        let mut pos = 0;
+        while let Some(rest) = text.get(pos..).filter(|r| !r.is_empty()) {
+            if let Some((d, comma)) = fast {
+                if let Some((len, t)) = self.fast_row(rest, d, comma, want_place, &mut p.channels) {
+                    pos += len;
+                    let here = p.n_lines;
+                    p.n_lines += 1;
+                    if let (Some(tc), Some((t, q))) = (p.time.as_mut(), t) {
+                        if p.first_time.is_none() {
+                            p.first_time = Some((t, q, here));
+                        }
+                        if let Err(e) = check_time(&self.file, tc, t, q, here) {
+                            p.fail(e);
+                            return;
+                        }
+                    }
+                    p.n_rows += 1;
+                    continue;
+                }
+                // Values the fast path took before it gave up.
+                for c in &mut p.channels {
+                    c.truncate(p.n_rows);
+                }
             }
-            let line = text.get(start..).unwrap_or(&[]);
-            if line.iter().all(|b| b.is_ascii_whitespace()) {
-                text.truncate(start);
-                continue;
+            let (line, next) = match memchr::memchr(b'\n', rest) {
+                Some(k) => (rest.get(..k).unwrap_or(&[]), pos + k + 1),
+                None => (rest, text.len()),
+            };
+            pos = next;
+            if !self.take_line(line, want_place, p) {
+                return;
             }
-            spans.push((start, text.len(), line_no));
+        }
+    }
+
+    /// The delimiter byte and decimal comma for [`RowFormat::fast_row`], when rows split
+    /// at it read the same as numbers read straight from the text (the delimiter cannot
+    /// be part of a number).
+    fn fast_delimiter(&self) -> Option<(u8, bool)> {
+        match self.delim {
+            Delim::Byte(d) if !b"0123456789+-.eE\r\n".contains(&d) => {
+                Some((d, self.decimal_comma && d != b','))
+            }
+            _ => None,
+        }
+    }
+
+    /// Reads a row of bare numbers (no spaces, no quotes) split by the one-byte delimiter
+    /// `d` straight from the text, each number read up to where it ends: the line's length
+    /// with its end and the time cell, or `None` for any other row (the general path then
+    /// reads it, with the same result or the error; values pushed here are the caller's to
+    /// drop).
+    #[inline]
+    fn fast_row(
+        &self,
+        text: &[u8],
+        d: u8,
+        comma: bool,
+        want_place: bool,
+        out: &mut [Vec<f64>],
+    ) -> Option<(usize, Option<(f64, f64)>)> {
+        let mut i = 0;
+        let mut time = None;
+        let last = self.roles.len().checked_sub(1)?;
+        for (k, role) in self.roles.iter().enumerate() {
+            let rest = text.get(i..)?;
+            match *role {
+                Role::Skip => {
+                    i += rest
+                        .iter()
+                        .position(|&b| b == d || b == b'\n')
+                        .unwrap_or(rest.len());
+                }
+                Role::Time => {
+                    let (t, len) = read_prefix(rest, comma)?;
+                    let q = if want_place { pow10(t.last_place) } else { 0.0 };
+                    time = Some((t.value, q));
+                    i += len;
+                }
+                Role::Value(c) => {
+                    let (v, len) = read_prefix(rest, comma)?;
+                    let f = self.factors.get(c).copied().unwrap_or(1.0);
+                    out.get_mut(c)?.push(v.value * f);
+                    i += len;
+                }
+            }
+            if i > MAX_LINE_BYTES {
+                return None;
+            }
+            match text.get(i) {
+                Some(&b) if k < last && b == d => i += 1,
+                Some(b'\n') if k == last => return Some((i + 1, time)),
+                Some(b'\r') if k == last && text.get(i + 1) == Some(&b'\n') => {
+                    return Some((i + 2, time))
+                }
+                None if k == last => return Some((i, time)),
+                _ => return None,
+            }
         }
         None
     }
 
-    /// Parses the gathered rows into `out` and checks their times; returns the row count.
-    fn parse_gathered(
-        &mut self,
-        text: &[u8],
-        spans: &[(usize, usize, usize)],
-        out: &mut [Vec<f64>],
-    ) -> Result<usize, CaptureError> {
-        let pieces = if spans.len() >= PARALLEL_MIN_ROWS {
-            rayon::current_num_threads().clamp(1, 8)
-        } else {
-            1
-        };
-        let chunk = spans.len().div_ceil(pieces).max(1);
-        let this = &*self;
-        let parsed: Vec<Parsed> = if pieces > 1 {
-            use rayon::prelude::*;
-            spans
-                .par_chunks(chunk)
-                .map(|rows| this.parse_rows(text, rows, out.len()))
-                .collect()
-        } else {
-            spans
-                .chunks(chunk)
-                .map(|rows| this.parse_rows(text, rows, out.len()))
-                .collect()
-        };
-        let mut n = 0;
-        let mut row_spans = spans.iter();
-        for p in parsed {
-            let good = p.n_ok;
-            let lines = row_spans.by_ref().take(good).map(|s| s.2);
-            if let Some(tc) = self.time.as_mut() {
-                for (&(t, q), line) in p.times.iter().zip(lines) {
-                    check_time(&self.file, tc, t, q, line)?;
-                }
-            }
-            for (all, part) in out.iter_mut().zip(&p.channels) {
-                all.extend_from_slice(part.get(..good).unwrap_or(part));
-            }
-            n += good;
-            if let Some(e) = p.error {
-                return Err(e);
-            }
+    /// Parses one line (without its `\n`) into the piece; `false` at a problem.
+    fn take_line(&self, line: &[u8], want_place: bool, p: &mut Piece) -> bool {
+        if line.len() > MAX_LINE_BYTES {
+            let e = csv_err(
+                &self.file,
+                p.n_lines,
+                1,
+                format!(
+                    "line is longer than {} KiB; expected a row of {} numbers",
+                    MAX_LINE_BYTES / 1024,
+                    self.n_fields
+                ),
+            );
+            return self.row_read(p, Err(e));
         }
-        Ok(n)
+        let row = line.strip_suffix(b"\r").unwrap_or(line);
+        if row.iter().all(|b| b.is_ascii_whitespace()) {
+            p.n_lines += 1;
+            return true;
+        }
+        let r = self.parse_row(row, p.n_lines, want_place, &mut p.channels);
+        self.row_read(p, r)
     }
 
-    /// Parses a stretch of rows, stopping at the first bad one.
-    fn parse_rows(&self, text: &[u8], rows: &[(usize, usize, usize)], n_channels: usize) -> Parsed {
-        let mut p = Parsed {
-            channels: (0..n_channels)
-                .map(|_| Vec::with_capacity(rows.len()))
-                .collect(),
-            times: Vec::with_capacity(if self.time.is_some() { rows.len() } else { 0 }),
-            n_ok: 0,
-            error: None,
+    /// Counts a row read (its time checked against the row before it in the piece), or
+    /// keeps the problem and drops what the bad row left; `false` at a problem.
+    #[inline]
+    fn row_read(&self, p: &mut Piece, row: Result<Option<(f64, f64)>, CaptureError>) -> bool {
+        let here = p.n_lines;
+        p.n_lines += 1;
+        let problem = match (row, p.time.as_mut()) {
+            (Ok(Some((t, q))), Some(tc)) => {
+                if p.first_time.is_none() {
+                    p.first_time = Some((t, q, here));
+                }
+                check_time(&self.file, tc, t, q, here).err()
+            }
+            (Ok(_), _) => None,
+            (Err(e), _) => Some(e),
         };
-        for (k, &(a, b, line)) in rows.iter().enumerate() {
-            let row = text.get(a..b).unwrap_or(&[]);
-            match self.parse_row(row, line, &mut p.channels) {
-                Ok(time) => {
-                    if let (Some(_), Some(t)) = (&self.time, time) {
-                        p.times.push(t);
-                    }
-                    p.n_ok = k + 1;
-                }
-                Err(e) => {
-                    p.error = Some(e);
-                    break;
-                }
+        match problem {
+            None => {
+                p.n_rows += 1;
+                true
+            }
+            Some(e) => {
+                p.fail(e);
+                false
             }
         }
-        p
     }
 
-    /// Parses one row into `out`; returns its time cell (value and printed resolution).
-    /// After an error some channels may hold a value of the bad row: callers keep only the
-    /// rows before it.
+    /// Parses one row into `out`; returns its time cell (value and printed resolution,
+    /// the latter only when `want_place`). After an error some channels may hold a value
+    /// of the bad row.
+    #[inline]
     fn parse_row(
         &self,
         row: &[u8],
         line: usize,
+        want_place: bool,
         out: &mut [Vec<f64>],
     ) -> Result<Option<(f64, f64)>, CaptureError> {
         let mut count = 0usize;
@@ -211,12 +509,9 @@ impl CsvStream {
             match role {
                 Role::Skip => {}
                 Role::Time => {
-                    let t = parse_number(cell, self.decimal_comma)
+                    let t = parse_time_cell(cell, self.decimal_comma, want_place)
                         .map_err(|e| csv_err(&self.file, line, count, cell_message(cell, e)))?;
-                    // The printed resolution matters only for fixed-format times.
-                    let fixed = self.time.as_ref().is_some_and(|tc| !tc.exact);
-                    let place = if fixed { last_digit_place(cell) } else { 0.0 };
-                    time = Some((t, place));
+                    time = Some(t);
                 }
                 Role::Value(k) => {
                     let v = parse_number(cell, self.decimal_comma)
@@ -245,26 +540,6 @@ impl CsvStream {
                 self.delim.describe()
             ),
         )
-    }
-
-    /// Warnings known only once every row has been read.
-    pub(crate) fn end_warnings(&self) -> Vec<String> {
-        let mut w = Vec::new();
-        if let Some(tc) = &self.time {
-            if tc.jittered > 0 {
-                w.push(format!(
-                    "time steps deviate by more than {:.0} % from the sample interval at {} of {} steps (first on line {}, largest {:.1} %); the {} of the first rows, {:e} s, is used",
-                    JITTER_FRACTION * 100.0,
-                    tc.jittered,
-                    tc.steps,
-                    tc.first_jitter_line,
-                    tc.max_deviation * 100.0,
-                    tc.dt_from,
-                    crate::capture::sig(tc.dt_s)
-                ));
-            }
-        }
-        w
     }
 }
 
@@ -298,6 +573,106 @@ mod tests {
                 ..
             } => (line, column, message),
             other => panic!("expected a CSV error, got {other}"),
+        }
+    }
+
+    /// Reads every row of `path` through the stream, `per_block` rows at a time, with
+    /// chunks of `chunk` bytes (the default when `None`), cut into pieces when `pieces`:
+    /// the values (as bits), the end warnings, or the error.
+    fn read_all(
+        path: &std::path::Path,
+        chunk: Option<usize>,
+        pieces: bool,
+        per_block: usize,
+    ) -> Result<(Vec<Vec<u64>>, Vec<String>), String> {
+        let (cap, mut s, _) =
+            crate::capture::csv::open(path, &ReadOptions::default()).map_err(|e| e.to_string())?;
+        if let Some(n) = chunk {
+            s.set_chunk_bytes(n);
+        }
+        if pieces {
+            s.always_in_pieces();
+        }
+        let mut all = vec![Vec::new(); cap.channels.len()];
+        loop {
+            let mut block = vec![Vec::new(); cap.channels.len()];
+            match s.fill(&mut block, per_block) {
+                Ok(0) => break,
+                Ok(n) => {
+                    for (a, b) in all.iter_mut().zip(&block) {
+                        assert_eq!(b.len(), n);
+                        a.extend(b.iter().map(|x| x.to_bits()));
+                    }
+                }
+                Err(e) => return Err(e.to_string()),
+            }
+        }
+        Ok((all, s.end_warnings()))
+    }
+
+    /// One line of an invented record: row `k` at 1 us steps, well formed or broken in one
+    /// of the ways files are.
+    fn line(kind: u8, k: usize, v: f64) -> String {
+        let t = k as f64 * 1e-6;
+        match kind {
+            0 => format!("{t:.9e},{v:.4}"),
+            1 => format!("{t:.9e},{v:.4}\r"),
+            2 => String::new(),
+            3 => "  \r".to_string(),
+            4 => format!(" {t:.9e} , \"{v:.4}\" "),
+            5 => format!("{t:.9e},{v:.4},"),
+            6 => format!("{t:.9e},abc"),
+            7 => format!("{t:.9e},{v:.4},1"),
+            8 => format!("{:.9e},{v:.4}", t + 0.3e-6),
+            9 => format!("{:.9e},{v:.4}", t - 1e-6),
+            10 => format!("{t:.9e}"),
+            11 => format!("{t:.9e},NaN"),
+            12 => format!("{t},{v}"),
+            _ => format!("{:.9e},{v:.4}", t + 3e-6),
+        }
+    }
+
+    proptest::proptest! {
+        #![proptest_config(proptest::prelude::ProptestConfig::with_cases(300))]
+
+        /// However the text is cut into chunks and pieces and the rows into blocks, the
+        /// values, warnings and first error are the same.
+        #[test]
+        fn chunks_pieces_and_blocks_do_not_change_what_is_read(
+            kinds in proptest::collection::vec(
+                proptest::prop_oneof![
+                    30 => proptest::strategy::Just(0u8),
+                    20 => 1u8..14,
+                ],
+                0..120,
+            ),
+            values in proptest::collection::vec(-500.0f64..500.0, 120),
+            last_newline: bool,
+        ) {
+            let mut text = String::from("t,v\n");
+            for k in 0..6 {
+                text.push_str(&line(0, k, 1.0));
+                text.push('\n');
+            }
+            for (j, &kind) in kinds.iter().enumerate() {
+                text.push_str(&line(kind, 6 + j, values[j]));
+                if j + 1 < kinds.len() || last_newline {
+                    text.push('\n');
+                }
+            }
+            let f = tempfile::Builder::new().suffix(".csv").tempfile().unwrap();
+            std::fs::write(f.path(), &text).unwrap();
+            let reference = read_all(f.path(), None, false, 1 << 16);
+            for (chunk, pieces, per_block) in [
+                (Some(1), true, 1),
+                (Some(13), true, 3),
+                (Some(64), false, 7),
+                (Some(200), true, 50),
+                (None, true, 2),
+            ] {
+                let got = read_all(f.path(), chunk, pieces, per_block);
+                proptest::prop_assert_eq!(&got, &reference, "chunk {:?} pieces {}", chunk, pieces);
+            }
         }
     }
 

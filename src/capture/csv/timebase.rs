@@ -96,6 +96,7 @@ pub(super) struct TimeCheck {
     pub(super) max_deviation: f64,
 }
 
+#[inline]
 pub(super) fn check_time(
     file: &Path,
     tc: &mut TimeCheck,
@@ -115,29 +116,11 @@ pub(super) fn check_time(
         // coarsely printed column is checked only as far as its digits allow.
         let rounding = q + prev_q;
         if step < -rounding || (step <= 0.0 && rounding < 0.25 * tc.dt_s) {
-            return Err(csv_err(
-                file,
-                line,
-                1,
-                format!(
-                    "time goes backwards or repeats ({:e} s after {:e} s); expected rising time",
-                    crate::capture::sig(t),
-                    crate::capture::sig(prev)
-                ),
-            ));
+            return Err(backwards(file, line, t, prev));
         }
         tc.steps += 1;
         if step > GAP_FACTOR * tc.dt_s + rounding {
-            return Err(csv_err(
-                file,
-                line,
-                1,
-                format!(
-                    "gap in the time column: a step of {:e} s where the sample interval is {:e} s (missing rows before this line?)",
-                    crate::capture::sig(step),
-                    crate::capture::sig(tc.dt_s)
-                ),
-            ));
+            return Err(gap(file, line, step, tc.dt_s));
         }
         let dev = (step - tc.dt_s).abs();
         if dev > JITTER_FRACTION * tc.dt_s + rounding {
@@ -152,7 +135,48 @@ pub(super) fn check_time(
     Ok(())
 }
 
+#[cold]
+fn backwards(file: &Path, line: usize, t: f64, prev: f64) -> CaptureError {
+    csv_err(
+        file,
+        line,
+        1,
+        format!(
+            "time goes backwards or repeats ({:e} s after {:e} s); expected rising time",
+            crate::capture::sig(t),
+            crate::capture::sig(prev)
+        ),
+    )
+}
+
+#[cold]
+fn gap(file: &Path, line: usize, step: f64, dt_s: f64) -> CaptureError {
+    csv_err(
+        file,
+        line,
+        1,
+        format!(
+            "gap in the time column: a step of {:e} s where the sample interval is {:e} s (missing rows before this line?)",
+            crate::capture::sig(step),
+            crate::capture::sig(dt_s)
+        ),
+    )
+}
+
 impl TimeCheck {
+    /// The same check with nothing seen yet: for a stretch of rows checked on its own and
+    /// joined to the rows before it later.
+    pub(super) fn fresh(&self) -> TimeCheck {
+        TimeCheck {
+            prev: None,
+            steps: 0,
+            jittered: 0,
+            first_jitter_line: 0,
+            max_deviation: 0.0,
+            ..*self
+        }
+    }
+
     /// The sample interval and the checks for the rest of the column, from the times of the
     /// first rows (in the file's unit; `factor` converts to seconds).
     pub(super) fn from_first_rows(times: &[(f64, f64, usize)], factor: f64) -> Option<TimeCheck> {

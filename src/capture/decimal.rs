@@ -1,0 +1,336 @@
+//! Plain decimal numbers as scopes and scripts print them (`24.3137`, `1.234567890e-01`),
+//! read without a general-purpose parser.
+//!
+//! Clinger's fast path (W. D. Clinger, "How to read floating point numbers accurately",
+//! PLDI 1990): a number written as an integer mantissa `w` times `10^e` is exactly the
+//! correctly rounded double `w * 10^e` (or `w / 10^-e`) when `w <= 2^53` and `|e| <= 22`,
+//! because both operands are then exact doubles and IEEE 754 rounds the one product or
+//! quotient correctly. Anything else (more than 19 digits, larger exponents,
+//! `inf`, text) is left to the caller's general parser, so results are bit-identical to a
+//! correctly rounded parser for every input.
+
+/// Powers of ten that are exact doubles (10^22 is the last one, 5^22 < 2^53).
+const POW10: [f64; 23] = [
+    1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10, 1e11, 1e12, 1e13, 1e14, 1e15, 1e16,
+    1e17, 1e18, 1e19, 1e20, 1e21, 1e22,
+];
+
+/// Mantissas up to this value are exact doubles.
+const MAX_EXACT_MANTISSA: u64 = 1 << 53;
+
+/// Most digits gathered into a `u64` mantissa (10^19 - 1 < 2^64).
+const MAX_DIGITS: usize = 19;
+
+/// A number read by the fast path.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(crate) struct Decimal {
+    pub(crate) value: f64,
+    /// Power of ten of the last digit written (`1.25e-6` -> -8): the printed resolution.
+    pub(crate) last_place: i32,
+}
+
+/// Reads `[+-]digits[.digits][(e|E)[+-]digits]` (a comma may stand for the point when
+/// `decimal_comma`), or returns `None` when the text is anything else or the value needs
+/// more than the fast path: then the general parser decides, and gives the same value.
+#[inline]
+pub(crate) fn read_fast(cell: &[u8], decimal_comma: bool) -> Option<Decimal> {
+    match read_prefix(cell, decimal_comma) {
+        Some((d, end)) if end == cell.len() => Some(d),
+        _ => None,
+    }
+}
+
+/// Reads the number at the start of `text` as [`read_fast`] does and returns it with the
+/// length of its text; what follows is the caller's to judge (a delimiter, a line end).
+#[inline(always)]
+pub(crate) fn read_prefix(text: &[u8], decimal_comma: bool) -> Option<(Decimal, usize)> {
+    let (negative, mut i) = match text.first() {
+        Some(b'-') => (true, 1),
+        Some(b'+') => (false, 1),
+        _ => (false, 0),
+    };
+    let int_start = i;
+    // The integer part is short (a few digits) in what instruments print: one at a time.
+    let mut w: u64 = 0;
+    while let Some(d) = text
+        .get(i)
+        .map(|b| b.wrapping_sub(b'0'))
+        .filter(|&d| d <= 9)
+    {
+        w = w.wrapping_mul(10).wrapping_add(u64::from(d));
+        i += 1;
+    }
+    let n_int = i - int_start;
+    let mut n_frac = 0usize;
+    if let Some(&b) = text.get(i) {
+        if b == b'.' || (decimal_comma && b == b',') {
+            i += 1;
+            let frac_start = i;
+            w = fraction_digits(text, &mut i, w);
+            n_frac = i - frac_start;
+        }
+    }
+    // Leading zeros count too: fewer than 20 digits cannot have wrapped the mantissa.
+    if n_int + n_frac == 0 || n_int + n_frac > MAX_DIGITS {
+        return None;
+    }
+    let mut exp: i32 = 0;
+    if let Some(b'e' | b'E') = text.get(i) {
+        i += 1;
+        let exp_negative = match text.get(i) {
+            Some(b'-') => {
+                i += 1;
+                true
+            }
+            Some(b'+') => {
+                i += 1;
+                false
+            }
+            _ => false,
+        };
+        let exp_start = i;
+        while let Some(d) = text
+            .get(i)
+            .map(|b| b.wrapping_sub(b'0'))
+            .filter(|&d| d <= 9)
+        {
+            exp = exp * 10 + i32::from(d);
+            i += 1;
+            // Four digits bound the exponent far beyond any double; longer ones go to
+            // the general parser.
+            if i - exp_start > 4 {
+                return None;
+            }
+        }
+        if i == exp_start {
+            return None;
+        }
+        if exp_negative {
+            exp = -exp;
+        }
+    }
+    // n_frac <= MAX_DIGITS here.
+    let last_place = exp - n_frac as i32;
+    let magnitude = if w == 0 {
+        0.0
+    } else if w > MAX_EXACT_MANTISSA {
+        return None;
+    } else {
+        let m = w as f64;
+        match last_place {
+            0..=22 => m * POW10[last_place as usize],
+            -22..=-1 => m / POW10[(-last_place) as usize],
+            _ => return None,
+        }
+    };
+    Some((
+        Decimal {
+            value: if negative { -magnitude } else { magnitude },
+            last_place,
+        },
+        i,
+    ))
+}
+
+/// `10^n` for the digit counts of one eight-byte step.
+const POW10_INT: [u64; 9] = [
+    1,
+    10,
+    100,
+    1_000,
+    10_000,
+    100_000,
+    1_000_000,
+    10_000_000,
+    100_000_000,
+];
+
+/// Appends the digits from `i` on to `w` (it wraps past 19 digits; the caller refuses
+/// those). The first eight bytes are looked at together: the run of digits at their start
+/// is found and converted without a branch per digit, so fractions of varying length cost
+/// the same (SWAR, "SIMD within a register", as in Lemire's fast_float); digits past them
+/// (`%.9e` writes nine) go one at a time.
+#[inline(always)]
+fn fraction_digits(text: &[u8], i: &mut usize, mut w: u64) -> u64 {
+    if let Some(eight) = text
+        .get(*i..*i + 8)
+        .and_then(|s| <[u8; 8]>::try_from(s).ok())
+    {
+        let codes = u64::from_le_bytes(eight).wrapping_sub(ZEROS);
+        let run = digit_run(codes);
+        if run == 0 {
+            return w;
+        }
+        w = w
+            .wrapping_mul(POW10_INT[run])
+            .wrapping_add(leading_digits_value(codes, run));
+        *i += run;
+        if run < 8 {
+            return w;
+        }
+    }
+    while let Some(d) = text
+        .get(*i)
+        .map(|b| b.wrapping_sub(b'0'))
+        .filter(|&d| d <= 9)
+    {
+        w = w.wrapping_mul(10).wrapping_add(u64::from(d));
+        *i += 1;
+    }
+    w
+}
+
+/// `'0'` in every byte.
+const ZEROS: u64 = 0x3030_3030_3030_3030;
+
+/// How many of eight bytes (first byte lowest), each already less `'0'`, are digits (0 to
+/// 9) before the first that is not. Adding 0x76 sets a byte's top bit exactly when it is
+/// 10 or more; borrows and carries between bytes only start at a byte that is not a digit,
+/// so they can only disturb bytes after the run.
+#[inline(always)]
+fn digit_run(codes: u64) -> usize {
+    let big = (codes.wrapping_add(0x7676_7676_7676_7676) | codes) & 0x8080_8080_8080_8080;
+    (big.trailing_zeros() / 8) as usize
+}
+
+/// The number spelled by the first `run` (1 to 8) digit codes of `codes`: they are moved
+/// to the top of the word, so the bytes below are leading zeros, then converted as eight.
+#[inline(always)]
+fn leading_digits_value(codes: u64, run: usize) -> u64 {
+    let shift = 64 - 8 * run as u32;
+    eight_digit_value_of_codes(codes << shift)
+}
+
+/// The number eight ASCII digits (first digit in the low byte) spell.
+#[cfg(test)]
+fn eight_digit_value(v: u64) -> u64 {
+    eight_digit_value_of_codes(v.wrapping_sub(ZEROS))
+}
+
+/// The number eight digit values (0 to 9, first in the low byte) spell: pairs, then
+/// quadruples, then the eight, combined by multiplications within one `u64`.
+#[inline(always)]
+fn eight_digit_value_of_codes(v: u64) -> u64 {
+    const MASK: u64 = 0x0000_00FF_0000_00FF;
+    const MUL1: u64 = 100 + (1_000_000 << 32);
+    const MUL2: u64 = 1 + (10_000 << 32);
+    let v = v.wrapping_mul(10).wrapping_add(v >> 8);
+    (v & MASK)
+        .wrapping_mul(MUL1)
+        .wrapping_add(((v >> 16) & MASK).wrapping_mul(MUL2))
+        >> 32
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn fast(s: &str) -> Option<f64> {
+        read_fast(s.as_bytes(), false).map(|d| d.value)
+    }
+
+    #[test]
+    fn printed_forms_read_exactly() {
+        // Expected values: Rust's correctly rounded `str::parse::<f64>` of the same text.
+        for s in [
+            "24.3137",
+            "-0.3922",
+            "1.234567890e-01",
+            "2.000000000e-08",
+            "0.000000000e+00",
+            "-0",
+            "+7",
+            "5.",
+            ".5",
+            "1E5",
+            "9007199254740992",
+            "123456789012345678e-3",
+            "0.0000000000000000000000000000001",
+        ] {
+            let want: f64 = s.parse().unwrap();
+            let got = fast(s);
+            if let Some(g) = got {
+                assert_eq!(g.to_bits(), want.to_bits(), "{s}");
+            }
+        }
+        assert_eq!(fast("-0").map(f64::to_bits), Some((-0.0f64).to_bits()));
+        assert_eq!(fast("24.3137"), Some(24.3137));
+    }
+
+    #[test]
+    fn what_the_fast_path_leaves_to_the_general_parser() {
+        // 2^53 + 1 is not an exact double; 10^23 is not an exact power; 20 digits overflow
+        // the gathered mantissa; the rest is not a plain decimal.
+        for s in [
+            "9007199254740993",
+            "1e23",
+            "12345678901234567890",
+            "1e-23",
+            "1e",
+            "1e+",
+            "e5",
+            ".",
+            "-",
+            "",
+            "1.2.3",
+            "1,5",
+            "inf",
+            "NaN",
+            "1e00001",
+            "0x10",
+            "1_000",
+            " 1",
+        ] {
+            assert_eq!(fast(s), None, "{s}");
+        }
+        assert_eq!(read_fast(b"1,5", true).map(|d| d.value), Some(1.5));
+    }
+
+    #[test]
+    fn eight_bytes_at_a_time() {
+        let codes = |b: &[u8; 8]| u64::from_le_bytes(*b).wrapping_sub(ZEROS);
+        assert_eq!(digit_run(codes(b"01234567")), 8);
+        assert_eq!(digit_run(codes(b"0123456.")), 7);
+        assert_eq!(digit_run(codes(b"/1234567")), 0);
+        assert_eq!(digit_run(codes(b"0123:567")), 4);
+        assert_eq!(
+            eight_digit_value(u64::from_le_bytes(*b"01234567")),
+            1_234_567
+        );
+        assert_eq!(
+            eight_digit_value(u64::from_le_bytes(*b"98765432")),
+            98_765_432
+        );
+        assert_eq!(leading_digits_value(codes(b"407,xyz\n"), 3), 407);
+        // Every byte value in every place, after runs of every length, against a scalar
+        // count: bytes below '0' (which borrow) and above 0x89 (which carry) included.
+        for run in 0..8 {
+            for b in 0..=255u8 {
+                let mut w = *b"98765432";
+                w[run] = b;
+                let want = w.iter().take_while(|c| c.is_ascii_digit()).count();
+                let v = codes(&w);
+                assert_eq!(digit_run(v), want, "{w:?}");
+                if want > 0 {
+                    let text = std::str::from_utf8(&w[..want]).unwrap();
+                    assert_eq!(leading_digits_value(v, want), text.parse::<u64>().unwrap());
+                }
+            }
+        }
+        // A prefix stops where the number does.
+        let (d, end) = read_prefix(b"1.234567890e-01,24.3137\n", false).unwrap();
+        assert_eq!((d.value, end), (0.123456789, 15));
+        let (d, end) = read_prefix(b"24.3137\n", false).unwrap();
+        assert_eq!((d.value, end), (24.3137, 7));
+    }
+
+    #[test]
+    fn the_last_printed_place() {
+        let place = |s: &str| read_fast(s.as_bytes(), false).unwrap().last_place;
+        assert_eq!(place("1.25e-6"), -8);
+        assert_eq!(place("0.000123"), -6);
+        assert_eq!(place("12"), 0);
+        assert_eq!(place("-3.50E+02"), 0);
+        assert_eq!(place("0.000000000e+00"), -9);
+    }
+}
