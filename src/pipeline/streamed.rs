@@ -99,10 +99,10 @@ fn pick_block(
     pick_channels(&mut cap, settings)
 }
 
-/// Plain little-endian f64 values written to an unnamed temporary file and read back.
+/// Plain f64 values (in the machine's byte order: the file lives and dies with this
+/// process) written to an unnamed temporary file and read back.
 struct Spill {
     file: File,
-    bytes: Vec<u8>,
 }
 
 impl Spill {
@@ -113,17 +113,12 @@ impl Spill {
                 path.display()
             )
         })?;
-        Ok(Spill {
-            file,
-            bytes: Vec::new(),
-        })
+        Ok(Spill { file })
     }
 
     /// Writes a block (blocks are long: no further buffering).
     fn write(&mut self, v: &[f64]) -> std::io::Result<()> {
-        self.bytes.clear();
-        self.bytes.extend(v.iter().flat_map(|x| x.to_le_bytes()));
-        self.file.write_all(&self.bytes)
+        self.file.write_all(bytemuck::cast_slice(v))
     }
 
     fn finish(self) -> std::io::Result<File> {
@@ -162,17 +157,16 @@ impl Replay for Source<'_> {
                 if let Some(f) = i.as_mut() {
                     f.seek(SeekFrom::Start(0)).map_err(fail)?;
                 }
-                let mut bytes = vec![0u8; BLOCK * 8];
                 let mut vb = Vec::with_capacity(BLOCK);
                 let mut ib = Vec::with_capacity(BLOCK);
                 loop {
-                    let n = read_values(v, &mut bytes, &mut vb).map_err(fail)?;
+                    let n = read_values(v, BLOCK, &mut vb).map_err(fail)?;
                     if n == 0 {
                         return Ok(true);
                     }
                     let cur = match i.as_mut() {
                         Some(f) => {
-                            read_values(f, &mut bytes[..n * 8], &mut ib).map_err(fail)?;
+                            read_values(f, n, &mut ib).map_err(fail)?;
                             (ib.len() == n).then_some(ib.as_slice())
                         }
                         None => None,
@@ -206,8 +200,10 @@ impl Replay for Source<'_> {
     }
 }
 
-/// Fills `out` with up to `bytes.len() / 8` values read from `f`; returns how many.
-fn read_values(f: &mut File, bytes: &mut [u8], out: &mut Vec<f64>) -> std::io::Result<usize> {
+/// Fills `out` with up to `max` values read from `f`; returns how many.
+fn read_values(f: &mut File, max: usize, out: &mut Vec<f64>) -> std::io::Result<usize> {
+    out.resize(max, 0.0);
+    let bytes: &mut [u8] = bytemuck::cast_slice_mut(out.as_mut_slice());
     let mut got = 0;
     while got < bytes.len() {
         match f.read(&mut bytes[got..])? {
@@ -215,12 +211,7 @@ fn read_values(f: &mut File, bytes: &mut [u8], out: &mut Vec<f64>) -> std::io::R
             k => got += k,
         }
     }
-    out.clear();
-    out.extend(
-        bytes[..got - got % 8]
-            .chunks_exact(8)
-            .map(|c| f64::from_le_bytes([c[0], c[1], c[2], c[3], c[4], c[5], c[6], c[7]])),
-    );
+    out.truncate(got / 8);
     Ok(out.len())
 }
 
