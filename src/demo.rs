@@ -290,3 +290,33 @@ fn parasitics_lines(captures: &Path, pair: &ScenarioPair, scenario: &Scenario) -
     }
     lines
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// A stop asked for before the run starts: nothing is measured, the error counts the
+    /// scenario's files, and no report folder appears.
+    #[test]
+    fn a_stopped_run_measures_nothing_and_writes_nothing() {
+        let captures = Path::new(env!("CARGO_MANIFEST_DIR")).join("sample-captures");
+        let dir = tempfile::tempdir().unwrap();
+        let out = dir.path().join("report");
+        let ticks = AtomicUsize::new(0);
+        let tick = || {
+            ticks.fetch_add(1, Ordering::SeqCst);
+        };
+        let stop = Some(Arc::new(AtomicBool::new(true)));
+        match run(&captures, &out, false, stop, &tick) {
+            // sample-captures/: 4 captures in each of the 4 variant folders, 2 in
+            // coil-current/, and the bare/loaded pair of ringdown/ (scenario.json).
+            Err(DemoError::Interrupted { measured, total }) => {
+                assert_eq!((measured, total), (0, 20));
+            }
+            Err(e) => panic!("{e}"),
+            Ok(_) => panic!("a stopped run wrote its report"),
+        }
+        assert_eq!(ticks.load(Ordering::SeqCst), 0);
+        assert!(!out.exists());
+    }
+}
