@@ -174,10 +174,18 @@ pub fn run(cli: Cli) -> Result<ExitCode> {
             force,
         } => {
             let dir = kickscan::demo::locate_captures(captures.as_deref())?;
+            let stop = stop_on_ctrl_c();
             let outcome =
                 crate::progress::with_bar(false, "measuring the sample captures", |tick| {
-                    kickscan::demo::run(&dir, &out, force, tick)
-                })?;
+                    kickscan::demo::run(&dir, &out, force, stop, tick)
+                });
+            let outcome = match outcome {
+                Err(e @ kickscan::demo::DemoError::Interrupted { .. }) => {
+                    eprintln!("interrupted: {e}");
+                    return Ok(ExitCode::from(EXIT_INTERRUPTED));
+                }
+                r => r?,
+            };
             let mut stdout = std::io::stdout().lock();
             writeln!(stdout, "{}", outcome.scenario.title)?;
             writeln!(stdout, "(simulated captures in {})\n", dir.display())?;

@@ -4,6 +4,8 @@
 //! `measure` and `parasitics` with the settings a user would type.
 
 use std::path::{Path, PathBuf};
+use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
+use std::sync::Arc;
 
 use serde::Deserialize;
 use thiserror::Error;
@@ -61,6 +63,9 @@ pub enum DemoError {
     Scenario { file: PathBuf, message: String },
     #[error(transparent)]
     Report(#[from] report::ReportError),
+    /// A stop was asked for (Ctrl-C); the run ended between steps, before the report.
+    #[error("{measured} of {total} files measured; no report written")]
+    Interrupted { measured: usize, total: usize },
 }
 
 /// What the demo found, for the closing lines it prints.
@@ -111,11 +116,15 @@ pub fn load_scenario(dir: &Path) -> Result<Scenario, DemoError> {
     Ok(sc)
 }
 
-/// Runs the demo and writes the report to `out`.
+/// Runs the demo and writes the report to `out`. When `stop` is set (the binary's Ctrl-C
+/// handler), the run ends after the step under way (the files being measured finish) with
+/// [`DemoError::Interrupted`], and writes nothing: a report missing captures must not pass
+/// for the demo's.
 pub fn run(
     captures: &Path,
     out: &Path,
     force: bool,
+    stop: Option<Arc<AtomicBool>>,
     progress: &(dyn Fn() + Sync),
 ) -> Result<DemoOutcome, DemoError> {
     let scenario = load_scenario(captures)?;
@@ -124,6 +133,24 @@ pub fn run(
     settings.measure.rating_v = scenario.rating_v;
     settings.measure.inductance_h = scenario.inductance_h;
     settings.block = scenario.block;
+    settings.stop = stop;
+
+    let measured = AtomicUsize::new(0);
+    let counted = || {
+        measured.fetch_add(1, Ordering::SeqCst);
+        progress();
+    };
+    let progress: &(dyn Fn() + Sync) = &counted;
+    let check_stop = || {
+        if settings.stopped() {
+            Err(DemoError::Interrupted {
+                measured: measured.load(Ordering::SeqCst),
+                total: scenario_files(captures, &scenario),
+            })
+        } else {
+            Ok(())
+        }
+    };
 
     let variants: Vec<Variant> = scenario
         .variants
@@ -134,6 +161,7 @@ pub fn run(
         })
         .collect();
     let run = compare::compare(&variants, None, &settings, true, progress);
+    check_stop()?;
     let mut projections = compare::rating_lines(&variants, &run.docs);
     projections.extend(compare::projection_lines(&variants, &run.docs));
     let variant_data = run.variant_data(&variants);
@@ -149,11 +177,17 @@ pub fn run(
         };
         pipeline::measure_inputs(&[captures.join(&c.folder)], &s, progress)
     });
+    check_stop()?;
 
     let parasitics_lines = match &scenario.parasitics {
-        Some(pair) => parasitics_lines(captures, pair, &scenario),
+        Some(pair) => {
+            let lines = parasitics_lines(captures, pair, &scenario);
+            measured.fetch_add(2, Ordering::SeqCst);
+            lines
+        }
         None => Vec::new(),
     };
+    check_stop()?;
 
     // Advice for this coil, from the capture that has its current at turn-off.
     let advice_lines = current
@@ -194,6 +228,19 @@ pub fn run(
         report_html: out.join("report.html"),
         n_errors,
     })
+}
+
+/// How many files the scenario has the demo measure: the variants' and the current
+/// capture's (as `measure` expands folders) and the bare/loaded pair.
+fn scenario_files(captures: &Path, scenario: &Scenario) -> usize {
+    let folders: Vec<PathBuf> = scenario
+        .variants
+        .iter()
+        .map(|v| captures.join(&v.folder))
+        .chain(scenario.current.iter().map(|c| captures.join(&c.folder)))
+        .collect();
+    let pair = if scenario.parasitics.is_some() { 2 } else { 0 };
+    pipeline::collect_inputs(&folders).0.len() + pair
 }
 
 /// The added-capacitance method on the scenario's bare/loaded pair, in a few lines.
@@ -242,4 +289,34 @@ fn parasitics_lines(captures: &Path, pair: &ScenarioPair, scenario: &Scenario) -
         ));
     }
     lines
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// A stop asked for before the run starts: nothing is measured, the error counts the
+    /// scenario's files, and no report folder appears.
+    #[test]
+    fn a_stopped_run_measures_nothing_and_writes_nothing() {
+        let captures = Path::new(env!("CARGO_MANIFEST_DIR")).join("sample-captures");
+        let dir = tempfile::tempdir().unwrap();
+        let out = dir.path().join("report");
+        let ticks = AtomicUsize::new(0);
+        let tick = || {
+            ticks.fetch_add(1, Ordering::SeqCst);
+        };
+        let stop = Some(Arc::new(AtomicBool::new(true)));
+        match run(&captures, &out, false, stop, &tick) {
+            // sample-captures/: 4 captures in each of the 4 variant folders, 2 in
+            // coil-current/, and the bare/loaded pair of ringdown/ (scenario.json).
+            Err(DemoError::Interrupted { measured, total }) => {
+                assert_eq!((measured, total), (0, 20));
+            }
+            Err(e) => panic!("{e}"),
+            Ok(_) => panic!("a stopped run wrote its report"),
+        }
+        assert_eq!(ticks.load(Ordering::SeqCst), 0);
+        assert!(!out.exists());
+    }
 }

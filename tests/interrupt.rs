@@ -109,3 +109,189 @@ fn ctrl_c_stops_the_batch_and_keeps_the_old_report() {
     }
     panic!("the batch always finished before Ctrl-C arrived, or it arrived before start-up");
 }
+
+/// Copies `from` (a folder of files and folders) into `to`.
+fn copy_tree(from: &Path, to: &Path) {
+    std::fs::create_dir_all(to).unwrap();
+    for entry in std::fs::read_dir(from).unwrap() {
+        let entry = entry.unwrap();
+        let target = to.join(entry.file_name());
+        if entry.file_type().unwrap().is_dir() {
+            copy_tree(&entry.path(), &target);
+        } else {
+            std::fs::copy(entry.path(), target).unwrap();
+        }
+    }
+}
+
+/// Whether the captures and the report folder are all the root holds, the report still the
+/// earlier one: nothing half-written, no temporary folder left behind.
+fn assert_old_report_kept(root: &Path, out: &Path) {
+    assert_eq!(
+        std::fs::read_to_string(out.join("report.html")).unwrap(),
+        "the earlier report\n"
+    );
+    let mut names: Vec<String> = std::fs::read_dir(root)
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .collect();
+    names.sort();
+    assert_eq!(names, ["captures", "report"]);
+}
+
+/// `demo` on the bundled scenario with the zener folder padded out with copies of one shot,
+/// so the run is still measuring when the signal comes: the first Ctrl-C ends it after the
+/// files under way, with a line saying how far it got, exit 130 and the earlier report kept.
+#[test]
+fn ctrl_c_stops_the_demo_and_keeps_the_old_report() {
+    let bin = assert_cmd::cargo::cargo_bin("kickscan");
+    let root = tempfile::tempdir().unwrap();
+    let captures = root.path().join("captures");
+    copy_tree(
+        &Path::new(env!("CARGO_MANIFEST_DIR")).join("sample-captures"),
+        &captures,
+    );
+    let out = root.path().join("report");
+    std::fs::create_dir(&out).unwrap();
+    std::fs::write(out.join(".kickscan-report"), "written by kickscan\n").unwrap();
+    std::fs::write(out.join("report.html"), "the earlier report\n").unwrap();
+
+    let mut n_copies = 0;
+    for attempt in 0..3 {
+        let target = 120 << attempt;
+        while n_copies < target {
+            std::fs::copy(
+                sample_shot(),
+                captures.join(format!("zener/copy-{n_copies:04}.csv")),
+            )
+            .unwrap();
+            n_copies += 1;
+        }
+        let mut child = Command::new(&bin)
+            .arg("demo")
+            .arg("--captures")
+            .arg(&captures)
+            .arg("--out")
+            .arg(&out)
+            .stdout(Stdio::piped())
+            .stderr(Stdio::piped())
+            .spawn()
+            .unwrap();
+        std::thread::sleep(Duration::from_millis(800 + 400 * attempt));
+        let sent = Command::new("kill")
+            .arg("-INT")
+            .arg(child.id().to_string())
+            .status()
+            .unwrap();
+        assert!(sent.success());
+        let status = wait_with_limit(&mut child, Duration::from_secs(60));
+        let output = child.wait_with_output().unwrap();
+        let stderr = String::from_utf8_lossy(&output.stderr).into_owned();
+        match status.code() {
+            Some(130) => {
+                let line = stderr
+                    .lines()
+                    .find(|l| l.starts_with("interrupted: "))
+                    .unwrap_or_else(|| panic!("no 'interrupted' line in: {stderr}"));
+                let mut words = line.trim_start_matches("interrupted: ").split(' ');
+                let measured: usize = words.next().unwrap().parse().unwrap();
+                assert_eq!(words.next(), Some("of"), "{line}");
+                let total: usize = words.next().unwrap().parse().unwrap();
+                // The scenario's captures (`ls sample-captures/*/` without the .json
+                // sidecars: 18 in the variant and current folders, the bare/loaded pair)
+                // and the copies.
+                assert_eq!(total, 20 + n_copies, "{line}");
+                assert!(measured < total, "{line}");
+                assert!(
+                    line.ends_with(" files measured; no report written"),
+                    "{line}"
+                );
+                assert!(output.stdout.is_empty(), "no results on stdout: {stderr}");
+                assert_old_report_kept(root.path(), &out);
+                return;
+            }
+            Some(0) | None => continue,
+            other => panic!("exit {other:?} (status {status}); stderr: {stderr}"),
+        }
+    }
+    panic!("the demo always finished before Ctrl-C arrived, or it arrived before start-up");
+}
+
+/// Writes a long capture by formula: a switch node toggling between 0.2 V (on) and 24 V
+/// (off) every 5000 samples, 1 us apart, `n` samples; long enough that measuring it is one
+/// step of seconds in a debug build.
+fn write_long_capture(path: &Path, n: usize) {
+    use std::io::Write;
+    let mut w = std::io::BufWriter::new(std::fs::File::create(path).unwrap());
+    writeln!(w, "t,v").unwrap();
+    for k in 0..n {
+        let v = if (k / 5000) % 2 == 1 { 24.0 } else { 0.2 };
+        // A little deterministic wobble, so the levels have a spread to measure.
+        let wobble = 0.01 * ((k % 7) as f64 - 3.0);
+        writeln!(w, "{:e},{}", k as f64 * 1e-6, v + wobble).unwrap();
+    }
+}
+
+/// A second Ctrl-C ends the demo at once, in the middle of measuring a long capture: exit
+/// 130 without the line a finished step prints, and the earlier report kept.
+#[test]
+fn a_second_ctrl_c_ends_the_demo_at_once() {
+    let bin = assert_cmd::cargo::cargo_bin("kickscan");
+    let root = tempfile::tempdir().unwrap();
+    let captures = root.path().join("captures");
+    std::fs::create_dir_all(captures.join("long")).unwrap();
+    std::fs::create_dir_all(captures.join("short")).unwrap();
+    std::fs::copy(sample_shot(), captures.join("short/shot-01.csv")).unwrap();
+    std::fs::write(
+        captures.join("scenario.json"),
+        r#"{"title": "one long capture", "supply_v": 24.0, "rating_v": 60.0,
+            "inductance_h": null,
+            "variants": [{"label": "long", "folder": "long"},
+                         {"label": "short", "folder": "short"}]}"#,
+    )
+    .unwrap();
+    let out = root.path().join("report");
+    std::fs::create_dir(&out).unwrap();
+    std::fs::write(out.join(".kickscan-report"), "written by kickscan\n").unwrap();
+    std::fs::write(out.join("report.html"), "the earlier report\n").unwrap();
+
+    for attempt in 0..3 {
+        write_long_capture(&captures.join("long/long.csv"), 1_000_000 << attempt);
+        let mut child = Command::new(&bin)
+            .arg("demo")
+            .arg("--captures")
+            .arg(&captures)
+            .arg("--out")
+            .arg(&out)
+            .stdout(Stdio::piped())
+            .stderr(Stdio::piped())
+            .spawn()
+            .unwrap();
+        std::thread::sleep(Duration::from_millis(800 + 400 * attempt));
+        for _ in 0..2 {
+            let sent = Command::new("kill")
+                .arg("-INT")
+                .arg(child.id().to_string())
+                .status()
+                .unwrap();
+            assert!(sent.success());
+            // Apart enough that the two signals are not merged into one pending signal.
+            std::thread::sleep(Duration::from_millis(200));
+        }
+        let status = wait_with_limit(&mut child, Duration::from_secs(60));
+        let output = child.wait_with_output().unwrap();
+        let stderr = String::from_utf8_lossy(&output.stderr).into_owned();
+        match status.code() {
+            Some(130) if !stderr.contains("interrupted: ") => {
+                assert!(output.stdout.is_empty());
+                assert_old_report_kept(root.path(), &out);
+                return;
+            }
+            // The long capture was measured before the second signal came (a fast machine),
+            // the run finished, or the signal beat the handler: again, longer.
+            Some(130) | Some(0) | None => continue,
+            other => panic!("exit {other:?} (status {status}); stderr: {stderr}"),
+        }
+    }
+    panic!("the second Ctrl-C never ended the demo while it measured the long capture");
+}
