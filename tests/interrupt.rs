@@ -220,16 +220,43 @@ fn ctrl_c_stops_the_demo_and_keeps_the_old_report() {
 /// Writes a long capture by formula: a switch node toggling between 0.2 V (on) and 24 V
 /// (off) every 5000 samples, 1 us apart, `n` samples; long enough that measuring it is one
 /// step of seconds in a debug build.
+/// A 16-bit WAV (with its sidecar: 100 V full scale, 1 MSa/s) of `n` samples switching
+/// between 0.2 V and 24 V every 5000 samples, with a little deterministic wobble so the
+/// levels have a spread to measure. WAV reads fast, so a signal sent a moment after start
+/// finds the run measuring the capture held in memory, a step that only ends when done.
 fn write_long_capture(path: &Path, n: usize) {
     use std::io::Write;
     let mut w = std::io::BufWriter::new(std::fs::File::create(path).unwrap());
-    writeln!(w, "t,v").unwrap();
+    let data = (2 * n) as u32;
+    w.write_all(b"RIFF").unwrap();
+    w.write_all(&(36 + data).to_le_bytes()).unwrap();
+    w.write_all(b"WAVEfmt ").unwrap();
+    for x in [16u32] {
+        w.write_all(&x.to_le_bytes()).unwrap();
+    }
+    for x in [1u16, 1] {
+        w.write_all(&x.to_le_bytes()).unwrap();
+    }
+    for x in [1_000_000u32, 2_000_000] {
+        w.write_all(&x.to_le_bytes()).unwrap();
+    }
+    for x in [2u16, 16] {
+        w.write_all(&x.to_le_bytes()).unwrap();
+    }
+    w.write_all(b"data").unwrap();
+    w.write_all(&data.to_le_bytes()).unwrap();
     for k in 0..n {
         let v = if (k / 5000) % 2 == 1 { 24.0 } else { 0.2 };
-        // A little deterministic wobble, so the levels have a spread to measure.
         let wobble = 0.01 * ((k % 7) as f64 - 3.0);
-        writeln!(w, "{:e},{}", k as f64 * 1e-6, v + wobble).unwrap();
+        let code = ((v + wobble) / 100.0 * 32768.0).round() as i16;
+        w.write_all(&code.to_le_bytes()).unwrap();
     }
+    std::fs::write(
+        path.with_extension("json"),
+        r#"{"sample_rate_hz": 1e6, "t0_s": 0.0, "channels": [{"name": "v", "unit": "V",
+            "volts_per_full_scale": 100.0, "offset_v": 0.0}]}"#,
+    )
+    .unwrap();
 }
 
 /// A second Ctrl-C ends the demo at once, in the middle of measuring a long capture: exit
@@ -256,7 +283,8 @@ fn a_second_ctrl_c_ends_the_demo_at_once() {
     std::fs::write(out.join("report.html"), "the earlier report\n").unwrap();
 
     for attempt in 0..3 {
-        write_long_capture(&captures.join("long/long.csv"), 1_000_000 << attempt);
+        // Held whole in memory (longer captures are streamed and stop at the first Ctrl-C).
+        write_long_capture(&captures.join("long/long.wav"), 1_000_000);
         let mut child = Command::new(&bin)
             .arg("demo")
             .arg("--captures")
