@@ -231,9 +231,7 @@ fn write_long_capture(path: &Path, n: usize) {
     w.write_all(b"RIFF").unwrap();
     w.write_all(&(36 + data).to_le_bytes()).unwrap();
     w.write_all(b"WAVEfmt ").unwrap();
-    for x in [16u32] {
-        w.write_all(&x.to_le_bytes()).unwrap();
-    }
+    w.write_all(&16u32.to_le_bytes()).unwrap();
     for x in [1u16, 1] {
         w.write_all(&x.to_le_bytes()).unwrap();
     }
