@@ -221,8 +221,8 @@ fn ctrl_c_stops_the_demo_and_keeps_the_old_report() {
 /// (off) every 5000 samples, 1 us apart, `n` samples; long enough that measuring it is one
 /// step of seconds in a debug build.
 /// A 16-bit WAV (with its sidecar: 100 V full scale, 1 MSa/s) of `n` samples switching
-/// between 0.2 V and 24 V every 5000 samples, with a little deterministic wobble so the
-/// levels have a spread to measure. WAV reads fast, so a signal sent a moment after start
+/// off every 5000 samples into a ringing 24 V level, with a little deterministic wobble so
+/// the levels have a spread to measure. WAV reads fast, so a signal sent a moment after start
 /// finds the run measuring the capture held in memory, a step that only ends when done.
 fn write_long_capture(path: &Path, n: usize) {
     use std::io::Write;
@@ -244,7 +244,16 @@ fn write_long_capture(path: &Path, n: usize) {
     w.write_all(b"data").unwrap();
     w.write_all(&data.to_le_bytes()).unwrap();
     for k in 0..n {
-        let v = if (k / 5000) % 2 == 1 { 24.0 } else { 0.2 };
+        // Every 5000 samples: on for 1000, then a ring of 100-sample period decaying over
+        // 800 samples (invented shape), which gives the model fit of each of the 200 events
+        // real work.
+        let x = k % 5000;
+        let v = if x < 1000 {
+            0.2
+        } else {
+            let t = (x - 1000) as f64;
+            24.0 + 40.0 * (-t / 800.0).exp() * (std::f64::consts::TAU * t / 100.0).sin()
+        };
         let wobble = 0.01 * ((k % 7) as f64 - 3.0);
         let code = ((v + wobble) / 100.0 * 32768.0).round() as i16;
         w.write_all(&code.to_le_bytes()).unwrap();
