@@ -39,22 +39,26 @@ fn interrupted(path: &Path) -> String {
     format!("{}: interrupted", path.display())
 }
 
+/// The next block of the first read, unless the run was asked to stop.
+fn next_block(
+    path: &Path,
+    reader: &mut BlockReader,
+    block: &mut Block,
+    settings: &Settings,
+) -> Result<bool, String> {
+    if settings.stopped() {
+        return Err(interrupted(path));
+    }
+    reader.next_block_into(block).map_err(|e| e.to_string())
+}
+
 /// Reads `path`; a long capture is measured on the way (see the module notes).
 pub fn load(path: &Path, settings: &Settings, sketch: bool) -> Result<Loaded, String> {
     let mut reader = capture::open_blocks(path, &settings.read).map_err(|e| e.to_string())?;
     let mut channels: Vec<Vec<f64>> = vec![Vec::new(); reader.header().channels.len()];
     let mut block = Block::default();
     let mut held = 0usize;
-    loop {
-        if settings.stopped() {
-            return Err(interrupted(path));
-        }
-        if !reader
-            .next_block_into(&mut block)
-            .map_err(|e| e.to_string())?
-        {
-            break;
-        }
+    while next_block(path, &mut reader, &mut block, settings)? {
         held += block.len();
         for (all, part) in channels.iter_mut().zip(&block.channels) {
             all.extend_from_slice(part);
@@ -329,16 +333,7 @@ fn measure_streaming(
     feed(&signal, current.as_ref())?;
     drop((signal, current));
     let mut block = Block::default();
-    loop {
-        if settings.stopped() {
-            return Err(interrupted(path));
-        }
-        if !reader
-            .next_block_into(&mut block)
-            .map_err(|e| e.to_string())?
-        {
-            break;
-        }
+    while next_block(path, &mut reader, &mut block, settings)? {
         let channels = std::mem::take(&mut block.channels);
         let (sig, cur) = pick_block(&header, channels, settings)?;
         feed(&sig, cur.as_ref())?;
