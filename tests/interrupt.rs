@@ -1,5 +1,6 @@
-//! Ctrl-C during a batch: the run stops starting files, says how far it got, exits 130
-//! (128 + SIGINT, common practice) and leaves the earlier report folder as it was.
+//! Ctrl-C during a batch, inside one long capture and in `demo`: the run stops, says how far
+//! it got, exits 130 (128 + SIGINT, common practice) and leaves the earlier report folder as
+//! it was; a second Ctrl-C ends `demo` at once.
 #![cfg(unix)]
 
 use std::path::Path;
