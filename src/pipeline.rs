@@ -189,14 +189,7 @@ pub fn inspect_file(path: &Path, read: &ReadOptions) -> Result<InspectFile, Stri
             }
         }
     }
-    let mut cap = reader.finish();
-    if n == 0 {
-        return Err(format!(
-            "{}: no samples; expected at least one sample per channel",
-            path.display()
-        ));
-    }
-    cap.notes.push(format!("{n} samples per channel"));
+    let cap = reader.finish_with(Vec::new()).map_err(|e| e.to_string())?;
     let found = |v: f64| v.is_finite().then_some(v);
     Ok(InspectFile {
         file: path.display().to_string(),
@@ -373,12 +366,6 @@ fn measure_capture(
             SKETCH_POINTS,
         );
         sk.label = settings.label.clone();
-        // The widest band any event used: what the overlay should shade.
-        sk.settle_band_v = m
-            .events
-            .iter()
-            .filter_map(|e| e.settle_band_v)
-            .reduce(f64::max);
         sk.fit = worst_fit.map(|(k, fit)| {
             fit_plot(
                 &path.display().to_string(),
@@ -394,22 +381,47 @@ fn measure_capture(
         });
         sk
     });
-    let doc = CaptureDoc {
+    let doc = capture_doc(
+        path,
+        settings,
+        &cap,
+        n_samples,
+        signal.name.clone(),
+        current.map(|c| c.name),
+        m,
+        warnings,
+    );
+    Ok((doc, sketch))
+}
+
+/// The document of one measured capture: `header` gives its format and time base, the
+/// measurement its levels and events.
+#[allow(clippy::too_many_arguments)]
+fn capture_doc(
+    path: &Path,
+    settings: &Settings,
+    header: &Capture,
+    n_samples: usize,
+    signal: String,
+    current: Option<String>,
+    m: measure::CaptureMeasurement,
+    warnings: Vec<String>,
+) -> CaptureDoc {
+    CaptureDoc {
         file: path.display().to_string(),
         label: settings.label.clone(),
-        format: cap.format.to_string(),
-        sample_interval_s: cap.sample_interval_s,
+        format: header.format.to_string(),
+        sample_interval_s: header.sample_interval_s,
         n_samples,
-        t0_s: cap.t0_s,
-        signal: signal.name.clone(),
-        current: current.map(|c| c.name),
+        t0_s: header.t0_s,
+        signal,
+        current,
         polarity: m.polarity,
         v_on: m.v_on,
         v_off: m.v_off,
         warnings,
         events: m.events,
-    };
-    Ok((doc, sketch))
+    }
 }
 
 /// `measure` over many inputs: files in parallel, results in input order. `progress` is

@@ -154,6 +154,25 @@ impl BlockReader {
         self.next_sample
     }
 
+    /// The capture after the last block: [`BlockReader::finish`] with `channels` as the
+    /// samples (leave them empty when only the header is wanted) and the count read noted;
+    /// an error when the file held no sample at all.
+    pub fn finish_with(self, channels: Vec<Vec<f64>>) -> Result<Capture, CaptureError> {
+        let n = self.next_sample;
+        let mut cap = self.finish();
+        for (ch, samples) in cap.channels.iter_mut().zip(channels) {
+            ch.samples = samples;
+        }
+        if n == 0 {
+            return Err(CaptureError::Invalid {
+                file: cap.source.clone(),
+                message: "no samples; expected at least one sample per channel".to_string(),
+            });
+        }
+        cap.notes.push(format!("{n} samples per channel"));
+        Ok(cap)
+    }
+
     /// The header completed with what reading found: ADC rails and code step seen in CSV
     /// data, time-step warnings, a record length that does not match.
     pub fn finish(self) -> Capture {

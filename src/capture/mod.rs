@@ -188,19 +188,7 @@ pub fn read_capture(path: &Path, opts: &ReadOptions) -> Result<Capture, CaptureE
             all.extend_from_slice(part);
         }
     }
-    let mut cap = reader.finish();
-    for (ch, samples) in cap.channels.iter_mut().zip(channels) {
-        ch.samples = samples;
-    }
-    if cap.n_samples() == 0 {
-        return Err(CaptureError::Invalid {
-            file: path.to_path_buf(),
-            message: "no samples; expected at least one sample per channel".to_string(),
-        });
-    }
-    cap.notes
-        .push(format!("{} samples per channel", cap.n_samples()));
-    Ok(cap)
+    reader.finish_with(channels)
 }
 
 /// Which reader a file needs.

@@ -13,7 +13,7 @@ use std::fs::File;
 use std::io::{Read, Seek, SeekFrom, Write};
 use std::path::Path;
 
-use super::{fit_plot, model_context, pick_channels, Settings, SKETCH_POINTS};
+use super::{capture_doc, fit_plot, model_context, pick_channels, Settings, SKETCH_POINTS};
 use crate::capture::{self, AdcRange, Block, BlockReader, Capture, Channel, Format};
 use crate::document::CaptureDoc;
 use crate::measure::stream::{
@@ -68,16 +68,7 @@ pub fn load(path: &Path, settings: &Settings, sketch: bool) -> Result<Loaded, St
             return Ok(Loaded::Measured(Box::new(doc), sk));
         }
     }
-    let mut cap = reader.finish();
-    for (ch, samples) in cap.channels.iter_mut().zip(channels) {
-        ch.samples = samples;
-    }
-    if cap.n_samples() == 0 {
-        return Err(format!(
-            "{}: no samples; expected at least one sample per channel",
-            path.display()
-        ));
-    }
+    let cap = reader.finish_with(channels).map_err(|e| e.to_string())?;
     Ok(Loaded::Whole(cap))
 }
 
@@ -415,28 +406,18 @@ fn measure_streaming(
             &m.events,
         );
         sk.label = settings.label.clone();
-        sk.settle_band_v = m
-            .events
-            .iter()
-            .filter_map(|e| e.settle_band_v)
-            .reduce(f64::max);
         sk.fit = work.worst.take().map(|(_, _, p)| p);
         sk
     });
-    let doc = CaptureDoc {
-        file,
-        label: settings.label.clone(),
-        format: finished.format.to_string(),
-        sample_interval_s: info.dt_s,
-        n_samples: n,
-        t0_s: info.t0_s,
-        signal: signal_name,
-        current: current_name,
-        polarity: m.polarity,
-        v_on: m.v_on,
-        v_off: m.v_off,
+    let doc = capture_doc(
+        path,
+        settings,
+        &finished,
+        n,
+        signal_name,
+        current_name,
+        m,
         warnings,
-        events: m.events,
-    };
+    );
     Ok((doc, sketch))
 }

@@ -104,7 +104,11 @@ impl TraceSketch {
             events: waves,
             v_off: median(events.iter().map(|e| e.v_off)),
             v_on: median(events.iter().map(|e| e.v_on)),
-            settle_band_v: None,
+            // The widest band any event used: what the overlay should shade.
+            settle_band_v: events
+                .iter()
+                .filter_map(|e| e.settle_band_v)
+                .reduce(f64::max),
             label: None,
             fit: None,
         }
