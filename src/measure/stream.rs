@@ -751,7 +751,12 @@ mod tests {
         v
     }
 
-    fn streamed(v: &[f64], block: usize, limits: StreamLimits) -> CaptureMeasurement {
+    fn run_streamed(
+        v: &[f64],
+        block: usize,
+        limits: StreamLimits,
+        stop: &dyn Fn() -> bool,
+    ) -> Result<CaptureMeasurement, MeasureError> {
         let mut s = Surveyor::new(limits);
         for b in v.chunks(block) {
             s.push(b);
@@ -768,22 +773,30 @@ mod tests {
             info,
             &MeasureOptions::default(),
             &mut NoObserver,
-            &|| false,
+            stop,
         )
-        .expect("measurable")
     }
 
-    #[test]
-    fn streaming_a_short_record_gives_what_the_whole_record_gives() {
-        let v = record();
+    fn streamed(v: &[f64], block: usize, limits: StreamLimits) -> CaptureMeasurement {
+        run_streamed(v, block, limits, &|| false).expect("measurable")
+    }
+
+    /// The same record measured whole, 1 us per sample.
+    fn whole(v: &[f64]) -> CaptureMeasurement {
         let trace = Trace {
-            v: &v,
+            v,
             i: None,
             dt_s: 1e-6,
             t0_s: 0.0,
             adc: None,
         };
-        let whole = measure_trace(&trace, &MeasureOptions::default()).unwrap();
+        measure_trace(&trace, &MeasureOptions::default()).expect("measurable")
+    }
+
+    #[test]
+    fn streaming_a_short_record_gives_what_the_whole_record_gives() {
+        let v = record();
+        let whole = whole(&v);
         assert_eq!(whole.events.len(), 3);
         for block in [1, 37, 4096] {
             let s = streamed(&v, block, StreamLimits::default());
@@ -820,14 +833,7 @@ mod tests {
     #[test]
     fn a_thinned_survey_finds_the_same_events() {
         let v = record();
-        let trace = Trace {
-            v: &v,
-            i: None,
-            dt_s: 1e-6,
-            t0_s: 0.0,
-            adc: None,
-        };
-        let whole = measure_trace(&trace, &MeasureOptions::default()).unwrap();
+        let whole = whole(&v);
         let limits = StreamLimits {
             thin_samples: 256,
             pairs: 512,
@@ -890,27 +896,7 @@ mod tests {
 
     #[test]
     fn a_stop_request_interrupts_the_measurement() {
-        let v = record();
-        let mut s = Surveyor::new(StreamLimits::default());
-        s.push(&v);
-        let mut src = SliceReplay {
-            v: &v,
-            i: None,
-            block: 64,
-        };
-        let info = StreamInfo {
-            dt_s: 1e-6,
-            t0_s: 0.0,
-            adc: None,
-        };
-        let r = measure_stream(
-            &mut src,
-            s,
-            info,
-            &MeasureOptions::default(),
-            &mut NoObserver,
-            &|| true,
-        );
+        let r = run_streamed(&record(), 64, StreamLimits::default(), &|| true);
         assert_eq!(r.unwrap_err(), MeasureError::Interrupted);
     }
 }
