@@ -131,8 +131,13 @@ const MAX_NUMBER_LEN: usize = 64;
 /// `fast_float2`, which rounds correctly too, so the value is the same either way.
 #[inline]
 pub(crate) fn parse_number(cell: &[u8], decimal_comma: bool) -> Result<f64, CellError> {
-    match super::decimal::read_fast(cell, decimal_comma) {
-        Some(d) => Ok(d.value),
+    match super::decimal::read_prefix(cell, decimal_comma) {
+        Some((d, end)) if end == cell.len() => Ok(d.value),
+        // A plain decimal followed by anything is no number to the general parser either
+        // (its grammar has nothing that continues a complete decimal but an exponent,
+        // which the fast path reads itself): the sniffer tries every delimiter on every
+        // line, and whole rows like `0.5,1.25` are refused here without a second parse.
+        Some(_) => Err(CellError::NotANumber),
         None => parse_number_general(cell, decimal_comma),
     }
 }
@@ -341,12 +346,26 @@ mod tests {
         #[test]
         fn any_mix_of_number_bytes_reads_the_same_by_either_path(
             bytes in proptest::collection::vec(
-                proptest::sample::select(b"0123456789+-.,eE xi\xff".to_vec()),
+                proptest::sample::select(b"0123456789+-.,;\teE xinfatyNI\xff".to_vec()),
                 0..32,
             ),
         ) {
             agrees(&bytes, false)?;
             agrees(&bytes, true)?;
+        }
+
+        /// The sniffer tries every delimiter on every line, so whole rows (two printed
+        /// numbers and what separates them) reach the parser as one cell: refused by the
+        /// fast path exactly when the general parser refuses them.
+        #[test]
+        fn whole_rows_as_one_cell_read_the_same_by_either_path(
+            a in "[-+]?[0-9]{1,12}([.,][0-9]{0,10})?([eE][-+]?[0-9]{1,3})?",
+            sep in "[,; \t]|e|inf|nan|[.]|x",
+            b in "[-+]?[0-9]{0,12}([.,][0-9]{0,10})?([eE][-+]?[0-9]{0,3})?",
+        ) {
+            let row = format!("{a}{sep}{b}");
+            agrees(row.as_bytes(), false)?;
+            agrees(row.as_bytes(), true)?;
         }
     }
 

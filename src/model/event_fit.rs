@@ -21,6 +21,44 @@ const MAX_FIT_SAMPLES: usize = 4000;
 /// Longest ringing stretch fitted, in periods.
 const MAX_PERIODS: f64 = 40.0;
 
+/// Ring periods fitted past the time the event settled: the ring goes on below the settle
+/// band, and the fit may use it while the crossings still stand out of the noise.
+const PERIODS_PAST_SETTLING: f64 = 8.0;
+/// Samples after the edge the noise is estimated on (as many as the window holds, up to
+/// this: enough for a stable median).
+const NOISE_SPAN: usize = 1 << 16;
+
+/// End of the samples a fit looks at: the window can run on for milliseconds of quiet
+/// off state (until the next turn-on), and the ring is only worth fitting until it has
+/// died out: through the settling time plus a few periods, and never past the longest
+/// stretch fitted after the clamp let go. Without a ring frequency, the whole window.
+fn fit_region_end(event: &Event, t_start_s: f64, dt_s: f64, n: usize) -> usize {
+    let Some(period_s) = event
+        .ring_freq_hz
+        .filter(|f| f.is_finite() && *f > 0.0)
+        .map(|f| 1.0 / f)
+    else {
+        return n;
+    };
+    let released_s = event
+        .decay_time_s
+        .filter(|d| d.is_finite() && *d > 0.0)
+        .unwrap_or(0.0);
+    let longest_s = released_s + (MAX_PERIODS + PERIODS_PAST_SETTLING) * period_s;
+    let ring_s = event
+        .settle_time_s
+        .filter(|s| s.is_finite() && *s > 0.0)
+        .map_or(longest_s, |s| {
+            (s + PERIODS_PAST_SETTLING * period_s).min(longest_s)
+        });
+    let end = ((event.t_edge_s + ring_s - t_start_s) / dt_s).ceil();
+    if end.is_finite() && end > 0.0 {
+        (end as usize).saturating_add(1).clamp(8.min(n), n)
+    } else {
+        n
+    }
+}
+
 /// Which curve describes the event.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 #[serde(tag = "fit_model", rename_all = "snake_case")]
@@ -138,13 +176,18 @@ pub fn fit_event(
     if !(dt_s > 0.0 && dt_s.is_finite() && t_start_s.is_finite() && event.v_off.is_finite()) {
         return None;
     }
+    let whole = samples;
+    let i_edge = index_at(event.t_edge_s, t_start_s, dt_s, samples.len());
+    // The noise is judged on a long stretch (a short one full of fast ringing would take
+    // the ring's curvature for noise), the ring only where it can still be seen.
+    let noise_end = samples.len().min(i_edge.saturating_add(NOISE_SPAN));
+    let samples = &samples[..fit_region_end(event, t_start_s, dt_s, samples.len())];
     let n = samples.len();
     if n < 8 {
         return None;
     }
     let sign = sign_of(event.polarity);
     let left_out = LeftOut::new(ctx, sign);
-    let i_edge = index_at(event.t_edge_s, t_start_s, dt_s, n);
     let u = |i: usize| sign * (samples[i] - event.v_off);
     let i_pk = (i_edge..n)
         .filter(|&i| samples[i].is_finite())
@@ -157,7 +200,7 @@ pub fn fit_event(
     if !super::is_pos(u_pk) {
         return None;
     }
-    let noise = ringfit::noise_sigma(&samples[i_edge..]);
+    let noise = ringfit::noise_sigma(&whole[i_edge..noise_end]);
     let mut start = free_ring_start(samples, i_pk, u_pk, noise, &u);
     // The measurement found where the clamp released (`decay_time_s`). When the stretch from
     // the peak to there is flat (a plateau: its median stays near the peak, where a sine

@@ -479,9 +479,10 @@ pub fn fit_damped_sine(
         zetas.push(zeta0);
     }
     let n_grid = 80;
-    // The scan only has to land in the right valley: a thinned copy (still over ten
-    // samples per period for fits of up to 40 periods) keeps it cheap on long stretches.
-    let scan_stride = m.div_ceil(1000).max(1);
+    // The scan only has to land in the right valley: a thinned copy (still ten samples
+    // per period for fits of up to 40 periods) keeps it cheap on long stretches; the
+    // least-squares steps after it use every sample.
+    let scan_stride = m.div_ceil(400).max(1);
     let ts_scan: Vec<f64> = ts.iter().step_by(scan_stride).copied().collect();
     let ys_scan: Vec<f64> = ys.iter().step_by(scan_stride).copied().collect();
     let mut trig = vec![(0.0, 0.0); ts_scan.len()];

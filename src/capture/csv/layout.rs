@@ -1,8 +1,8 @@
 //! Which delimiter and decimal mark a file uses, and which lines are data.
 
 use super::preamble::split_meta;
-use super::row_cells;
 use super::text::SniffLine;
+use super::{row_cell_iter, row_cells};
 use crate::capture::cells::{parse_number, trim_cell, Delim};
 use crate::capture::columns::{self, MetaKey};
 use crate::capture::ReadOptions;
@@ -44,14 +44,10 @@ fn score(lines: &[SniffLine], delim: Delim, comma: bool) -> (usize, usize) {
         if l.text.trim().is_empty() {
             continue;
         }
-        let cells = row_cells(&l.text, delim);
-        if cells
-            .iter()
-            .all(|c| parse_number(trim_cell(c), comma).is_ok())
-        {
-            match counts.iter_mut().find(|(n, _)| *n == cells.len()) {
+        if let Some(n) = numeric_cells(&l.text, delim, comma) {
+            match counts.iter_mut().find(|(m, _)| *m == n) {
                 Some((_, k)) => *k += 1,
-                None => counts.push((cells.len(), 1)),
+                None => counts.push((n, 1)),
             }
         }
     }
@@ -59,6 +55,16 @@ fn score(lines: &[SniffLine], delim: Delim, comma: bool) -> (usize, usize) {
         .into_iter()
         .max_by_key(|&(n, k)| (k, n))
         .map_or((0, 0), |(n, k)| (k, n))
+}
+
+/// The number of cells of a row when every one is a number.
+fn numeric_cells(text: &str, delim: Delim, comma: bool) -> Option<usize> {
+    let mut n = 0;
+    for c in row_cell_iter(text, delim) {
+        parse_number(trim_cell(c), comma).ok()?;
+        n += 1;
+    }
+    Some(n)
 }
 
 /// Whether the line above the first row of `n` numbers has `n` cells and no number.
@@ -109,15 +115,43 @@ pub(super) fn pick_delimiter(
     lines: &[SniffLine],
     opts: &ReadOptions,
 ) -> Option<(Delim, bool, usize)> {
-    let mut best: Option<(Delim, bool, (usize, bool, usize))> = None;
-    for (d, m) in candidates(opts) {
-        let (k, n) = score(lines, d, m);
-        let key = (k, header_agrees(lines, d, m, n), n);
-        if k > 0 && best.is_none_or(|(_, _, b)| key > b) {
-            best = Some((d, m, key));
+    // Most files settle it in their first lines: when one pair reads clearly more rows as
+    // numbers there than any other, the thousands of lines after them are not scored
+    // again. A close call (a tie, a short run of rows) is decided over every sniffed line.
+    if lines.len() > QUICK_LINES {
+        let ranked = rank(&lines[..QUICK_LINES], opts);
+        if let [(first, (k1, _, _)), rest @ ..] = ranked.as_slice() {
+            let runner_up = rest.iter().map(|(_, (k, _, _))| *k).max().unwrap_or(0);
+            if *k1 >= QUICK_MIN_ROWS && *k1 >= 2 * runner_up {
+                return Some(*first);
+            }
         }
     }
-    best.map(|(d, m, (_, _, n))| (d, m, n))
+    rank(lines, opts).first().map(|&(found, _)| found)
+}
+
+/// Lines scored first by [`pick_delimiter`], and the rows of numbers among them that make
+/// a clear winner (common practice for sniffing: a few hundred rows tell a layout).
+const QUICK_LINES: usize = 256;
+const QUICK_MIN_ROWS: usize = 128;
+
+/// Every candidate pair that reads at least one row as numbers, best first, with its
+/// (numeric rows, header agrees, cells per row).
+#[allow(clippy::type_complexity)]
+fn rank(
+    lines: &[SniffLine],
+    opts: &ReadOptions,
+) -> Vec<((Delim, bool, usize), (usize, bool, usize))> {
+    let mut out: Vec<((Delim, bool, usize), (usize, bool, usize))> = Vec::new();
+    for (d, m) in candidates(opts) {
+        let (k, n) = score(lines, d, m);
+        if k > 0 {
+            out.push(((d, m, n), (k, header_agrees(lines, d, m, n), n)));
+        }
+    }
+    // Stable: among equal keys the earlier (preferred) candidate stays first.
+    out.sort_by(|a, b| b.1.cmp(&a.1));
+    out
 }
 
 /// Where the rows are, as indices into the sniffed lines.
@@ -142,13 +176,14 @@ pub(super) fn locate_rows(
     let nonblank: Vec<usize> = (0..lines.len())
         .filter(|&k| !lines[k].text.trim().is_empty())
         .collect();
-    let is_data: Vec<bool> = nonblank
-        .iter()
-        .map(|&k| data_like(&lines[k].text, delim, comma))
-        .collect();
+    // Judged as the search reaches them: the data block usually starts within the first
+    // lines, and the thousands after it need no look.
+    let mut is_data: Vec<Option<bool>> = vec![None; nonblank.len()];
     let start_pos = (0..nonblank.len()).find(|&p| {
         let end = (p + DATA_RUN).min(nonblank.len());
-        is_data[p..end].iter().all(|&d| d)
+        (p..end).all(|q| {
+            *is_data[q].get_or_insert_with(|| data_like(&lines[nonblank[q]].text, delim, comma))
+        })
     })?;
     let data_idx = nonblank[start_pos];
     let is_meta_key = |text: &str| {

@@ -66,13 +66,24 @@ pub(super) fn cell_message(cell: &[u8], e: CellError) -> String {
     }
 }
 
+/// Cells of a row, without the empty cell a trailing delimiter leaves; nothing is
+/// collected (the sniffer looks at thousands of lines under every candidate delimiter).
+pub(super) fn row_cell_iter(text: &str, delim: Delim) -> impl Iterator<Item = &[u8]> {
+    let mut cells = Cells::new(text.as_bytes(), delim).peekable();
+    let mut n = 0usize;
+    std::iter::from_fn(move || {
+        let c = cells.next()?;
+        if n > 0 && cells.peek().is_none() && trim_cell(c).is_empty() {
+            return None;
+        }
+        n += 1;
+        Some(c)
+    })
+}
+
 /// Cells of a row, without the empty cell a trailing delimiter leaves.
 pub(super) fn row_cells(text: &str, delim: Delim) -> Vec<&[u8]> {
-    let mut cells: Vec<&[u8]> = Cells::new(text.as_bytes(), delim).collect();
-    if cells.len() > 1 && cells.last().is_some_and(|c| trim_cell(c).is_empty()) {
-        cells.pop();
-    }
-    cells
+    row_cell_iter(text, delim).collect()
 }
 
 /// Sniffs the layout of a delimited text file and opens it for streaming. The returned

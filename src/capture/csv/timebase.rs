@@ -4,7 +4,7 @@
 use std::path::Path;
 
 use super::text::SniffLine;
-use super::{csv_err, row_cells};
+use super::{csv_err, row_cell_iter};
 use crate::capture::cells::{last_digit_place, parse_number, trim_cell, Delim};
 use crate::capture::CaptureError;
 
@@ -39,11 +39,17 @@ pub(super) fn window_times(
         if l.text.trim().is_empty() {
             continue;
         }
-        let cells = row_cells(&l.text, delim);
-        if cells.len() != n_fields {
+        let (mut n_cells, mut cell) = (0, None);
+        for (k, c) in row_cell_iter(&l.text, delim).enumerate() {
+            if k == col {
+                cell = Some(c);
+            }
+            n_cells = k + 1;
+        }
+        if n_cells != n_fields {
             break;
         }
-        let Some(cell) = cells.get(col).map(|c| trim_cell(c)) else {
+        let Some(cell) = cell.map(trim_cell) else {
             break;
         };
         match parse_number(cell, comma) {
