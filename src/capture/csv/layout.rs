@@ -150,7 +150,7 @@ fn rank(
         }
     }
     // Stable: among equal keys the earlier (preferred) candidate stays first.
-    out.sort_by(|a, b| b.1.cmp(&a.1));
+    out.sort_by_key(|b| std::cmp::Reverse(b.1));
     out
 }
 
