@@ -256,6 +256,20 @@ mod tests {
     }
 
     #[test]
+    fn a_close_call_on_the_first_lines_is_decided_on_all_of_them() {
+        let o = ReadOptions::default();
+        // Integers read the same under either decimal mark: the first 256 lines tie, and
+        // the decimal-comma rows after them settle it.
+        let text = format!("{}{}", "1;2\n".repeat(300), "1,5;2,5\n".repeat(500));
+        let l = lines(&text);
+        assert_eq!(pick_delimiter(&l, &o), Some((Delim::Byte(b';'), true, 2)));
+        // A clear winner on the first lines is the winner on all of them.
+        let text = format!("t,v\n{}", "0.5,1.25\n".repeat(1000));
+        let l = lines(&text);
+        assert_eq!(pick_delimiter(&l, &o), Some((Delim::Byte(b','), false, 2)));
+    }
+
+    #[test]
     fn rows_header_and_units_row_are_located() {
         let l = lines("Sample rate: 1 GHz\ntime,v\ns,V\n0,1\n1e-9,2\n2e-9,3\n");
         let found = locate_rows(&l, Delim::Byte(b','), false, 2).unwrap();
