@@ -15,6 +15,9 @@
 /// (ringing dips against true on states).
 const DWELL_GAP_RATIO: f64 = 4.0;
 
+/// Samples the edge detector judges together when they cannot change its state.
+const QUIET_RUN: usize = 64;
+
 /// Settings of the edge detector.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct EdgeParams {
@@ -82,6 +85,62 @@ impl EdgeDetector {
 
     /// Feeds the next block of samples; marks found are appended to `out`.
     pub fn push(&mut self, block: &[f64], out: &mut Vec<Mark>) {
+        for run in block.chunks(QUIET_RUN) {
+            if !self.skip_quiet(run) {
+                self.push_each(run, out);
+            }
+        }
+    }
+
+    /// Takes a run of samples that cannot change the state in one step: all beyond the
+    /// hysteresis band on the side the detector is on (and, in the on state, not reaching
+    /// the dwell). Long captures are almost all such runs; `false` leaves the run to
+    /// [`Self::push_each`], which gives the same result sample by sample.
+    fn skip_quiet(&mut self, run: &[f64]) -> bool {
+        let (first, len) = (self.next_index, run.len());
+        if len == 0 {
+            return true;
+        }
+        let h = self.p.hysteresis_f;
+        // Folded without a short cut so the comparisons vectorise; NaN fails both.
+        match self.state {
+            State::High => {
+                let above = run
+                    .iter()
+                    .fold(true, |all, &v| all & (self.p.unit(v) > 0.5 + h));
+                if !above {
+                    return false;
+                }
+                self.was_below_mid = false;
+                self.qualified = false;
+            }
+            State::Low => {
+                let last = first + len - 1;
+                let qualifies_here =
+                    !self.qualified && last + 1 - self.low_start >= self.p.dwell_samples;
+                if qualifies_here {
+                    return false;
+                }
+                let below = run
+                    .iter()
+                    .fold(true, |all, &v| all & (self.p.unit(v) < 0.5 - h));
+                if !below {
+                    return false;
+                }
+                if !self.was_below_mid {
+                    self.below_mid_start = first;
+                }
+                self.was_below_mid = true;
+                self.last_below_mid = Some(last);
+            }
+            State::Unknown => return false,
+        }
+        self.next_index += len;
+        true
+    }
+
+    /// [`Self::push`] one sample at a time.
+    fn push_each(&mut self, block: &[f64], out: &mut Vec<Mark>) {
         let h = self.p.hysteresis_f;
         for &v in block {
             let k = self.next_index;
@@ -323,6 +382,49 @@ mod tests {
             det.push(chunk, &mut blocks);
         }
         assert_eq!(whole, blocks);
+    }
+
+    /// The quiet-run short cut against the sample-by-sample state machine: long on and off
+    /// stretches (taken 64 at a time), noise straddling the band edges, a dwell reached in
+    /// the middle of a run, NaN samples, and blocks of every awkward size.
+    #[test]
+    fn quiet_runs_give_the_same_marks_as_sample_by_sample() {
+        let mut v = Vec::new();
+        let mut seed = 12345u64;
+        let mut noise = |scale: f64| {
+            seed = seed
+                .wrapping_mul(6364136223846793005)
+                .wrapping_add(1442695040888963407);
+            scale * ((seed >> 11) as f64 / (1u64 << 53) as f64 - 0.5)
+        };
+        for cycle in 0..6 {
+            let on = 300 + 97 * cycle;
+            v.extend((0..on).map(|_| noise(if cycle % 2 == 0 { 0.5 } else { 8.0 })));
+            ringing_cycle(&mut v);
+            v.extend(
+                (0..1000 + 13 * cycle).map(|_| 10.0 + noise(if cycle == 3 { 9.0 } else { 1.0 })),
+            );
+            if cycle == 2 {
+                v.push(f64::NAN);
+                v.extend(std::iter::repeat_n(f64::NAN, 70));
+            }
+        }
+        for dwell in [1, 60, 150, 400] {
+            let mut want = Vec::new();
+            let mut one = EdgeDetector::new(params(dwell));
+            for x in &v {
+                one.push_each(std::slice::from_ref(x), &mut want);
+            }
+            assert!(want.len() > 4, "dwell {dwell}: {want:?}");
+            for size in [1, 7, 63, 64, 65, 100, 1000, v.len()] {
+                let mut got = Vec::new();
+                let mut det = EdgeDetector::new(params(dwell));
+                for block in v.chunks(size) {
+                    det.push(block, &mut got);
+                }
+                assert_eq!(got, want, "dwell {dwell}, blocks of {size}");
+            }
+        }
     }
 
     #[test]

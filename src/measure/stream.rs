@@ -490,16 +490,46 @@ struct RunNear {
 }
 
 impl RunNear {
-    /// Feeds a block to both levels' counters in one sweep, without branches.
+    /// Feeds a block to both levels' counters. Sixty-four samples at a time become a bit
+    /// mask (comparisons that vectorise), and the runs are counted on the mask: a stretch
+    /// all near a level or all away from it costs one step, not sixty-four.
     fn push_both(runs: &mut [RunNear; 2], v: &[f64]) {
-        let [a, b] = runs;
-        for &x in v {
-            let near_a = (x - a.level_v).abs() <= a.half_width_v;
-            let near_b = (x - b.level_v).abs() <= b.half_width_v;
-            a.run = (a.run + 1) * usize::from(near_a);
-            b.run = (b.run + 1) * usize::from(near_b);
-            a.best = a.best.max(a.run);
-            b.best = b.best.max(b.run);
+        for chunk in v.chunks(64) {
+            for r in runs.iter_mut() {
+                let near = |x: f64| (x - r.level_v).abs() <= r.half_width_v;
+                // Counting first is the cheap test: most chunks are all near or all away.
+                let count = chunk.iter().map(|&x| usize::from(near(x))).sum::<usize>();
+                if count == chunk.len() {
+                    r.run += count;
+                    r.best = r.best.max(r.run);
+                } else if count == 0 {
+                    r.run = 0;
+                } else {
+                    let mask = chunk
+                        .iter()
+                        .enumerate()
+                        .fold(0u64, |m, (k, &x)| m | (u64::from(near(x)) << k));
+                    r.push_mask(mask, chunk.len() as u32);
+                }
+            }
+        }
+    }
+
+    /// Counts the runs of set bits in the low `len` bits of `mask` (bit 0 first).
+    fn push_mask(&mut self, mask: u64, len: u32) {
+        let mut pos = 0u32;
+        while pos < len {
+            let rest = mask >> pos;
+            let ones = rest.trailing_ones().min(len - pos);
+            if ones > 0 {
+                self.run += ones as usize;
+                self.best = self.best.max(self.run);
+                pos += ones;
+            }
+            if pos < len {
+                self.run = 0;
+                pos += (mask >> pos).trailing_zeros().min(len - pos);
+            }
         }
     }
 }
@@ -791,6 +821,47 @@ mod tests {
             adc: None,
         };
         measure_trace(&trace, &MeasureOptions::default()).expect("measurable")
+    }
+
+    /// The mask count against the plain per-sample count it replaced (run = (run + 1) when
+    /// near, else 0; best = the longest), over stretches near, away and alternating, NaN
+    /// included, fed in blocks of awkward sizes.
+    #[test]
+    fn runs_near_a_level_counted_on_masks_match_a_plain_count() {
+        let mut v: Vec<f64> = Vec::new();
+        v.extend(std::iter::repeat_n(1.0, 130));
+        v.extend((0..300).map(|k| if k % 3 == 0 { 5.0 } else { 1.01 }));
+        v.extend(std::iter::repeat_n(5.0, 70));
+        v.push(f64::NAN);
+        v.extend(std::iter::repeat_n(0.99, 200));
+        v.extend((0..500).map(|k| if (k / 37) % 2 == 0 { 1.0 } else { -3.0 }));
+        let plain = |level: f64| {
+            let (mut run, mut best) = (0usize, 0usize);
+            for &x in &v {
+                run = if (x - level).abs() <= 0.05 {
+                    run + 1
+                } else {
+                    0
+                };
+                best = best.max(run);
+            }
+            (run, best)
+        };
+        let want = [plain(1.0), plain(5.0)];
+        // 200 samples at 0.99 and the first 37 of the alternating stretch at 1.0.
+        assert_eq!(want[0].1, 237);
+        for size in [1, 5, 63, 64, 65, 129, v.len()] {
+            let mut runs = [1.0, 5.0].map(|level_v| RunNear {
+                level_v,
+                half_width_v: 0.05,
+                run: 0,
+                best: 0,
+            });
+            for block in v.chunks(size) {
+                RunNear::push_both(&mut runs, block);
+            }
+            assert_eq!(runs.map(|r| (r.run, r.best)), want, "blocks of {size}");
+        }
     }
 
     #[test]
