@@ -479,10 +479,13 @@ pub fn fit_damped_sine(
         zetas.push(zeta0);
     }
     let n_grid = 80;
-    // The scan only has to land in the right valley: a thinned copy (still ten samples
-    // per period for fits of up to 40 periods) keeps it cheap on long stretches; the
-    // least-squares steps after it use every sample.
-    let scan_stride = m.div_ceil(400).max(1);
+    // The scan only has to land in the right valley: a thinned copy keeps it cheap on long
+    // stretches (the least-squares steps after it use every sample). It keeps some sixteen
+    // samples per period of the fastest frequency tried (1.8 times the start), and at
+    // most 400 samples: still ten per period for fits of up to 40 periods.
+    let periods = (ts[m - 1] - ts[0]).abs() / std::f64::consts::TAU;
+    let scan_points = (periods * 16.0 * 1.8).ceil().clamp(64.0, 400.0) as usize;
+    let scan_stride = m.div_ceil(scan_points).max(1);
     let ts_scan: Vec<f64> = ts.iter().step_by(scan_stride).copied().collect();
     let ys_scan: Vec<f64> = ys.iter().step_by(scan_stride).copied().collect();
     let mut trig = vec![(0.0, 0.0); ts_scan.len()];
