@@ -478,13 +478,15 @@ pub fn fit_damped_sine(
     if zeta0 > 0.0 {
         zetas.push(zeta0);
     }
-    let n_grid = 80;
+    // The valley of a fit over N periods is about 1/N wide in relative frequency; steps of
+    // a quarter of that (at least 24, at most 80 over the factor 3.3) cannot step over it.
+    let periods_spanned = (ts[m - 1] - ts[0]).abs() / std::f64::consts::TAU;
+    let n_grid = ((periods_spanned * 5.0).ceil() as usize).clamp(24, 80);
     // The scan only has to land in the right valley: a thinned copy keeps it cheap on long
     // stretches (the least-squares steps after it use every sample). It keeps some sixteen
     // samples per period of the fastest frequency tried (1.8 times the start), and at
     // most 400 samples: still ten per period for fits of up to 40 periods.
-    let periods = (ts[m - 1] - ts[0]).abs() / std::f64::consts::TAU;
-    let scan_points = (periods * 16.0 * 1.8).ceil().clamp(64.0, 400.0) as usize;
+    let scan_points = (periods_spanned * 16.0 * 1.8).ceil().clamp(64.0, 400.0) as usize;
     let scan_stride = m.div_ceil(scan_points).max(1);
     let ts_scan: Vec<f64> = ts.iter().step_by(scan_stride).copied().collect();
     let ys_scan: Vec<f64> = ys.iter().step_by(scan_stride).copied().collect();
