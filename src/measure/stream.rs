@@ -426,9 +426,19 @@ impl Stretch {
         self.v.extend_from_slice(v);
         match (self.i.as_mut(), i) {
             (Some(all), Some(i)) => all.extend_from_slice(i),
-            (None, Some(i)) if self.v.len() == v.len() => self.i = Some(i.to_vec()),
+            (None, Some(i)) if self.v.len() == v.len() => {
+                let mut all = Vec::with_capacity(self.v.capacity());
+                all.extend_from_slice(i);
+                self.i = Some(all);
+            }
             _ => self.i = None,
         }
+    }
+
+    /// Makes room for `n` samples in all (the current, if any, takes as much room when its
+    /// first samples arrive).
+    fn reserve(&mut self, n: usize) {
+        self.v.reserve_exact(n.saturating_sub(self.v.len()));
     }
 
     /// Keeps only the samples from absolute index `from` on.
@@ -555,6 +565,7 @@ impl Scan<'_> {
         let mut last_on: Option<usize> = None;
         let mut memory_cuts = 0usize;
         let mut index = 0usize;
+        let mut last_len = 0usize;
         let half_width = 2.0 * self.resolution_v;
         let mut runs = [self.cx.v_on, self.cx.v_off].map(|level_v| RunNear {
             level_v,
@@ -609,6 +620,7 @@ impl Scan<'_> {
                         events::Mark::TurnOn { index: t } => {
                             if let Some(w) = open.take_if(|w| t > w.edge) {
                                 let closed = self.close(w, index, Some(t), here);
+                                last_len = closed.samples.v.len();
                                 index += 1;
                                 memory_cuts += usize::from(self.cut_by_memory(&closed, t));
                                 dispatch(closed);
@@ -631,6 +643,10 @@ impl Scan<'_> {
                                 first: from.max(recent.first),
                                 ..Stretch::default()
                             };
+                            // Switchings repeat: room for about the last window's length
+                            // saves growing (and copying) this one step by step.
+                            let room = (last_len + last_len / 8).min(cap_end - samples.first);
+                            samples.reserve(room);
                             samples.extend_from(&recent, from, cap_end.min(here));
                             open = Some(OpenWindow {
                                 edge: e,
