@@ -197,59 +197,78 @@ pub fn extreme_value_of_maxima(
     let rating = rating.filter(|r| r.is_finite());
     let m = block_len;
 
-    let gumbel = match fit_gumbel(&maxima) {
-        Ok(fit) => {
-            let return_levels = levels_of(lifetimes, "Gumbel", &mut warnings, |n| {
-                fit.return_level(n, m)
-            });
-            let p = rating.and_then(|r| p_exceed_per_event(&fit, r, m));
-            Some(ModelBlock {
-                fit,
-                return_levels,
-                p_exceed_rating_per_event: p,
-            })
-        }
-        Err(e) => {
-            if block_len > 0 {
-                warnings.push(e.to_string());
+    // The three fits and their profile-likelihood intervals are independent, and on a
+    // large batch they are the last step after the captures: run them side by side. Their
+    // warnings are kept in the order the report has always listed them.
+    let gumbel_block = || {
+        let mut warnings = Vec::new();
+        let block = match fit_gumbel(&maxima) {
+            Ok(fit) => {
+                let return_levels = levels_of(lifetimes, "Gumbel", &mut warnings, |n| {
+                    fit.return_level(n, m)
+                });
+                let p = rating.and_then(|r| p_exceed_per_event(&fit, r, m));
+                Some(ModelBlock {
+                    fit,
+                    return_levels,
+                    p_exceed_rating_per_event: p,
+                })
             }
-            None
-        }
+            Err(e) => {
+                if block_len > 0 {
+                    warnings.push(e.to_string());
+                }
+                None
+            }
+        };
+        (block, warnings)
     };
-    let gev = match fit_gev(&maxima) {
-        Ok(fit) => {
-            let return_levels =
-                levels_of(lifetimes, "GEV", &mut warnings, |n| fit.return_level(n, m));
-            let p = rating.and_then(|r| p_exceed_per_event(&fit, r, m));
-            Some(ModelBlock {
-                fit,
-                return_levels,
-                p_exceed_rating_per_event: p,
-            })
-        }
-        Err(StatsError::TooFew { .. }) | Err(StatsError::NoSpread { .. }) => None,
-        Err(e) => {
-            warnings.push(e.to_string());
-            None
-        }
+    let gev_block = || {
+        let mut warnings = Vec::new();
+        let block = match fit_gev(&maxima) {
+            Ok(fit) => {
+                let return_levels =
+                    levels_of(lifetimes, "GEV", &mut warnings, |n| fit.return_level(n, m));
+                let p = rating.and_then(|r| p_exceed_per_event(&fit, r, m));
+                Some(ModelBlock {
+                    fit,
+                    return_levels,
+                    p_exceed_rating_per_event: p,
+                })
+            }
+            Err(StatsError::TooFew { .. }) | Err(StatsError::NoSpread { .. }) => None,
+            Err(e) => {
+                warnings.push(e.to_string());
+                None
+            }
+        };
+        (block, warnings)
     };
-    let pot = match fit_pot(values_in_order, None) {
-        Ok(fit) => {
-            let return_levels = levels_of(lifetimes, "peaks over threshold", &mut warnings, |n| {
-                fit.return_level(n)
-            });
-            let p = rating.and_then(|r| fit.p_exceed_per_event(r));
-            Some(ModelBlock {
-                fit,
-                return_levels,
-                p_exceed_rating_per_event: p,
-            })
-        }
-        Err(e) => {
-            warnings.push(format!("peaks over threshold: {e}"));
-            None
-        }
+    let pot_block = || {
+        let mut warnings = Vec::new();
+        let block = match fit_pot(values_in_order, None) {
+            Ok(fit) => {
+                let return_levels =
+                    levels_of(lifetimes, "peaks over threshold", &mut warnings, |n| {
+                        fit.return_level(n)
+                    });
+                let p = rating.and_then(|r| fit.p_exceed_per_event(r));
+                Some(ModelBlock {
+                    fit,
+                    return_levels,
+                    p_exceed_rating_per_event: p,
+                })
+            }
+            Err(e) => {
+                warnings.push(format!("peaks over threshold: {e}"));
+                None
+            }
+        };
+        (block, warnings)
     };
+    let ((gumbel, w_gumbel), ((gev, w_gev), (pot, w_pot))) =
+        rayon::join(gumbel_block, || rayon::join(gev_block, pot_block));
+    warnings.extend(w_gumbel.into_iter().chain(w_gev).chain(w_pot));
 
     // Model choice by the likelihood-ratio (deviance) test, Coles 2001 §2.6.6 and §3.4.
     let deviance = gumbel

@@ -124,7 +124,7 @@ pub(crate) fn delta_interval(level: f64, se: Option<f64>) -> Interval {
 /// `nll_at(z, rest)` is the negative log-likelihood with the level held at z; `rest_hat` the
 /// other parameters at the overall maximum; `step` the optimiser's initial simplex;
 /// `scale_hint` a rough width (the delta-method standard error) to start the bracket search.
-pub(crate) fn profile_interval<F: Fn(f64, &[f64]) -> f64>(
+pub(crate) fn profile_interval<F: Fn(f64, &[f64]) -> f64 + Sync>(
     nll_at: F,
     nll_min: f64,
     z_hat: f64,
@@ -146,8 +146,8 @@ pub(crate) fn profile_interval<F: Fn(f64, &[f64]) -> f64>(
     } else {
         0.1
     };
-    let mut bounds = [None, None];
-    for (side, dir) in [(0usize, -1.0f64), (1, 1.0)] {
+    // The two ends are searched independently, side by side.
+    let bound = |dir: f64| -> Option<f64> {
         let mut inner = z_hat;
         let mut inner_rest = rest_hat.to_vec();
         let mut d = 0.5 * width;
@@ -166,7 +166,7 @@ pub(crate) fn profile_interval<F: Fn(f64, &[f64]) -> f64>(
                 }
             }
         }
-        let Some(mut outer) = outer else { continue };
+        let mut outer = outer?;
         for _ in 0..60 {
             if (outer - inner).abs() <= 1e-9 * (1.0 + z_hat.abs()) {
                 break;
@@ -180,9 +180,9 @@ pub(crate) fn profile_interval<F: Fn(f64, &[f64]) -> f64>(
                 _ => outer = mid,
             }
         }
-        bounds[side] = Some(0.5 * (inner + outer));
-    }
-    (bounds[0], bounds[1])
+        Some(0.5 * (inner + outer))
+    };
+    rayon::join(|| bound(-1.0), || bound(1.0))
 }
 
 /// ln y for the level exceeded once in N switchings with m switchings per block: a block
