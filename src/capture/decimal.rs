@@ -27,6 +27,8 @@ pub(crate) struct Decimal {
     pub(crate) value: f64,
     /// Power of ten of the last digit written (`1.25e-6` -> -8): the printed resolution.
     pub(crate) last_place: i32,
+    /// Digits written after the decimal mark (`1.25e-6` -> 2).
+    pub(crate) decimals: u32,
 }
 
 /// Reads `[+-]digits[.digits][(e|E)[+-]digits]` (a comma may stand for the point when
@@ -127,6 +129,7 @@ pub(crate) fn read_prefix(text: &[u8], decimal_comma: bool) -> Option<(Decimal, 
         Decimal {
             value: if negative { -magnitude } else { magnitude },
             last_place,
+            decimals: n_frac as u32,
         },
         i,
     ))

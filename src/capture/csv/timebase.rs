@@ -5,7 +5,8 @@ use std::path::Path;
 
 use super::text::SniffLine;
 use super::{csv_err, row_cell_iter};
-use crate::capture::cells::{last_digit_place, parse_number, trim_cell, Delim};
+use crate::capture::cells::{last_digit_place, parse_number, pow10, trim_cell, Delim};
+use crate::capture::decimal::read_fast;
 use crate::capture::CaptureError;
 
 /// A time step this much longer than the sample interval is a gap, not jitter.
@@ -52,6 +53,11 @@ pub(super) fn window_times(
         let Some(cell) = cell.map(trim_cell) else {
             break;
         };
+        // Plain decimals (nearly every time cell) give all three in one reading.
+        if let Some(d) = read_fast(cell, comma) {
+            out.push((d.value, pow10(d.last_place), d.decimals as usize));
+            continue;
+        }
         match parse_number(cell, comma) {
             Ok(t) => out.push((t, last_digit_place(cell), decimals(cell))),
             Err(_) => break,
@@ -243,6 +249,23 @@ mod tests {
 
     fn fixed(times: &[f64], place: f64) -> Vec<(f64, f64, usize)> {
         times.iter().map(|&t| (t, place, 3)).collect()
+    }
+
+    proptest::proptest! {
+        /// The fast reading of a time cell gives what the separate scans gave: the value,
+        /// the printed resolution and the count of decimals.
+        #[test]
+        fn one_reading_of_a_time_cell_gives_what_three_did(
+            s in "[-+]?[0-9]{1,8}([.,][0-9]{0,12})?([eE][-+]?[0-9]{1,3})?",
+            comma: bool,
+        ) {
+            if let Some(d) = read_fast(s.as_bytes(), comma) {
+                let cell = s.as_bytes();
+                proptest::prop_assert_eq!(Ok(d.value), parse_number(cell, comma));
+                proptest::prop_assert_eq!(pow10(d.last_place).to_bits(), last_digit_place(cell).to_bits());
+                proptest::prop_assert_eq!(d.decimals as usize, decimals(cell));
+            }
+        }
     }
 
     #[test]
