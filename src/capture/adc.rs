@@ -187,7 +187,8 @@ fn count_equal(values: &[f64], target: f64) -> u64 {
 /// Smallest gap between distinct values, when the values sit on a grid of that step.
 pub(crate) fn code_step(values: &[f64]) -> Option<f64> {
     let mut v: Vec<f64> = values.to_vec();
-    v.sort_by(|a, b| a.total_cmp(b));
+    // Unstable is enough: values equal under total_cmp are the same bits.
+    v.sort_unstable_by(f64::total_cmp);
     let n_all = v.len();
     v.dedup();
     // A handful of values sits on the grid of its printed decimals by chance.

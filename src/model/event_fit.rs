@@ -213,7 +213,7 @@ pub fn fit_event(
                 .map(&u)
                 .filter(|x| x.is_finite())
                 .collect();
-            lobe.sort_by(f64::total_cmp);
+            lobe.sort_unstable_by(f64::total_cmp);
             if lobe.get(lobe.len() / 2).is_some_and(|m| *m > 0.85 * u_pk) {
                 start = start.max(i_release.min(n - 1));
             }

@@ -132,7 +132,7 @@ fn median(values: impl Iterator<Item = f64>) -> Option<f64> {
     if v.is_empty() {
         return None;
     }
-    v.sort_by(f64::total_cmp);
+    v.sort_unstable_by(f64::total_cmp);
     let n = v.len();
     let mid = v.get(n / 2).copied()?;
     if n % 2 == 1 {

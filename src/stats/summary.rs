@@ -23,7 +23,8 @@ pub fn quantile_type7(sorted: &[f64], p: f64) -> Option<f64> {
 /// Finite values, sorted ascending.
 pub(crate) fn sorted_finite(values: &[f64]) -> Vec<f64> {
     let mut v: Vec<f64> = values.iter().copied().filter(|x| x.is_finite()).collect();
-    v.sort_by(f64::total_cmp);
+    // Unstable is enough: values equal under total_cmp are the same bits.
+    v.sort_unstable_by(f64::total_cmp);
     v
 }
 
