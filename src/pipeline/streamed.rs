@@ -142,6 +142,7 @@ impl Replay for Source<'_> {
         match self {
             Source::Spilled { path, v, i } => {
                 const BLOCK: usize = 1 << 16;
+                let i_wanted = i.is_some();
                 let fail = |e: std::io::Error| {
                     format!(
                         "{}: reading the temporary copy of the samples: {e}",
@@ -152,24 +153,48 @@ impl Replay for Source<'_> {
                 if let Some(f) = i.as_mut() {
                     f.seek(SeekFrom::Start(0)).map_err(fail)?;
                 }
-                let mut vb = Vec::with_capacity(BLOCK);
-                let mut ib = Vec::with_capacity(BLOCK);
-                loop {
-                    let n = read_values(v, BLOCK, &mut vb).map_err(fail)?;
-                    if n == 0 {
-                        return Ok(true);
-                    }
-                    let cur = match i.as_mut() {
-                        Some(f) => {
-                            read_values(f, n, &mut ib).map_err(fail)?;
-                            (ib.len() == n).then_some(ib.as_slice())
-                        }
-                        None => None,
-                    };
-                    if !each(&vb, cur) {
-                        return Ok(false);
-                    }
+                // A thread of its own reads the next blocks while this one works on the
+                // current: plain reads that wait on nothing else (never on the thread
+                // pool, which may be busy with this very file), so they cannot deadlock.
+                // Buffers go back and forth, two in flight.
+                let (full_tx, full_rx) = std::sync::mpsc::sync_channel(2);
+                let (empty_tx, empty_rx) = std::sync::mpsc::channel::<(Vec<f64>, Vec<f64>)>();
+                for _ in 0..3 {
+                    let _ = empty_tx.send((Vec::with_capacity(BLOCK), Vec::with_capacity(BLOCK)));
                 }
+                std::thread::scope(|scope| {
+                    scope.spawn(move || {
+                        while let Ok((mut vb, mut ib)) = empty_rx.recv() {
+                            let read =
+                                read_values(v, BLOCK, &mut vb).and_then(|n| match i.as_mut() {
+                                    Some(f) if n > 0 => read_values(f, n, &mut ib).map(|_| n),
+                                    _ => Ok(n),
+                                });
+                            let last = !matches!(read, Ok(n) if n > 0);
+                            if full_tx.send(read.map(|_| (vb, ib))).is_err() || last {
+                                break;
+                            }
+                        }
+                    });
+                    // Owned here, so any way out of the loop closes both channels and the
+                    // reading thread ends before the scope waits for it.
+                    let (full_rx, empty_tx) = (full_rx, empty_tx);
+                    loop {
+                        let Ok(read) = full_rx.recv() else {
+                            return Ok(true);
+                        };
+                        let (vb, ib) = read.map_err(fail)?;
+                        let n = vb.len();
+                        if n == 0 {
+                            return Ok(true);
+                        }
+                        let cur = (i_wanted && ib.len() == n).then_some(ib.as_slice());
+                        if !each(&vb, cur) {
+                            return Ok(false);
+                        }
+                        let _ = empty_tx.send((vb, ib));
+                    }
+                })
             }
             Source::Reopened {
                 path,
@@ -321,13 +346,24 @@ fn measure_streaming(
         }
         Ok(())
     };
-    feed(&signal, current.as_ref())?;
-    drop((signal, current));
+    // Each block is surveyed (and spilled) while the next one is read and parsed: the two
+    // halves of the first pass keep both cores busy instead of taking turns.
+    let mut fed = Some((signal, current));
     let mut block = Block::default();
-    while next_block(path, &mut reader, &mut block, settings)? {
+    loop {
+        let (more, done) = rayon::join(
+            || next_block(path, &mut reader, &mut block, settings),
+            || match fed.take() {
+                Some((sig, cur)) => feed(&sig, cur.as_ref()),
+                None => Ok(()),
+            },
+        );
+        done?;
+        if !more? {
+            break;
+        }
         let channels = std::mem::take(&mut block.channels);
-        let (sig, cur) = pick_block(&header, channels, settings)?;
-        feed(&sig, cur.as_ref())?;
+        fed = Some(pick_block(&header, channels, settings)?);
     }
     let finished = reader.finish();
     let n = survey.len();
@@ -420,4 +456,59 @@ fn measure_streaming(
         warnings,
     );
     Ok((doc, sketch))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// A spill of `n` voltages `k` and currents `-k` (k = 0, 1, ...).
+    fn spilled(path: &Path, n: usize) -> Source<'_> {
+        let (mut v, mut i) = (Spill::new(path).unwrap(), Spill::new(path).unwrap());
+        let all: Vec<f64> = (0..n).map(|k| k as f64).collect();
+        let neg: Vec<f64> = all.iter().map(|x| -x).collect();
+        for (a, b) in all.chunks(10_000).zip(neg.chunks(10_000)) {
+            v.write(a).unwrap();
+            i.write(b).unwrap();
+        }
+        Source::Spilled {
+            path,
+            v: v.finish().unwrap(),
+            i: Some(i.finish().unwrap()),
+        }
+    }
+
+    /// The spill comes back whole and in order on every pass, read ahead on its own
+    /// thread; a sink that stops early ends the pass at once (no thread left waiting).
+    #[test]
+    fn a_spill_replays_whole_and_stops_when_asked() {
+        let path = Path::new("long.csv");
+        let n = 3 * (1 << 16) + 1234;
+        let mut src = spilled(path, n);
+        for _ in 0..2 {
+            let (mut seen, mut ok) = (0usize, true);
+            let done = src
+                .replay(&mut |v, i| {
+                    let i = i.expect("the current channel");
+                    ok &= v.len() == i.len();
+                    for (k, (&a, &b)) in v.iter().zip(i).enumerate() {
+                        ok &= a == (seen + k) as f64 && b == -a;
+                    }
+                    seen += v.len();
+                    true
+                })
+                .unwrap();
+            assert!(done && ok);
+            assert_eq!(seen, n);
+        }
+        let mut blocks = 0;
+        let done = src
+            .replay(&mut |_, _| {
+                blocks += 1;
+                blocks < 2
+            })
+            .unwrap();
+        assert!(!done);
+        assert_eq!(blocks, 2);
+    }
 }
