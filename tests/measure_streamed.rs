@@ -116,3 +116,86 @@ fn a_current_channel_streams_beside_the_voltage() {
         .iter()
         .all(|e| e.energy_j.is_some() || e.coil_energy_j.is_some()));
 }
+
+/// A mono 16-bit WAV of `n` samples at 10 MS/s (invented): on at code 0 for 20 000 samples,
+/// then off at code 8000 after a decaying ring, over and over. Long enough to be read in
+/// several runs, so the reader reads ahead.
+fn long_wav(path: &Path, n: usize, seed: u32) {
+    let mut data = Vec::with_capacity(2 * n);
+    for k in 0..n {
+        let x = k % 60_000;
+        let code = if x < 20_000 {
+            0.0
+        } else {
+            let t = (x - 20_000) as f64;
+            8000.0 + 12_000.0 * (-t / 300.0).exp() * (t / (40.0 + f64::from(seed))).sin()
+        };
+        data.extend_from_slice(&(code.clamp(-32768.0, 32767.0) as i16).to_le_bytes());
+    }
+    let mut f = Vec::with_capacity(44 + data.len());
+    f.extend_from_slice(b"RIFF");
+    f.extend_from_slice(&(36 + data.len() as u32).to_le_bytes());
+    f.extend_from_slice(b"WAVEfmt ");
+    f.extend_from_slice(&16u32.to_le_bytes());
+    f.extend_from_slice(&1u16.to_le_bytes());
+    f.extend_from_slice(&1u16.to_le_bytes());
+    f.extend_from_slice(&10_000_000u32.to_le_bytes());
+    f.extend_from_slice(&20_000_000u32.to_le_bytes());
+    f.extend_from_slice(&2u16.to_le_bytes());
+    f.extend_from_slice(&16u16.to_le_bytes());
+    f.extend_from_slice(b"data");
+    f.extend_from_slice(&(data.len() as u32).to_le_bytes());
+    f.extend_from_slice(&data);
+    std::fs::write(path, f).unwrap();
+}
+
+/// Streamed captures measured side by side on a pool of two threads (a batch run on a
+/// two-core machine): every file's read-ahead thread must get on without the pool, which
+/// is busy with the files themselves. Each file gives what it gives alone. A hang would
+/// be a deadlock: the run is given a minute.
+#[test]
+fn several_streamed_captures_at_once_do_not_wait_on_each_other() {
+    use rayon::prelude::*;
+    let dir = tempfile::tempdir().unwrap();
+    let mut files: Vec<PathBuf> = (0..4)
+        .map(|k| {
+            let p = dir.path().join(format!("long-{k}.wav"));
+            long_wav(&p, 1_500_000, k);
+            p
+        })
+        .collect();
+    files.extend(
+        ["none/run-22.wav", "none/shot-01.csv"]
+            .iter()
+            .map(|f| sample(f)),
+    );
+    let settings = Settings {
+        stream_above: Some(1000),
+        ..Settings::default()
+    };
+    let alone: Vec<Value> = files
+        .iter()
+        .map(|f| serde_json::to_value(measure_file(f, &settings, false).unwrap().0).unwrap())
+        .collect();
+    let (tx, rx) = std::sync::mpsc::channel();
+    let (files2, settings2) = (files.clone(), settings.clone());
+    // The global pool, as a batch run uses it (its own threads are what a reader outside
+    // it would wait on). nextest gives each test a process of its own, so two threads can
+    // be asked for; under `cargo test` another test may have started the pool already.
+    let _ = rayon::ThreadPoolBuilder::new()
+        .num_threads(2)
+        .build_global();
+    std::thread::spawn(move || {
+        let docs: Vec<Value> = files2
+            .par_iter()
+            .map(|f| serde_json::to_value(measure_file(f, &settings2, false).unwrap().0).unwrap())
+            .collect();
+        let _ = tx.send(docs);
+    });
+    let together = rx
+        .recv_timeout(std::time::Duration::from_secs(60))
+        .expect("the batch finished (no deadlock)");
+    for (f, (a, b)) in files.iter().zip(alone.iter().zip(&together)) {
+        close(a, b, &f.display().to_string());
+    }
+}

@@ -83,7 +83,11 @@ impl<R: Read + Send> FrameRuns<R> {
         let n = max.min((self.cur.len - self.cur.pos) / fb);
         let (start, end) = (self.cur.pos, self.cur.pos + n * fb);
         let spent = self.cur.len - end < fb;
-        let ahead = spent && self.next.is_none() && self.cur.ended.is_none() && self.left > 0;
+        // Read ahead on the thread pool only from inside it: a thread outside that waits on
+        // the pool could wait for ever while the pool's threads wait on it.
+        let in_pool = rayon::current_thread_index().is_some();
+        let ahead =
+            in_pool && spent && self.next.is_none() && self.cur.ended.is_none() && self.left > 0;
         let frames = self.cur.data.get(start..end).unwrap_or(&[]);
         let t = if ahead {
             let (reader, left) = (&mut self.reader, &mut self.left);

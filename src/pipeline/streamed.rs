@@ -142,7 +142,6 @@ impl Replay for Source<'_> {
         match self {
             Source::Spilled { path, v, i } => {
                 const BLOCK: usize = 1 << 16;
-                let i_wanted = i.is_some();
                 let fail = |e: std::io::Error| {
                     format!(
                         "{}: reading the temporary copy of the samples: {e}",
@@ -153,48 +152,23 @@ impl Replay for Source<'_> {
                 if let Some(f) = i.as_mut() {
                     f.seek(SeekFrom::Start(0)).map_err(fail)?;
                 }
-                // A thread of its own reads the next blocks while this one works on the
-                // current: plain reads that wait on nothing else (never on the thread
-                // pool, which may be busy with this very file), so they cannot deadlock.
-                // Buffers go back and forth, two in flight.
-                let (full_tx, full_rx) = std::sync::mpsc::sync_channel(2);
-                let (empty_tx, empty_rx) = std::sync::mpsc::channel::<(Vec<f64>, Vec<f64>)>();
-                for _ in 0..3 {
-                    let _ = empty_tx.send((Vec::with_capacity(BLOCK), Vec::with_capacity(BLOCK)));
-                }
-                std::thread::scope(|scope| {
-                    scope.spawn(move || {
-                        while let Ok((mut vb, mut ib)) = empty_rx.recv() {
-                            let read =
-                                read_values(v, BLOCK, &mut vb).and_then(|n| match i.as_mut() {
-                                    Some(f) if n > 0 => read_values(f, n, &mut ib).map(|_| n),
-                                    _ => Ok(n),
-                                });
-                            let last = !matches!(read, Ok(n) if n > 0);
-                            if full_tx.send(read.map(|_| (vb, ib))).is_err() || last {
-                                break;
-                            }
+                let with_current = i.is_some();
+                let buffers =
+                    (0..3).map(|_| (Vec::with_capacity(BLOCK), Vec::with_capacity(BLOCK)));
+                read_ahead(
+                    buffers.collect(),
+                    |(vb, ib): &mut (Vec<f64>, Vec<f64>)| {
+                        let n = read_values(v, BLOCK, vb).map_err(fail)?;
+                        if let (Some(f), true) = (i.as_mut(), n > 0) {
+                            read_values(f, n, ib).map_err(fail)?;
                         }
-                    });
-                    // Owned here, so any way out of the loop closes both channels and the
-                    // reading thread ends before the scope waits for it.
-                    let (full_rx, empty_tx) = (full_rx, empty_tx);
-                    loop {
-                        let Ok(read) = full_rx.recv() else {
-                            return Ok(true);
-                        };
-                        let (vb, ib) = read.map_err(fail)?;
-                        let n = vb.len();
-                        if n == 0 {
-                            return Ok(true);
-                        }
-                        let cur = (i_wanted && ib.len() == n).then_some(ib.as_slice());
-                        if !each(&vb, cur) {
-                            return Ok(false);
-                        }
-                        let _ = empty_tx.send((vb, ib));
-                    }
-                })
+                        Ok(n > 0)
+                    },
+                    |(vb, ib)| {
+                        let cur = (with_current && ib.len() == vb.len()).then_some(ib.as_slice());
+                        Ok(each(vb, cur))
+                    },
+                )
             }
             Source::Reopened {
                 path,
@@ -203,21 +177,65 @@ impl Replay for Source<'_> {
             } => {
                 let mut reader =
                     capture::open_blocks(path, &settings.read).map_err(|e| e.to_string())?;
-                let mut block = Block::default();
-                while reader
-                    .next_block_into(&mut block)
-                    .map_err(|e| e.to_string())?
-                {
-                    let channels = std::mem::take(&mut block.channels);
-                    let (sig, cur) = pick_block(header, channels, settings)?;
-                    if !each(&sig.samples, cur.as_ref().map(|c| c.samples.as_slice())) {
-                        return Ok(false);
-                    }
-                }
-                Ok(true)
+                let buffers = (0..3).map(|_| Block::default()).collect();
+                read_ahead(
+                    buffers,
+                    |block: &mut Block| reader.next_block_into(block).map_err(|e| e.to_string()),
+                    |block| {
+                        let channels = std::mem::take(&mut block.channels);
+                        let (sig, cur) = pick_block(header, channels, settings)?;
+                        let go_on = each(&sig.samples, cur.as_ref().map(|c| c.samples.as_slice()));
+                        // The block's buffers go back to the reader.
+                        block.channels = [Some(sig), cur]
+                            .into_iter()
+                            .flatten()
+                            .map(|c| c.samples)
+                            .collect();
+                        Ok(go_on)
+                    },
+                )
             }
         }
     }
+}
+
+/// Runs `fill` on a thread of its own, a block or two ahead of `use_` on this one, with the
+/// buffers going back and forth; `Ok(false)` from `fill` is the end of the samples, from
+/// `use_` a stop (then the result is `Ok(false)`). The reading thread waits only on these
+/// two channels, which close on any way out, never on the thread pool (which may be busy
+/// with this very file, or blocked on it): `fill` must not hand work to the pool (the
+/// readers read ahead on it only from inside it). No deadlock, no thread left behind.
+fn read_ahead<B: Send>(
+    buffers: Vec<B>,
+    mut fill: impl FnMut(&mut B) -> Result<bool, String> + Send,
+    mut use_: impl FnMut(&mut B) -> Result<bool, String>,
+) -> Result<bool, String> {
+    let (full_tx, full_rx) = std::sync::mpsc::sync_channel::<Result<Option<B>, String>>(2);
+    let (empty_tx, empty_rx) = std::sync::mpsc::channel::<B>();
+    for b in buffers {
+        let _ = empty_tx.send(b);
+    }
+    std::thread::scope(|scope| {
+        scope.spawn(move || {
+            while let Ok(mut b) = empty_rx.recv() {
+                let got = fill(&mut b);
+                let more = matches!(got, Ok(true));
+                if full_tx.send(got.map(|more| more.then_some(b))).is_err() || !more {
+                    break;
+                }
+            }
+        });
+        let (full_rx, empty_tx) = (full_rx, empty_tx);
+        loop {
+            let Ok(Some(mut b)) = full_rx.recv().unwrap_or(Ok(None)) else {
+                return Ok(true);
+            };
+            if !use_(&mut b)? {
+                return Ok(false);
+            }
+            let _ = empty_tx.send(b);
+        }
+    })
 }
 
 /// Fills `out` with up to `max` values read from `f`; returns how many.
