@@ -591,7 +591,11 @@ impl Scan<'_> {
                 let push = move |m: Measured<O::Out>| {
                     measured.lock().unwrap_or_else(|p| p.into_inner()).push(m)
                 };
-                if in_flight.load(Ordering::Acquire) + size <= self.limits.batch_samples {
+                // One window is always let go, however long: the longest (cut at the
+                // window limit) is larger than the budget, and measuring every one of them
+                // here would leave the pool idle while this thread does all the work.
+                let busy = in_flight.load(Ordering::Acquire);
+                if busy == 0 || busy + size <= self.limits.batch_samples {
                     in_flight.fetch_add(size, Ordering::AcqRel);
                     scope.spawn(move |_| {
                         push(self.measure_window(&closed, shared));
@@ -657,7 +661,7 @@ impl Scan<'_> {
                     }
                 }
                 // Trimmed seldom, so moving the kept history costs little per sample.
-                if recent.v.len() > 8 * keep {
+                if recent.v.len() > 3 * keep {
                     recent.drop_before(here - keep);
                 }
             };
