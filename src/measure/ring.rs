@@ -376,7 +376,10 @@ pub fn fft_peak_hz(y: &[f64], dt_s: f64) -> Option<f64> {
     }
     let fft = PLANNER.with(|p| p.borrow_mut().plan_fft_forward(nfft));
     fft.process(&mut buf);
-    let mags: Vec<f64> = buf.iter().take(nfft / 2).map(|c| c.norm()).collect();
+    // Squared magnitudes: the peak is the same bin, and the parabola through the logs of
+    // three of them has the same vertex (every log is doubled), without a square root
+    // (or `hypot`) per bin.
+    let mags: Vec<f64> = buf.iter().take(nfft / 2).map(|c| c.norm_sqr()).collect();
     // Skip the lobe the window leaves around DC.
     let first = 4 * nfft / n;
     let (k, &m) = mags
