@@ -455,34 +455,44 @@ fn moving_average(y: &[f64], w: usize) -> Vec<f64> {
         return y.to_vec();
     }
     let n = y.len();
-    let mut prefix = vec![0.0; n + 1];
-    let mut sum = 0.0;
-    for (p, &x) in prefix[1..].iter_mut().zip(y) {
-        sum += x;
-        *p = sum;
-    }
     let h = w / 2;
-    let edge = |k: usize| {
-        let a = k.saturating_sub(h);
-        let b = (k + w - h).min(n);
-        (prefix[b] - prefix[a]) / (b - a) as f64
-    };
-    if n < w {
-        return (0..n).map(edge).collect();
-    }
-    // Away from the ends every average spans exactly `w` samples: one subtraction and one
-    // division per sample over two shifted views of the sums, which the compiler
-    // vectorises (the same operations as at the ends, so the same values).
-    let width = w as f64;
+    // Prefix sums P[j] = y[0] + ... + y[j-1], added up in order once; the average at k is
+    // (P[b] - P[a]) / (b - a) over a = k - w/2 .. b = k + w - w/2, cut to the record. Only
+    // the sums a block of averages needs are held (a long window's full prefix array
+    // would be one more copy of it at the memory peak); the values are the same.
+    const BLOCK: usize = 4096;
     let mut out = Vec::with_capacity(n);
-    out.extend((0..h).map(edge));
-    out.extend(
-        prefix[w..=n]
-            .iter()
-            .zip(&prefix[..=n - w])
-            .map(|(b, a)| (b - a) / width),
-    );
-    out.extend((n - (w - h) + 1..n).map(edge));
+    // P[base..base + p.len()].
+    let (mut base, mut p) = (0usize, Vec::with_capacity(BLOCK + w + 1));
+    p.push(0.0);
+    let mut sum = 0.0;
+    let mut next = 0usize;
+    let width = w as f64;
+    let mut k0 = 0;
+    while k0 < n {
+        let k1 = (k0 + BLOCK).min(n);
+        let lo = k0.saturating_sub(h);
+        let drop = lo - base;
+        p.drain(..drop);
+        base = lo;
+        let hi = (k1 - 1 + w - h).min(n);
+        while next < hi {
+            sum += y[next];
+            next += 1;
+            p.push(sum);
+        }
+        let at = |j: usize| p[j - base];
+        for k in k0..k1 {
+            let a = k.saturating_sub(h);
+            let b = (k + w - h).min(n);
+            out.push(if b - a == w {
+                (at(b) - at(a)) / width
+            } else {
+                (at(b) - at(a)) / (b - a) as f64
+            });
+        }
+        k0 = k1;
+    }
     out
 }
 
@@ -591,8 +601,11 @@ mod tests {
     fn moving_average_matches_the_direct_sums_at_every_length() {
         // Each average straight from its definition (the mean of y[k - w/2 .. k + w - w/2]
         // cut to the record), from the same prefix sums, so the values agree exactly.
-        let y: Vec<f64> = (0..40).map(|k| ((k * 37) % 11) as f64 - 4.5).collect();
-        for n in [0, 1, 3, 15, 16, 17, 40] {
+        let y: Vec<f64> = (0..9000)
+            .map(|k| ((k * 37) % 11) as f64 - 4.5 + 1e-3 * k as f64)
+            .collect();
+        // Short records, and long ones across the blocks the sums are held in.
+        for n in [0, 1, 3, 15, 16, 17, 40, 4095, 4096, 4097, 4104, 9000] {
             for w in [2, 3, 4, 16] {
                 let y = &y[..n];
                 let mut prefix = vec![0.0];

@@ -363,23 +363,61 @@ pub fn fft_peak_hz(y: &[f64], dt_s: f64) -> Option<f64> {
     let n = y.len();
     let mean = y.iter().sum::<f64>() / n as f64;
     let nfft = (4 * n).next_power_of_two();
-    let mut buf: Vec<Complex<f64>> = Vec::with_capacity(nfft);
-    for (k, &x) in y.iter().enumerate() {
-        let w = 0.5 - 0.5 * (2.0 * std::f64::consts::PI * k as f64 / (n - 1) as f64).cos();
-        buf.push(Complex::new((x - mean) * w, 0.0));
-    }
-    buf.resize(nfft, Complex::new(0.0, 0.0));
     // Planning a size costs more than the transform itself (its twiddle tables); a planner
-    // per thread keeps the plans of the sizes already seen (a handful: powers of two).
+    // per thread keeps the plans of the sizes already seen (a handful: powers of two). The
+    // buffers are kept too: fresh ones of this size cost a page fault every 4 KiB, which
+    // on a folder of short captures was most of the transform's time.
     thread_local! {
-        static PLANNER: std::cell::RefCell<FftPlanner<f64>> = std::cell::RefCell::new(FftPlanner::new());
+        static WORK: std::cell::RefCell<FftWork> = std::cell::RefCell::new(FftWork {
+            planner: FftPlanner::new(),
+            buf: Vec::new(),
+            scratch: Vec::new(),
+            mags: Vec::new(),
+        });
     }
-    let fft = PLANNER.with(|p| p.borrow_mut().plan_fft_forward(nfft));
-    fft.process(&mut buf);
-    // Squared magnitudes: the peak is the same bin, and the parabola through the logs of
-    // three of them has the same vertex (every log is doubled), without a square root
-    // (or `hypot`) per bin.
-    let mags: Vec<f64> = buf.iter().take(nfft / 2).map(|c| c.norm_sqr()).collect();
+    WORK.with(|work| {
+        let work = &mut *work.borrow_mut();
+        let buf = &mut work.buf;
+        buf.clear();
+        for (k, &x) in y.iter().enumerate() {
+            let w = 0.5 - 0.5 * (2.0 * std::f64::consts::PI * k as f64 / (n - 1) as f64).cos();
+            buf.push(Complex::new((x - mean) * w, 0.0));
+        }
+        buf.resize(nfft, Complex::new(0.0, 0.0));
+        let fft = work.planner.plan_fft_forward(nfft);
+        work.scratch
+            .resize(fft.get_inplace_scratch_len(), Complex::new(0.0, 0.0));
+        fft.process_with_scratch(buf, &mut work.scratch);
+        // Squared magnitudes: the peak is the same bin, and the parabola through the logs
+        // of three of them has the same vertex (every log is doubled), without a square
+        // root (or `hypot`) per bin.
+        work.mags.clear();
+        work.mags
+            .extend(buf.iter().take(nfft / 2).map(|c| c.norm_sqr()));
+        let peak = peak_of_spectrum(&work.mags, n, nfft, dt_s);
+        // Long transforms (a long capture's ring) are rare and their buffers large: not
+        // kept, so each thread holds at most a few hundred KiB between calls.
+        if nfft > KEPT_FFT_POINTS {
+            (work.buf, work.scratch, work.mags) = Default::default();
+        }
+        peak
+    })
+}
+
+/// Longest transform whose buffers a thread keeps for the next call.
+const KEPT_FFT_POINTS: usize = 1 << 14;
+
+/// Buffers and plans of [`fft_peak_hz`], one set per thread.
+struct FftWork {
+    planner: FftPlanner<f64>,
+    buf: Vec<Complex<f64>>,
+    scratch: Vec<Complex<f64>>,
+    mags: Vec<f64>,
+}
+
+/// The refined frequency of the largest bin of `mags` (squared magnitudes of an `nfft`-point
+/// transform of `n` samples).
+fn peak_of_spectrum(mags: &[f64], n: usize, nfft: usize, dt_s: f64) -> Option<f64> {
     // Skip the lobe the window leaves around DC.
     let first = 4 * nfft / n;
     let (k, &m) = mags

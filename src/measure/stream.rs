@@ -593,9 +593,22 @@ impl Scan<'_> {
                 };
                 // One window is always let go, however long: the longest (cut at the
                 // window limit) is larger than the budget, and measuring every one of them
-                // here would leave the pool idle while this thread does all the work.
-                let busy = in_flight.load(Ordering::Acquire);
-                if busy == 0 || busy + size <= self.limits.batch_samples {
+                // here would leave the pool idle while this thread does all the work. A
+                // long one waits for the windows in flight instead of being measured here
+                // beside them (two long windows' working copies at once would double the
+                // peak memory); waiting, this thread runs pool work, its own spawned window
+                // first, so the wait always ends.
+                let budget = self.limits.batch_samples;
+                let mut busy = in_flight.load(Ordering::Acquire);
+                if busy > 0 && busy + size > budget && 2 * size > budget {
+                    while in_flight.load(Ordering::Acquire) > 0 {
+                        if !matches!(rayon::yield_now(), Some(rayon::Yield::Executed)) {
+                            std::thread::yield_now();
+                        }
+                    }
+                    busy = 0;
+                }
+                if busy == 0 || busy + size <= budget {
                     in_flight.fetch_add(size, Ordering::AcqRel);
                     scope.spawn(move |_| {
                         push(self.measure_window(&closed, shared));
