@@ -26,17 +26,67 @@ fn wait_with_limit(child: &mut std::process::Child, limit: Duration) -> std::pro
     }
 }
 
-#[test]
-fn ctrl_c_stops_the_batch_and_keeps_the_old_report() {
-    let bin = assert_cmd::cargo::cargo_bin("kickscan");
-    let root = tempfile::tempdir().unwrap();
-    let inputs = root.path().join("captures");
-    std::fs::create_dir(&inputs).unwrap();
-    // An earlier report: a folder kickscan wrote (its marker) with a page in it.
-    let out = root.path().join("report");
+/// kickscan with `args`, its output captured.
+fn start(args: &[&std::ffi::OsStr]) -> std::process::Child {
+    Command::new(assert_cmd::cargo::cargo_bin("kickscan"))
+        .args(args)
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap()
+}
+
+/// Sends Ctrl-C (SIGINT) to the child.
+fn ctrl_c(child: &std::process::Child) {
+    let sent = Command::new("kill")
+        .arg("-INT")
+        .arg(child.id().to_string())
+        .status()
+        .unwrap();
+    assert!(sent.success());
+}
+
+/// The child's exit code (`None` when a signal ended it) and its standard output and
+/// error, once it has stopped (at most `limit` after the signal).
+fn finish(mut child: std::process::Child, limit: Duration) -> (Option<i32>, Vec<u8>, String) {
+    let status = wait_with_limit(&mut child, limit);
+    let output = child.wait_with_output().unwrap();
+    let stderr = String::from_utf8_lossy(&output.stderr).into_owned();
+    (status.code(), output.stdout, stderr)
+}
+
+/// A report folder kickscan wrote earlier (its marker and a page), at `root/report`.
+fn earlier_report(root: &Path) -> std::path::PathBuf {
+    let out = root.join("report");
     std::fs::create_dir(&out).unwrap();
     std::fs::write(out.join(".kickscan-report"), "written by kickscan\n").unwrap();
     std::fs::write(out.join("report.html"), "the earlier report\n").unwrap();
+    out
+}
+
+/// The numbers of the `interrupted: M of N files measured; no report written` line.
+fn interrupted_counts(stderr: &str) -> (usize, usize) {
+    let line = stderr
+        .lines()
+        .find(|l| l.starts_with("interrupted: "))
+        .unwrap_or_else(|| panic!("no 'interrupted' line in: {stderr}"));
+    assert!(
+        line.ends_with(" files measured; no report written"),
+        "{line}"
+    );
+    let mut words = line.trim_start_matches("interrupted: ").split(' ');
+    let measured = words.next().unwrap().parse().unwrap();
+    assert_eq!(words.next(), Some("of"), "{line}");
+    let total = words.next().unwrap().parse().unwrap();
+    (measured, total)
+}
+
+#[test]
+fn ctrl_c_stops_the_batch_and_keeps_the_old_report() {
+    let root = tempfile::tempdir().unwrap();
+    let inputs = root.path().join("captures");
+    std::fs::create_dir(&inputs).unwrap();
+    let out = earlier_report(root.path());
 
     // Enough files that the batch is still running when the signal comes; more on a retry
     // if a fast machine finished first.
@@ -47,57 +97,24 @@ fn ctrl_c_stops_the_batch_and_keeps_the_old_report() {
             std::fs::copy(sample_shot(), inputs.join(format!("shot-{n_files:04}.csv"))).unwrap();
             n_files += 1;
         }
-        let mut child = Command::new(&bin)
-            .arg("measure")
-            .arg(&inputs)
-            .arg("--json")
-            .arg("--out")
-            .arg(&out)
-            .stdout(Stdio::piped())
-            .stderr(Stdio::piped())
-            .spawn()
-            .unwrap();
+        let child = start(&[
+            "measure".as_ref(),
+            inputs.as_os_str(),
+            "--json".as_ref(),
+            "--out".as_ref(),
+            out.as_os_str(),
+        ]);
         // Past process start-up, so the handler is installed when the signal arrives.
         std::thread::sleep(Duration::from_millis(800 + 400 * attempt));
-        let sent = Command::new("kill")
-            .arg("-INT")
-            .arg(child.id().to_string())
-            .status()
-            .unwrap();
-        assert!(sent.success());
-        let status = wait_with_limit(&mut child, Duration::from_secs(60));
-        let output = child.wait_with_output().unwrap();
-        let stderr = String::from_utf8_lossy(&output.stderr).into_owned();
-        match status.code() {
+        ctrl_c(&child);
+        let (code, stdout, stderr) = finish(child, Duration::from_secs(60));
+        match code {
             Some(130) => {
-                let line = stderr
-                    .lines()
-                    .find(|l| l.starts_with("interrupted: "))
-                    .unwrap_or_else(|| panic!("no 'interrupted' line in: {stderr}"));
-                let measured: usize = line
-                    .trim_start_matches("interrupted: ")
-                    .split(' ')
-                    .next()
-                    .unwrap()
-                    .parse()
-                    .unwrap();
-                assert!(measured < n_files, "{line}");
-                assert!(
-                    line.ends_with(&format!(" of {n_files} files measured; no report written")),
-                    "{line}"
-                );
-                assert!(output.stdout.is_empty(), "no half document on stdout");
-                assert_eq!(
-                    std::fs::read_to_string(out.join("report.html")).unwrap(),
-                    "the earlier report\n"
-                );
-                // Nothing else beside the report: no temporary folder left behind.
-                let mut names: Vec<String> = std::fs::read_dir(root.path())
-                    .unwrap()
-                    .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
-                    .collect();
-                names.sort();
-                assert_eq!(names, ["captures", "report"]);
+                let (measured, total) = interrupted_counts(&stderr);
+                assert_eq!(total, n_files, "{stderr}");
+                assert!(measured < n_files, "{stderr}");
+                assert!(stdout.is_empty(), "no half document on stdout");
+                assert_old_report_kept(root.path(), &out);
                 return;
             }
             // Finished before the signal came: try again with more files.
@@ -105,7 +122,7 @@ fn ctrl_c_stops_the_batch_and_keeps_the_old_report() {
             // The signal came before the handler was installed (a slow start on a loaded
             // machine): the default action ended it. Try again, waiting longer.
             None => continue,
-            other => panic!("exit {other:?} (status {status}); stderr: {stderr}"),
+            other => panic!("exit {other:?}; stderr: {stderr}"),
         }
     }
     panic!("the batch always finished before Ctrl-C arrived, or it arrived before start-up");
@@ -145,17 +162,13 @@ fn assert_old_report_kept(root: &Path, out: &Path) {
 /// files under way, with a line saying how far it got, exit 130 and the earlier report kept.
 #[test]
 fn ctrl_c_stops_the_demo_and_keeps_the_old_report() {
-    let bin = assert_cmd::cargo::cargo_bin("kickscan");
     let root = tempfile::tempdir().unwrap();
     let captures = root.path().join("captures");
     copy_tree(
         &Path::new(env!("CARGO_MANIFEST_DIR")).join("sample-captures"),
         &captures,
     );
-    let out = root.path().join("report");
-    std::fs::create_dir(&out).unwrap();
-    std::fs::write(out.join(".kickscan-report"), "written by kickscan\n").unwrap();
-    std::fs::write(out.join("report.html"), "the earlier report\n").unwrap();
+    let out = earlier_report(root.path());
 
     let mut n_copies = 0;
     for attempt in 0..3 {
@@ -168,64 +181,38 @@ fn ctrl_c_stops_the_demo_and_keeps_the_old_report() {
             .unwrap();
             n_copies += 1;
         }
-        let mut child = Command::new(&bin)
-            .arg("demo")
-            .arg("--captures")
-            .arg(&captures)
-            .arg("--out")
-            .arg(&out)
-            .stdout(Stdio::piped())
-            .stderr(Stdio::piped())
-            .spawn()
-            .unwrap();
+        let child = start(&[
+            "demo".as_ref(),
+            "--captures".as_ref(),
+            captures.as_os_str(),
+            "--out".as_ref(),
+            out.as_os_str(),
+        ]);
         std::thread::sleep(Duration::from_millis(800 + 400 * attempt));
-        let sent = Command::new("kill")
-            .arg("-INT")
-            .arg(child.id().to_string())
-            .status()
-            .unwrap();
-        assert!(sent.success());
-        let status = wait_with_limit(&mut child, Duration::from_secs(60));
-        let output = child.wait_with_output().unwrap();
-        let stderr = String::from_utf8_lossy(&output.stderr).into_owned();
-        match status.code() {
+        ctrl_c(&child);
+        let (code, stdout, stderr) = finish(child, Duration::from_secs(60));
+        match code {
             Some(130) => {
-                let line = stderr
-                    .lines()
-                    .find(|l| l.starts_with("interrupted: "))
-                    .unwrap_or_else(|| panic!("no 'interrupted' line in: {stderr}"));
-                let mut words = line.trim_start_matches("interrupted: ").split(' ');
-                let measured: usize = words.next().unwrap().parse().unwrap();
-                assert_eq!(words.next(), Some("of"), "{line}");
-                let total: usize = words.next().unwrap().parse().unwrap();
+                let (measured, total) = interrupted_counts(&stderr);
                 // The scenario's captures (`ls sample-captures/*/` without the .json
                 // sidecars: 18 in the variant and current folders, the bare/loaded pair)
                 // and the copies.
-                assert_eq!(total, 20 + n_copies, "{line}");
-                assert!(measured < total, "{line}");
-                assert!(
-                    line.ends_with(" files measured; no report written"),
-                    "{line}"
-                );
-                assert!(output.stdout.is_empty(), "no results on stdout: {stderr}");
+                assert_eq!(total, 20 + n_copies, "{stderr}");
+                assert!(measured < total, "{stderr}");
+                assert!(stdout.is_empty(), "no results on stdout: {stderr}");
                 assert_old_report_kept(root.path(), &out);
                 return;
             }
             Some(0) | None => continue,
-            other => panic!("exit {other:?} (status {status}); stderr: {stderr}"),
+            other => panic!("exit {other:?}; stderr: {stderr}"),
         }
     }
     panic!("the demo always finished before Ctrl-C arrived, or it arrived before start-up");
 }
 
-/// Writes a long capture by formula: a switch node toggling between 0.2 V (on) and 24 V
-/// (off) every 5000 samples, 1 us apart, `n` samples; long enough that measuring it is one
-/// step of seconds in a debug build.
-/// A 16-bit WAV (with its sidecar: 100 V full scale, 1 MSa/s) of `n` samples switching
-/// off every 5000 samples into a ringing 24 V level, with a little deterministic wobble so
-/// the levels have a spread to measure. WAV reads fast, so a signal sent a moment after start
-/// finds the run measuring the capture held in memory, a step that only ends when done.
-fn write_long_capture(path: &Path, n: usize) {
+/// Writes a mono 16-bit WAV of `n` samples at 1 MSa/s whose sample `k` is `volts(k)`
+/// on 100 V full scale.
+fn write_wav(path: &Path, n: usize, volts: impl Fn(usize) -> f64) {
     use std::io::Write;
     let mut w = std::io::BufWriter::new(std::fs::File::create(path).unwrap());
     let data = (2 * n) as u32;
@@ -233,18 +220,27 @@ fn write_long_capture(path: &Path, n: usize) {
     w.write_all(&(36 + data).to_le_bytes()).unwrap();
     w.write_all(b"WAVEfmt ").unwrap();
     w.write_all(&16u32.to_le_bytes()).unwrap();
-    for x in [1u16, 1] {
-        w.write_all(&x.to_le_bytes()).unwrap();
-    }
-    for x in [1_000_000u32, 2_000_000] {
-        w.write_all(&x.to_le_bytes()).unwrap();
-    }
-    for x in [2u16, 16] {
-        w.write_all(&x.to_le_bytes()).unwrap();
-    }
+    w.write_all(&1u16.to_le_bytes()).unwrap(); // PCM
+    w.write_all(&1u16.to_le_bytes()).unwrap(); // mono
+    w.write_all(&1_000_000u32.to_le_bytes()).unwrap();
+    w.write_all(&2_000_000u32.to_le_bytes()).unwrap();
+    w.write_all(&2u16.to_le_bytes()).unwrap();
+    w.write_all(&16u16.to_le_bytes()).unwrap();
     w.write_all(b"data").unwrap();
     w.write_all(&data.to_le_bytes()).unwrap();
     for k in 0..n {
+        let code = (volts(k) / 100.0 * 32767.0).round() as i16;
+        w.write_all(&code.to_le_bytes()).unwrap();
+    }
+}
+
+/// A capture held whole in memory (with its sidecar: 100 V full scale, 1 MSa/s) of `n`
+/// samples switching off every 5000 samples into a ringing 24 V level, with a little
+/// deterministic wobble so the levels have a spread to measure. WAV reads fast, so a
+/// signal sent a moment after start finds the run measuring it, a step that only ends when
+/// done.
+fn write_long_capture(path: &Path, n: usize) {
+    write_wav(path, n, |k| {
         // Every 5000 samples: on for 1000, then a ring of 100-sample period decaying over
         // 800 samples (invented shape), which gives the model fit of each of the 200 events
         // real work.
@@ -255,10 +251,8 @@ fn write_long_capture(path: &Path, n: usize) {
             let t = (x - 1000) as f64;
             24.0 + 40.0 * (-t / 800.0).exp() * (std::f64::consts::TAU * t / 100.0).sin()
         };
-        let wobble = 0.01 * ((k % 7) as f64 - 3.0);
-        let code = ((v + wobble) / 100.0 * 32768.0).round() as i16;
-        w.write_all(&code.to_le_bytes()).unwrap();
-    }
+        v + 0.01 * ((k % 7) as f64 - 3.0)
+    });
     std::fs::write(
         path.with_extension("json"),
         r#"{"sample_rate_hz": 1e6, "t0_s": 0.0, "channels": [{"name": "v", "unit": "V",
@@ -271,7 +265,6 @@ fn write_long_capture(path: &Path, n: usize) {
 /// 130 without the line a finished step prints, and the earlier report kept.
 #[test]
 fn a_second_ctrl_c_ends_the_demo_at_once() {
-    let bin = assert_cmd::cargo::cargo_bin("kickscan");
     let root = tempfile::tempdir().unwrap();
     let captures = root.path().join("captures");
     std::fs::create_dir_all(captures.join("long")).unwrap();
@@ -285,48 +278,35 @@ fn a_second_ctrl_c_ends_the_demo_at_once() {
                          {"label": "short", "folder": "short"}]}"#,
     )
     .unwrap();
-    let out = root.path().join("report");
-    std::fs::create_dir(&out).unwrap();
-    std::fs::write(out.join(".kickscan-report"), "written by kickscan\n").unwrap();
-    std::fs::write(out.join("report.html"), "the earlier report\n").unwrap();
+    let out = earlier_report(root.path());
 
     for attempt in 0..3 {
         // Held whole in memory (longer captures are streamed and stop at the first Ctrl-C).
         write_long_capture(&captures.join("long/long.wav"), 1_000_000);
-        let mut child = Command::new(&bin)
-            .arg("demo")
-            .arg("--captures")
-            .arg(&captures)
-            .arg("--out")
-            .arg(&out)
-            .stdout(Stdio::piped())
-            .stderr(Stdio::piped())
-            .spawn()
-            .unwrap();
+        let child = start(&[
+            "demo".as_ref(),
+            "--captures".as_ref(),
+            captures.as_os_str(),
+            "--out".as_ref(),
+            out.as_os_str(),
+        ]);
         std::thread::sleep(Duration::from_millis(800 + 400 * attempt));
         for _ in 0..2 {
-            let sent = Command::new("kill")
-                .arg("-INT")
-                .arg(child.id().to_string())
-                .status()
-                .unwrap();
-            assert!(sent.success());
+            ctrl_c(&child);
             // Apart enough that the two signals are not merged into one pending signal.
             std::thread::sleep(Duration::from_millis(200));
         }
-        let status = wait_with_limit(&mut child, Duration::from_secs(60));
-        let output = child.wait_with_output().unwrap();
-        let stderr = String::from_utf8_lossy(&output.stderr).into_owned();
-        match status.code() {
+        let (code, stdout, stderr) = finish(child, Duration::from_secs(60));
+        match code {
             Some(130) if !stderr.contains("interrupted: ") => {
-                assert!(output.stdout.is_empty());
+                assert!(stdout.is_empty());
                 assert_old_report_kept(root.path(), &out);
                 return;
             }
             // The long capture was measured before the second signal came (a fast machine),
             // the run finished, or the signal beat the handler: again, longer.
             Some(130) | Some(0) | None => continue,
-            other => panic!("exit {other:?} (status {status}); stderr: {stderr}"),
+            other => panic!("exit {other:?}; stderr: {stderr}"),
         }
     }
     panic!("the second Ctrl-C never ended the demo while it measured the long capture");
@@ -335,39 +315,15 @@ fn a_second_ctrl_c_ends_the_demo_at_once() {
 /// A 16-bit WAV of `n` samples at 1 MSa/s: a turn-off every 100 000 samples (on at 0 V for
 /// 20 000 samples, then 24 V plus a decaying 5 kHz ring), invented demo data.
 fn write_ringing_wav(path: &Path, n: usize) {
-    use std::io::Write;
-    let mut f = std::io::BufWriter::new(std::fs::File::create(path).unwrap());
-    let data = (2 * n) as u32;
-    f.write_all(b"RIFF").unwrap();
-    f.write_all(&(36 + data).to_le_bytes()).unwrap();
-    f.write_all(b"WAVEfmt ").unwrap();
-    f.write_all(&16u32.to_le_bytes()).unwrap();
-    f.write_all(&1u16.to_le_bytes()).unwrap(); // PCM
-    f.write_all(&1u16.to_le_bytes()).unwrap(); // mono
-    f.write_all(&1_000_000u32.to_le_bytes()).unwrap();
-    f.write_all(&2_000_000u32.to_le_bytes()).unwrap();
-    f.write_all(&2u16.to_le_bytes()).unwrap();
-    f.write_all(&16u16.to_le_bytes()).unwrap();
-    f.write_all(b"data").unwrap();
-    f.write_all(&data.to_le_bytes()).unwrap();
-    let mut buf = Vec::with_capacity(1 << 16);
-    for k in 0..n {
+    write_wav(path, n, |k| {
         let x = k % 100_000;
-        let v = if x < 20_000 {
+        if x < 20_000 {
             0.0
         } else {
             let t = (x - 20_000) as f64 * 1e-6;
             24.0 + 60.0 * (-t / 2e-4).exp() * (std::f64::consts::TAU * 5e3 * t).sin()
-        };
-        // 100 V full scale.
-        let code = (v / 100.0 * 32767.0).round() as i16;
-        buf.extend_from_slice(&code.to_le_bytes());
-        if buf.len() >= 1 << 16 {
-            f.write_all(&buf).unwrap();
-            buf.clear();
         }
-    }
-    f.write_all(&buf).unwrap();
+    });
 }
 
 /// Ctrl-C while one long capture is being measured: the streaming passes poll the stop flag
@@ -375,7 +331,6 @@ fn write_ringing_wav(path: &Path, n: usize) {
 /// report and exits 130.
 #[test]
 fn ctrl_c_inside_one_long_capture_stops_it() {
-    let bin = assert_cmd::cargo::cargo_bin("kickscan");
     let dir = tempfile::tempdir().unwrap();
     let out = dir.path().join("report");
     // Long enough that a debug build is still inside the file when the signal comes; longer
@@ -383,36 +338,26 @@ fn ctrl_c_inside_one_long_capture_stops_it() {
     for (attempt, n) in [30_000_000usize, 120_000_000].into_iter().enumerate() {
         let wav = dir.path().join(format!("long-{attempt}.wav"));
         write_ringing_wav(&wav, n);
-        let mut child = Command::new(&bin)
-            .arg("measure")
-            .arg(&wav)
-            .arg("--json")
-            .arg("--out")
-            .arg(&out)
-            .stdout(Stdio::piped())
-            .stderr(Stdio::piped())
-            .spawn()
-            .unwrap();
+        let child = start(&[
+            "measure".as_ref(),
+            wav.as_os_str(),
+            "--json".as_ref(),
+            "--out".as_ref(),
+            out.as_os_str(),
+        ]);
         // Past process start-up, so the handler is installed when the signal arrives.
         std::thread::sleep(Duration::from_millis(700));
-        let sent = Command::new("kill")
-            .arg("-INT")
-            .arg(child.id().to_string())
-            .status()
-            .unwrap();
-        assert!(sent.success());
-        let status = wait_with_limit(&mut child, Duration::from_secs(120));
-        let output = child.wait_with_output().unwrap();
-        let stderr = String::from_utf8_lossy(&output.stderr).into_owned();
-        assert_eq!(status.code(), Some(130), "stderr: {stderr}");
-        assert!(output.stdout.is_empty(), "no results on stdout");
+        ctrl_c(&child);
+        let (code, stdout, stderr) = finish(child, Duration::from_secs(120));
+        assert_eq!(code, Some(130), "stderr: {stderr}");
+        assert!(stdout.is_empty(), "no results on stdout");
         assert!(!out.exists(), "no report folder");
-        if stderr.contains("interrupted: 0 of 1 files measured") {
-            return;
+        match interrupted_counts(&stderr) {
+            (0, 1) => return,
+            // The file was finished before the signal arrived: try a longer one.
+            (1, 1) => std::fs::remove_file(&wav).unwrap(),
+            other => panic!("{other:?}: {stderr}"),
         }
-        // The file was finished before the signal arrived: try a longer one.
-        assert!(stderr.contains("interrupted: 1 of 1"), "stderr: {stderr}");
-        std::fs::remove_file(&wav).unwrap();
     }
     panic!("the capture was always measured before the signal arrived");
 }
