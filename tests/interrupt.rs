@@ -36,6 +36,28 @@ fn start(args: &[&std::ffi::OsStr]) -> std::process::Child {
         .unwrap()
 }
 
+/// `kickscan measure INPUT --json --out OUT`.
+fn start_measure(input: &Path, out: &Path) -> std::process::Child {
+    start(&[
+        "measure".as_ref(),
+        input.as_os_str(),
+        "--json".as_ref(),
+        "--out".as_ref(),
+        out.as_os_str(),
+    ])
+}
+
+/// `kickscan demo --captures CAPTURES --out OUT`.
+fn start_demo(captures: &Path, out: &Path) -> std::process::Child {
+    start(&[
+        "demo".as_ref(),
+        "--captures".as_ref(),
+        captures.as_os_str(),
+        "--out".as_ref(),
+        out.as_os_str(),
+    ])
+}
+
 /// Sends Ctrl-C (SIGINT) to the child.
 fn ctrl_c(child: &std::process::Child) {
     let sent = Command::new("kill")
@@ -97,13 +119,7 @@ fn ctrl_c_stops_the_batch_and_keeps_the_old_report() {
             std::fs::copy(sample_shot(), inputs.join(format!("shot-{n_files:04}.csv"))).unwrap();
             n_files += 1;
         }
-        let child = start(&[
-            "measure".as_ref(),
-            inputs.as_os_str(),
-            "--json".as_ref(),
-            "--out".as_ref(),
-            out.as_os_str(),
-        ]);
+        let child = start_measure(&inputs, &out);
         // Past process start-up, so the handler is installed when the signal arrives.
         std::thread::sleep(Duration::from_millis(800 + 400 * attempt));
         ctrl_c(&child);
@@ -181,13 +197,7 @@ fn ctrl_c_stops_the_demo_and_keeps_the_old_report() {
             .unwrap();
             n_copies += 1;
         }
-        let child = start(&[
-            "demo".as_ref(),
-            "--captures".as_ref(),
-            captures.as_os_str(),
-            "--out".as_ref(),
-            out.as_os_str(),
-        ]);
+        let child = start_demo(&captures, &out);
         std::thread::sleep(Duration::from_millis(800 + 400 * attempt));
         ctrl_c(&child);
         let (code, stdout, stderr) = finish(child, Duration::from_secs(60));
@@ -283,13 +293,7 @@ fn a_second_ctrl_c_ends_the_demo_at_once() {
     for attempt in 0..3 {
         // Held whole in memory (longer captures are streamed and stop at the first Ctrl-C).
         write_long_capture(&captures.join("long/long.wav"), 1_000_000);
-        let child = start(&[
-            "demo".as_ref(),
-            "--captures".as_ref(),
-            captures.as_os_str(),
-            "--out".as_ref(),
-            out.as_os_str(),
-        ]);
+        let child = start_demo(&captures, &out);
         std::thread::sleep(Duration::from_millis(800 + 400 * attempt));
         for _ in 0..2 {
             ctrl_c(&child);
@@ -338,13 +342,7 @@ fn ctrl_c_inside_one_long_capture_stops_it() {
     for (attempt, n) in [30_000_000usize, 120_000_000].into_iter().enumerate() {
         let wav = dir.path().join(format!("long-{attempt}.wav"));
         write_ringing_wav(&wav, n);
-        let child = start(&[
-            "measure".as_ref(),
-            wav.as_os_str(),
-            "--json".as_ref(),
-            "--out".as_ref(),
-            out.as_os_str(),
-        ]);
+        let child = start_measure(&wav, &out);
         // Past process start-up, so the handler is installed when the signal arrives.
         std::thread::sleep(Duration::from_millis(700));
         ctrl_c(&child);
