@@ -227,8 +227,12 @@ fn read_ahead<B: Send>(
         });
         let (full_rx, empty_tx) = (full_rx, empty_tx);
         loop {
-            let Ok(Some(mut b)) = full_rx.recv().unwrap_or(Ok(None)) else {
-                return Ok(true);
+            let mut b = match full_rx.recv() {
+                Ok(Ok(Some(b))) => b,
+                Ok(Err(e)) => return Err(e),
+                // The end; or the reading thread is gone without saying so, which only a
+                // panic does, and the scope passes that on when it joins the thread.
+                Ok(Ok(None)) | Err(_) => return Ok(true),
             };
             if !use_(&mut b)? {
                 return Ok(false);
@@ -494,6 +498,38 @@ mod tests {
             v: v.finish().unwrap(),
             i: Some(i.finish().unwrap()),
         }
+    }
+
+    /// A read that fails part way is the pass's error, after the blocks read before it;
+    /// a use that fails ends the pass with its error.
+    #[test]
+    fn a_failed_read_ahead_is_an_error_not_an_end() {
+        let mut calls = 0;
+        let mut used = Vec::new();
+        let r = read_ahead(
+            vec![0usize; 3],
+            |b: &mut usize| {
+                calls += 1;
+                *b = calls;
+                if calls == 4 {
+                    Err("disk gone".to_string())
+                } else {
+                    Ok(true)
+                }
+            },
+            |b| {
+                used.push(*b);
+                Ok(true)
+            },
+        );
+        assert_eq!(r, Err("disk gone".to_string()));
+        assert_eq!(used, [1, 2, 3]);
+        let r = read_ahead(
+            vec![0usize; 3],
+            |_| Ok(true),
+            |_| Err("bad block".to_string()),
+        );
+        assert_eq!(r, Err("bad block".to_string()));
     }
 
     /// The spill comes back whole and in order on every pass, read ahead on its own
