@@ -149,6 +149,7 @@ pub(crate) fn profile_interval<F: Fn(f64, &[f64]) -> f64 + Sync>(
     // The two ends are searched independently, side by side.
     let bound = |dir: f64| -> Option<f64> {
         let mut inner = z_hat;
+        let mut f_inner = excess(nll_min);
         let mut inner_rest = rest_hat.to_vec();
         let mut d = 0.5 * width;
         let mut outer = None;
@@ -157,27 +158,51 @@ pub(crate) fn profile_interval<F: Fn(f64, &[f64]) -> f64 + Sync>(
             match profile(z, &[&inner_rest, rest_hat]) {
                 Some((v, r)) if excess(v) < 0.0 => {
                     inner = z;
+                    f_inner = excess(v);
                     inner_rest = r;
                     d *= 1.6;
                 }
-                _ => {
-                    outer = Some(z);
+                found => {
+                    outer = Some((z, found.map(|(v, _)| excess(v))));
                     break;
                 }
             }
         }
-        let mut outer = outer?;
+        let (mut outer, mut f_outer) = outer?;
+        // The crossing of the deviance with its 95 % point, by regula falsi with the
+        // Illinois modification (Dowell & Jarratt 1971: the end kept twice in a row has its
+        // value halved, so both ends close in), falling back to halving where the profile
+        // cannot be evaluated; the bracket always holds the crossing.
+        let mut kept = 0i8;
         for _ in 0..60 {
             if (outer - inner).abs() <= 1e-9 * (1.0 + z_hat.abs()) {
                 break;
             }
-            let mid = 0.5 * (inner + outer);
-            match profile(mid, &[&inner_rest, rest_hat]) {
-                Some((v, r)) if excess(v) < 0.0 => {
-                    inner = mid;
-                    inner_rest = r;
+            let z = match f_outer.filter(|f| f.is_finite() && *f > f_inner) {
+                Some(fo) => {
+                    let t = (f_inner / (f_inner - fo)).clamp(0.0, 1.0);
+                    inner + t * (outer - inner)
                 }
-                _ => outer = mid,
+                None => 0.5 * (inner + outer),
+            };
+            match profile(z, &[&inner_rest, rest_hat]) {
+                Some((v, r)) if excess(v) < 0.0 => {
+                    inner = z;
+                    f_inner = excess(v);
+                    inner_rest = r;
+                    if kept == -1 {
+                        f_outer = f_outer.map(|f| 0.5 * f);
+                    }
+                    kept = -1;
+                }
+                found => {
+                    outer = z;
+                    f_outer = found.map(|(v, _)| excess(v));
+                    if kept == 1 {
+                        f_inner *= 0.5;
+                    }
+                    kept = 1;
+                }
             }
         }
         Some(0.5 * (inner + outer))
