@@ -6,7 +6,7 @@ use std::path::Path;
 use super::text::SniffLine;
 use super::{csv_err, row_cell_iter};
 use crate::capture::cells::{last_digit_place, parse_number, pow10, trim_cell, Delim};
-use crate::capture::decimal::read_fast;
+use crate::capture::decimal::{read_fast, read_prefix};
 use crate::capture::CaptureError;
 
 /// A time step this much longer than the sample interval is a gap, not jitter.
@@ -35,8 +35,21 @@ pub(super) fn window_times(
     delim: Delim,
     comma: bool,
 ) -> Vec<(f64, f64, usize)> {
-    let mut out = Vec::new();
+    let mut out = Vec::with_capacity(lines.len());
+    // Rows of bare numbers split by one byte (nearly all) are read straight through, each
+    // cell up to where its number ends; any other row takes the general way below, which
+    // gives the same for these.
+    let bare = match delim {
+        Delim::Byte(d) if !b"0123456789+-.eE\r\n".contains(&d) && !(comma && d == b',') => Some(d),
+        _ => None,
+    };
     for l in lines {
+        if let Some(t) =
+            bare.and_then(|d| bare_time_cell(l.text.as_bytes(), d, n_fields, col, comma))
+        {
+            out.push(t);
+            continue;
+        }
         if l.text.trim().is_empty() {
             continue;
         }
@@ -64,6 +77,36 @@ pub(super) fn window_times(
         }
     }
     out
+}
+
+/// The time cell of a row of exactly `n_fields` bare numbers split by `d` (value, printed
+/// resolution, decimals), or `None` for any other row.
+fn bare_time_cell(
+    row: &[u8],
+    d: u8,
+    n_fields: usize,
+    col: usize,
+    comma: bool,
+) -> Option<(f64, f64, usize)> {
+    let mut at = 0;
+    let mut time = None;
+    for k in 0..n_fields {
+        let (number, len) = read_prefix(row.get(at..)?, comma)?;
+        at += len;
+        if k == col {
+            time = Some((
+                number.value,
+                pow10(number.last_place),
+                number.decimals as usize,
+            ));
+        }
+        match row.get(at) {
+            Some(&b) if b == d && k + 1 < n_fields => at += 1,
+            None if k + 1 == n_fields => {}
+            _ => return None,
+        }
+    }
+    time
 }
 
 fn median(v: &mut [f64]) -> Option<f64> {
@@ -266,6 +309,41 @@ mod tests {
                 proptest::prop_assert_eq!(pow10(d.last_place).to_bits(), last_digit_place(cell).to_bits());
                 proptest::prop_assert_eq!(d.decimals as usize, decimals(cell));
             }
+        }
+    }
+
+    /// A bare row's time cell read straight through is what splitting the row and reading
+    /// the cell gives; rows that are not bare numbers are left to the general way.
+    #[test]
+    fn bare_rows_give_the_time_cell_the_general_way_gives() {
+        for (row, d, comma) in [
+            ("1.000000000e-07,-0.3922", b',', false),
+            ("12,3.5,7", b',', false),
+            ("-2.5e-3;1,25", b';', true),
+            ("0.001\t5", b'\t', false),
+        ] {
+            let n = row.split(d as char).count();
+            for col in 0..n {
+                let got = bare_time_cell(row.as_bytes(), d, n, col, comma).unwrap();
+                let cell = row.split(d as char).nth(col).unwrap().as_bytes();
+                let want = (
+                    parse_number(cell, comma).unwrap(),
+                    last_digit_place(cell),
+                    decimals(cell),
+                );
+                assert_eq!(got.0.to_bits(), want.0.to_bits(), "{row}");
+                assert_eq!(got.1.to_bits(), want.1.to_bits(), "{row}");
+                assert_eq!(got.2, want.2, "{row}");
+            }
+        }
+        for row in [
+            "", " 1,2", "1,2,", "1,abc", "1", "1,2,3", "1 ,2", "\"1\",2", "inf,2",
+        ] {
+            assert_eq!(
+                bare_time_cell(row.as_bytes(), b',', 2, 0, false),
+                None,
+                "{row}"
+            );
         }
     }
 
