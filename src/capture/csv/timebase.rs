@@ -40,7 +40,7 @@ pub(super) fn window_times(
     // cell up to where its number ends; any other row takes the general way below, which
     // gives the same for these.
     let bare = match delim {
-        Delim::Byte(d) if !b"0123456789+-.eE\r\n".contains(&d) && !(comma && d == b',') => Some(d),
+        Delim::Byte(d) if !(b"0123456789+-.eE\r\n".contains(&d) || comma && d == b',') => Some(d),
         _ => None,
     };
     for l in lines {
