@@ -72,6 +72,7 @@ where
     let mut r = vec![0.0; m];
     let mut jac = vec![0.0; m * n];
     let mut r_try = vec![0.0; m];
+    let mut jac_try = vec![0.0; m * n];
     let mut p_try = vec![0.0; n];
     if !eval(&p, &mut r, Some(&mut jac)) || !all_finite(&r) || !all_finite(&jac) {
         return Err(LmError::BadStart);
@@ -105,20 +106,23 @@ where
         for j in 0..n {
             p_try[j] = p[j] + step[j];
         }
+        // The Jacobian comes with every trial: most steps are taken, and evaluating an
+        // accepted point a second time for it cost more than the few rejected ones do.
         n_evals += 1;
-        let ok = eval(&p_try, &mut r_try, None) && all_finite(&r_try);
+        let ok = eval(&p_try, &mut r_try, Some(&mut jac_try)) && all_finite(&r_try);
         let cost_try = if ok { sum_sq(&r_try) } else { f64::INFINITY };
         if cost_try < cost {
             let small_step =
                 (0..n).all(|j| step[j].abs() <= opts.xtol * (p_try[j].abs() + opts.xtol));
             let small_gain = cost - cost_try <= opts.ftol * cost;
-            // The Jacobian is evaluated at the accepted point for the next step and for the
-            // covariance; a point that is finite for r but not for J ends the fit there.
-            n_evals += 1;
-            if !eval(&p_try, &mut r, Some(&mut jac)) || !all_finite(&jac) || !all_finite(&r) {
+            // The Jacobian at the accepted point serves the next step and the covariance; a
+            // point that is finite for r but not for J ends the fit there.
+            if !all_finite(&jac_try) {
                 // Keep the previous, fully evaluated point.
                 break;
             }
+            std::mem::swap(&mut r, &mut r_try);
+            std::mem::swap(&mut jac, &mut jac_try);
             p.copy_from_slice(&p_try);
             cost = sum_sq(&r);
             normal_equations(&jac, &r, m, n, &mut jtj, &mut jtr);
