@@ -108,40 +108,9 @@ pub fn run(args: ParasiticsArgs) -> Result<ExitCode> {
     Ok(ExitCode::SUCCESS)
 }
 
-/// Engineering notation with an SI prefix: `100.0 p`, `10.00 m`.
+/// Engineering notation with an SI prefix and four significant figures: `100.0 pF`.
 fn eng(x: f64, unit: &str) -> String {
-    if !x.is_finite() {
-        return format!("- {unit}");
-    }
-    if x == 0.0 {
-        return format!("0 {unit}");
-    }
-    let prefixes = [
-        (1e12, "T"),
-        (1e9, "G"),
-        (1e6, "M"),
-        (1e3, "k"),
-        (1.0, ""),
-        (1e-3, "m"),
-        (1e-6, "u"),
-        (1e-9, "n"),
-        (1e-12, "p"),
-        (1e-15, "f"),
-    ];
-    let (f, p) = prefixes
-        .iter()
-        .find(|(f, _)| x.abs() >= *f * 0.9995)
-        .copied()
-        .unwrap_or((1e-15, "f"));
-    let m = x / f;
-    let digits = if m.abs() >= 100.0 {
-        1
-    } else if m.abs() >= 10.0 {
-        2
-    } else {
-        3
-    };
-    format!("{m:.digits$} {p}{unit}")
+    kickscan::units::eng_sig(x, unit, 4)
 }
 
 fn pm(std: Option<f64>, unit: &str) -> String {
