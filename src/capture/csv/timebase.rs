@@ -271,7 +271,16 @@ impl TimeCheck {
         let even = times
             .windows(2)
             .all(|w| (w[1].0 - w[0].0 - med).abs() <= JITTER_FRACTION * med + q(&w[0]) + q(&w[1]));
-        let dt = if even { mean_step } else { med } * factor;
+        // The mean can be zero or less where the median is not: a column printed so coarsely
+        // that it comes back to its first value within the window (fuzzing found one).
+        let dt = if even && mean_step > 0.0 {
+            mean_step
+        } else {
+            med
+        } * factor;
+        if !(dt.is_finite() && dt > 0.0) {
+            return None;
+        }
         Some(TimeCheck {
             factor,
             dt_s: dt,
@@ -360,6 +369,22 @@ mod tests {
         let c = TimeCheck::from_first_rows(&t, 1.0).unwrap();
         assert_eq!(c.dt_s, 1.0);
         assert_eq!(c.dt_from, "median step");
+    }
+
+    /// A column printed more coarsely than it steps that comes back to its first value
+    /// (0,0 0,0025 0,0 0,0025 0,0: a fuzzed file) has a mean step of zero; the interval is
+    /// the median step, never zero.
+    #[test]
+    fn a_column_back_at_its_first_value_still_has_a_positive_interval() {
+        let t = [
+            (0.0, 0.1, 1),
+            (0.0025, 1e-4, 4),
+            (0.0, 0.1, 1),
+            (0.0025, 1e-4, 4),
+            (0.0, 0.1, 1),
+        ];
+        let c = TimeCheck::from_first_rows(&t, 1.0).unwrap();
+        assert_eq!(c.dt_s, 0.0025);
     }
 
     #[test]
