@@ -110,38 +110,47 @@ fn ctrl_c_stops_the_batch_and_keeps_the_old_report() {
     std::fs::create_dir(&inputs).unwrap();
     let out = earlier_report(root.path());
 
-    // Enough files that the batch is still running when the signal comes; more on a retry
-    // if a fast machine finished first.
     let mut n_files = 0;
+    let (stdout, stderr) = interrupted_while_busy(
+        |target| {
+            while n_files < target {
+                std::fs::copy(sample_shot(), inputs.join(format!("shot-{n_files:04}.csv")))
+                    .unwrap();
+                n_files += 1;
+            }
+        },
+        || start_measure(&inputs, &out),
+    );
+    let (measured, total) = interrupted_counts(&stderr);
+    assert_eq!(total, n_files, "{stderr}");
+    assert!(measured < n_files, "{stderr}");
+    assert!(stdout.is_empty(), "no half document on stdout");
+    assert_old_report_kept(root.path(), &out);
+}
+
+/// Runs a batch grown by `grow(n)` to 120 files, then 240 and 480 on retries, with Ctrl-C
+/// sent a moment after `start`, until a run is ended by it (exit 130): that run's standard
+/// output and error. A retry comes when the run finished before the signal (a fast
+/// machine) or the signal came before the handler was installed (a slow start on a loaded
+/// machine: the default action ended it, no exit code); it then waits longer too.
+fn interrupted_while_busy(
+    mut grow: impl FnMut(usize),
+    start: impl Fn() -> std::process::Child,
+) -> (Vec<u8>, String) {
     for attempt in 0..3 {
-        let target = 120 << attempt;
-        while n_files < target {
-            std::fs::copy(sample_shot(), inputs.join(format!("shot-{n_files:04}.csv"))).unwrap();
-            n_files += 1;
-        }
-        let child = start_measure(&inputs, &out);
+        grow(120 << attempt);
+        let child = start();
         // Past process start-up, so the handler is installed when the signal arrives.
         std::thread::sleep(Duration::from_millis(800 + 400 * attempt));
         ctrl_c(&child);
         let (code, stdout, stderr) = finish(child, Duration::from_secs(60));
         match code {
-            Some(130) => {
-                let (measured, total) = interrupted_counts(&stderr);
-                assert_eq!(total, n_files, "{stderr}");
-                assert!(measured < n_files, "{stderr}");
-                assert!(stdout.is_empty(), "no half document on stdout");
-                assert_old_report_kept(root.path(), &out);
-                return;
-            }
-            // Finished before the signal came: try again with more files.
-            Some(0) => continue,
-            // The signal came before the handler was installed (a slow start on a loaded
-            // machine): the default action ended it. Try again, waiting longer.
-            None => continue,
+            Some(130) => return (stdout, stderr),
+            Some(0) | None => continue,
             other => panic!("exit {other:?}; stderr: {stderr}"),
         }
     }
-    panic!("the batch always finished before Ctrl-C arrived, or it arrived before start-up");
+    panic!("the run always finished before Ctrl-C arrived, or it arrived before start-up");
 }
 
 /// Copies `from` (a folder of files and folders) into `to`.
@@ -187,37 +196,23 @@ fn ctrl_c_stops_the_demo_and_keeps_the_old_report() {
     let out = earlier_report(root.path());
 
     let mut n_copies = 0;
-    for attempt in 0..3 {
-        let target = 120 << attempt;
-        while n_copies < target {
-            std::fs::copy(
-                sample_shot(),
-                captures.join(format!("zener/copy-{n_copies:04}.csv")),
-            )
-            .unwrap();
-            n_copies += 1;
-        }
-        let child = start_demo(&captures, &out);
-        std::thread::sleep(Duration::from_millis(800 + 400 * attempt));
-        ctrl_c(&child);
-        let (code, stdout, stderr) = finish(child, Duration::from_secs(60));
-        match code {
-            Some(130) => {
-                let (measured, total) = interrupted_counts(&stderr);
-                // The scenario's captures (`ls sample-captures/*/` without the .json
-                // sidecars: 18 in the variant and current folders, the bare/loaded pair)
-                // and the copies.
-                assert_eq!(total, 20 + n_copies, "{stderr}");
-                assert!(measured < total, "{stderr}");
-                assert!(stdout.is_empty(), "no results on stdout: {stderr}");
-                assert_old_report_kept(root.path(), &out);
-                return;
+    let (stdout, stderr) = interrupted_while_busy(
+        |target| {
+            while n_copies < target {
+                let copy = captures.join(format!("zener/copy-{n_copies:04}.csv"));
+                std::fs::copy(sample_shot(), copy).unwrap();
+                n_copies += 1;
             }
-            Some(0) | None => continue,
-            other => panic!("exit {other:?}; stderr: {stderr}"),
-        }
-    }
-    panic!("the demo always finished before Ctrl-C arrived, or it arrived before start-up");
+        },
+        || start_demo(&captures, &out),
+    );
+    let (measured, total) = interrupted_counts(&stderr);
+    // The scenario's captures (`ls sample-captures/*/` without the .json sidecars: 18 in
+    // the variant and current folders, the bare/loaded pair) and the copies.
+    assert_eq!(total, 20 + n_copies, "{stderr}");
+    assert!(measured < total, "{stderr}");
+    assert!(stdout.is_empty(), "no results on stdout: {stderr}");
+    assert_old_report_kept(root.path(), &out);
 }
 
 /// Writes a mono 16-bit WAV of `n` samples at 1 MSa/s whose sample `k` is `volts(k)`
