@@ -22,6 +22,18 @@ impl Delim {
     }
 }
 
+/// The delimiter byte and the decimal mark to read numbers with when rows split at `delim`
+/// read the same as numbers read straight from the text, one after another (the delimiter
+/// cannot be part of a number; a comma that delimits is no decimal mark).
+pub(crate) fn bare_delimiter(delim: Delim, decimal_comma: bool) -> Option<(u8, bool)> {
+    match delim {
+        Delim::Byte(d) if !b"0123456789+-.eE\r\n".contains(&d) => {
+            Some((d, decimal_comma && d != b','))
+        }
+        _ => None,
+    }
+}
+
 /// Iterator over the cells of one row.
 pub(crate) struct Cells<'a> {
     rest: &'a [u8],

@@ -69,13 +69,7 @@ fn numeric_cells(text: &str, delim: Delim, comma: bool) -> Option<usize> {
 
 /// Whether the line above the first row of `n` numbers has `n` cells and no number.
 fn header_agrees(lines: &[SniffLine], delim: Delim, comma: bool, n: usize) -> bool {
-    let numeric = |l: &SniffLine| {
-        let cells = row_cells(&l.text, delim);
-        cells.len() == n
-            && cells
-                .iter()
-                .all(|c| parse_number(trim_cell(c), comma).is_ok())
-    };
+    let numeric = |l: &SniffLine| numeric_cells(&l.text, delim, comma) == Some(n);
     let Some(first) = lines.iter().position(numeric) else {
         return false;
     };

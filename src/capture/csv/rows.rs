@@ -11,7 +11,9 @@ use std::path::PathBuf;
 
 use super::timebase::{check_time, TimeCheck, JITTER_FRACTION};
 use super::{cell_message, csv_err, Role};
-use crate::capture::cells::{parse_number, parse_time_cell, pow10, trim_cell, Cells, Delim};
+use crate::capture::cells::{
+    bare_delimiter, parse_number, parse_time_cell, pow10, trim_cell, Cells, Delim,
+};
 use crate::capture::decimal::read_prefix;
 use crate::capture::lines::{Chunk, ChunkEnd, ChunkReader, MAX_LINE_BYTES};
 use crate::capture::CaptureError;
@@ -398,16 +400,10 @@ impl RowFormat {
         }
     }
 
-    /// The delimiter byte and decimal comma for [`RowFormat::fast_row`], when rows split
-    /// at it read the same as numbers read straight from the text (the delimiter cannot
-    /// be part of a number).
+    /// The delimiter byte and decimal comma for [`RowFormat::fast_row`] (see
+    /// [`bare_delimiter`]).
     fn fast_delimiter(&self) -> Option<(u8, bool)> {
-        match self.delim {
-            Delim::Byte(d) if !b"0123456789+-.eE\r\n".contains(&d) => {
-                Some((d, self.decimal_comma && d != b','))
-            }
-            _ => None,
-        }
+        bare_delimiter(self.delim, self.decimal_comma)
     }
 
     /// The factor of the one value column when rows are exactly a time and one value (the

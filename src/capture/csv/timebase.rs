@@ -5,7 +5,9 @@ use std::path::Path;
 
 use super::text::SniffLine;
 use super::{csv_err, row_cell_iter};
-use crate::capture::cells::{last_digit_place, parse_number, pow10, trim_cell, Delim};
+use crate::capture::cells::{
+    bare_delimiter, last_digit_place, parse_number, pow10, trim_cell, Delim,
+};
 use crate::capture::decimal::{read_fast, read_prefix};
 use crate::capture::CaptureError;
 
@@ -39,13 +41,10 @@ pub(super) fn window_times(
     // Rows of bare numbers split by one byte (nearly all) are read straight through, each
     // cell up to where its number ends; any other row takes the general way below, which
     // gives the same for these.
-    let bare = match delim {
-        Delim::Byte(d) if !(b"0123456789+-.eE\r\n".contains(&d) || comma && d == b',') => Some(d),
-        _ => None,
-    };
+    let bare = bare_delimiter(delim, comma);
     for l in lines {
         if let Some(t) =
-            bare.and_then(|d| bare_time_cell(l.text.as_bytes(), d, n_fields, col, comma))
+            bare.and_then(|(d, comma)| bare_time_cell(l.text.as_bytes(), d, n_fields, col, comma))
         {
             out.push(t);
             continue;
