@@ -10,6 +10,7 @@ use crate::{events, levels};
 
 mod event;
 pub mod ring;
+mod series;
 pub mod states;
 pub mod stream;
 

@@ -5,6 +5,7 @@
 //! level sits at `-step`.
 
 use super::ring;
+use super::series::{self, RunningSums};
 use crate::levels::{crossing_index, median, overshoot_pct};
 use crate::measure::{CurrentThrough, Event, MeasureOptions, Polarity, RingKind};
 
@@ -120,14 +121,14 @@ pub fn measure_event(cx: &Context, w: &Window) -> (Event, LocalLevels) {
     }
     let ae = ae.max(e + 2).min(n);
 
+    // The window from the edge on, in the spike's direction above the off level.
+    let ys: Vec<f64> = (e..ae).map(|k| cx.y(k)).collect();
     // Peak: the extreme sample in the spike's direction.
     // The first of equal extremes (a clipped run starts there).
-    let p = (e + 1..ae)
-        .fold(None::<usize>, |best, k| match best {
-            Some(b) if cx.y(b) >= cx.y(k) => Some(b),
-            _ => Some(k),
-        })
-        .unwrap_or(e + 1)
+    let p = ys
+        .get(1..)
+        .and_then(series::first_max_index)
+        .map_or(e + 1, |j| e + 1 + j)
         .min(n - 1);
     let peak_v = v[p];
     let rail_v = match cx.polarity {
@@ -156,19 +157,30 @@ pub fn measure_event(cx: &Context, w: &Window) -> (Event, LocalLevels) {
     // centred moving average, unbiased on straight stretches), so a noise sample on a clamp
     // plateau is not taken for its top; times are then refined on the raw samples.
     let smooth_w = if cx.noisy() { 16 } else { 1 };
-    let ys: Vec<f64> = (e..ae).map(|k| cx.y(k)).collect();
-    let sm = moving_average(&ys, smooth_w);
-    let ps = sm
-        .iter()
-        .enumerate()
-        .fold(None::<(usize, f64)>, |best, (j, &y)| match best {
-            Some((b, yb)) if yb >= y => Some((b, yb)),
-            _ => Some((j, y)),
-        })
-        .map_or(0, |(j, _)| j);
-    let y_top = sm.get(ps).copied().unwrap_or(y_peak);
+    // One set of running sums serves every smoothing width asked for below.
+    let sums_once = std::cell::OnceCell::new();
+    let sums = || sums_once.get_or_init(|| RunningSums::of(&ys));
+    // The smoothed copy is read where needed, never held whole (a long window's copy
+    // would add to the memory peak).
+    let sm = |j: usize| {
+        if smooth_w > 1 {
+            sums().average(j, smooth_w)
+        } else {
+            ys[j]
+        }
+    };
+    let ps = if smooth_w > 1 {
+        sums().first_max_index(smooth_w)
+    } else {
+        series::first_max_index(&ys)
+    }
+    .unwrap_or(0);
+    let y_top = if ps < ys.len() { sm(ps) } else { y_peak };
     let cross_sm = |j: usize, level: f64| -> Option<f64> {
-        let (a, b) = (*sm.get(j)?, *sm.get(j + 1)?);
+        if j + 1 >= ys.len() {
+            return None;
+        }
+        let (a, b) = (sm(j), sm(j + 1));
         (a != b).then(|| j as f64 + (level - a) / (b - a))
     };
 
@@ -177,10 +189,10 @@ pub fn measure_event(cx: &Context, w: &Window) -> (Event, LocalLevels) {
     let spike_width_s = if y_top > cx.noise_band() {
         let left = (0..ps)
             .rev()
-            .find(|&j| sm[j] < half)
+            .find(|&j| sm(j) < half)
             .and_then(|j| cross_sm(j, half));
-        let right = (ps..sm.len().saturating_sub(1))
-            .find(|&j| sm[j + 1] < half)
+        let right = (ps..ys.len().saturating_sub(1))
+            .find(|&j| sm(j + 1) < half)
             .and_then(|j| cross_sm(j, half));
         match (left, right) {
             (Some(a), Some(b)) if b > a => Some((b - a) * cx.dt_s),
@@ -192,11 +204,12 @@ pub fn measure_event(cx: &Context, w: &Window) -> (Event, LocalLevels) {
 
     // Decay: end of the clamp plateau, or of the first lobe.
     let band_n = cx.noise_band();
-    let lobe_start = sm.iter().position(|&y| y > band_n).unwrap_or(0).min(ps);
-    let first_dip = (ps..sm.len())
-        .find(|&j| sm[j] <= band_n)
-        .unwrap_or(sm.len().saturating_sub(1));
-    let lobe_end = plateau_through_dips(&ys, lobe_start, first_dip, band_n).unwrap_or(first_dip);
+    let lobe_start = (0..ys.len()).find(|&j| sm(j) > band_n).unwrap_or(0).min(ps);
+    let first_dip = (ps..ys.len())
+        .find(|&j| sm(j) <= band_n)
+        .unwrap_or(ys.len().saturating_sub(1));
+    let lobe_end =
+        plateau_through_dips(&ys, &sums, lobe_start, first_dip, band_n).unwrap_or(first_dip);
     let mut plateau_v: Option<f64> = None;
     let decay_end_x = (|| {
         let lobe = ys.get(lobe_start..lobe_end)?;
@@ -293,18 +306,27 @@ pub fn measure_event(cx: &Context, w: &Window) -> (Event, LocalLevels) {
     } else {
         1
     };
-    let tail = &ys;
-    let tail_smooth = if settle_w == smooth_w {
-        sm
-    } else {
-        moving_average(tail, settle_w)
+    let smoothed_at = |k: usize| {
+        if settle_w > 1 {
+            sums().average(k, settle_w)
+        } else {
+            ys[k]
+        }
     };
-    let last_out = tail_smooth.iter().rposition(|y| y.abs() > band);
+    let last_out = if settle_w > 1 {
+        sums().last_beyond(settle_w, band)
+    } else {
+        series::last_beyond(&ys, band)
+    };
     let needed_in_band = settle_w.max(8);
     let (settle_time_s, settle_idx) = match last_out {
-        Some(k) if tail.len() - 1 - k >= needed_in_band => {
-            let a = tail_smooth[k].abs();
-            let b = tail_smooth.get(k + 1).map_or(a, |y| y.abs());
+        Some(k) if ys.len() - 1 - k >= needed_in_band => {
+            let a = smoothed_at(k).abs();
+            let b = if k + 1 < ys.len() {
+                smoothed_at(k + 1).abs()
+            } else {
+                a
+            };
             let f = if a > b { (a - band) / (a - b) } else { 0.0 };
             let x = (e + k) as f64 + f.clamp(0.0, 1.0);
             (Some(t_of(x) - t_edge_s), Some(e + k + 1))
@@ -419,7 +441,13 @@ pub fn measure_event(cx: &Context, w: &Window) -> (Event, LocalLevels) {
 /// ring spends half its time below), the lobe instead ends where a moving average four first
 /// lobes long falls to half that median, plus half the averaging length (the caller then
 /// finds the release on the raw samples).
-fn plateau_through_dips(ys: &[f64], start: usize, first_dip: usize, band: f64) -> Option<usize> {
+fn plateau_through_dips<'a>(
+    ys: &[f64],
+    sums: &dyn Fn() -> &'a RunningSums,
+    start: usize,
+    first_dip: usize,
+    band: f64,
+) -> Option<usize> {
     let lobe = first_dip.checked_sub(start)?.max(4);
     let span = ys.get(start..(start + 64 * lobe).min(ys.len()))?;
     if span.len() < 8 * lobe {
@@ -431,9 +459,9 @@ fn plateau_through_dips(ys: &[f64], start: usize, first_dip: usize, band: f64) -
         return None;
     }
     let w = 4 * lobe;
-    let smooth = moving_average(ys, w);
+    let sums = sums();
     let end = (start + w..ys.len())
-        .find(|&j| smooth[j] <= m / 2.0)
+        .find(|&j| sums.average(j, w) <= m / 2.0)
         .unwrap_or(ys.len() - 1);
     Some((end + w / 2).min(ys.len() - 1))
 }
@@ -447,62 +475,6 @@ fn hz(f: f64) -> String {
     } else {
         format!("{f:.2} Hz")
     }
-}
-
-/// Centred moving average over `w` samples (shorter at the ends); `w <= 1` copies.
-fn moving_average(y: &[f64], w: usize) -> Vec<f64> {
-    if w <= 1 {
-        return y.to_vec();
-    }
-    let n = y.len();
-    let h = w / 2;
-    // Prefix sums P[j] = y[0] + ... + y[j-1], added up in order once; the average at k is
-    // (P[b] - P[a]) / (b - a) over a = k - w/2 .. b = k + w - w/2, cut to the record. Only
-    // the sums a block of averages needs are held (a long window's full prefix array
-    // would be one more copy of it at the memory peak); the values are the same.
-    const BLOCK: usize = 4096;
-    let mut out = Vec::with_capacity(n);
-    // P[base..base + p.len()].
-    let (mut base, mut p) = (0usize, Vec::with_capacity(BLOCK + w + 1));
-    p.push(0.0);
-    let mut sum = 0.0;
-    let mut next = 0usize;
-    let width = w as f64;
-    let mut k0 = 0;
-    while k0 < n {
-        let k1 = (k0 + BLOCK).min(n);
-        let lo = k0.saturating_sub(h);
-        let drop = lo - base;
-        p.drain(..drop);
-        base = lo;
-        let hi = (k1 - 1 + w - h).min(n);
-        while next < hi {
-            sum += y[next];
-            next += 1;
-            p.push(sum);
-        }
-        if k0 >= h && k1 - 1 + w - h <= n {
-            // Away from the ends every average spans exactly `w` samples: one subtraction
-            // and one division per sample over two shifted views of the sums, which the
-            // compiler vectorises (the same operations as at the ends, so the same values).
-            let (a0, b0) = (k0 - h - base, k0 + w - h - base);
-            let m = k1 - k0;
-            out.extend(
-                p[b0..b0 + m]
-                    .iter()
-                    .zip(&p[a0..a0 + m])
-                    .map(|(b, a)| (b - a) / width),
-            );
-        } else {
-            for k in k0..k1 {
-                let a = k.saturating_sub(h);
-                let b = (k + w - h).min(n);
-                out.push((p[b - base] - p[a - base]) / (b - a) as f64);
-            }
-        }
-        k0 = k1;
-    }
-    out
 }
 
 /// Node capacitance from the charge the coil pushed into the node on the part of the rise
@@ -600,44 +572,4 @@ fn is_clipped(cx: &Context, p: usize, ae: usize) -> bool {
     let entry = p.checked_sub(1).map_or(0.0, |k| s * (v[p] - v[k]));
     let exit = v.get(p + run).map_or(0.0, |&x| s * (v[p + run - 1] - x));
     entry > jump && exit > jump
-}
-
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    #[test]
-    fn moving_average_matches_the_direct_sums_at_every_length() {
-        // Each average straight from its definition (the mean of y[k - w/2 .. k + w - w/2]
-        // cut to the record), from the same prefix sums, so the values agree exactly.
-        let y: Vec<f64> = (0..9000)
-            .map(|k| ((k * 37) % 11) as f64 - 4.5 + 1e-3 * k as f64)
-            .collect();
-        // Short records, and long ones across the blocks the sums are held in.
-        for n in [0, 1, 3, 15, 16, 17, 40, 4095, 4096, 4097, 4104, 9000] {
-            for w in [2, 3, 4, 16] {
-                let y = &y[..n];
-                let mut prefix = vec![0.0];
-                for &x in y {
-                    prefix.push(prefix.last().unwrap() + x);
-                }
-                let want: Vec<f64> = (0..n)
-                    .map(|k| {
-                        let (a, b) = (k.saturating_sub(w / 2), (k + w - w / 2).min(n));
-                        (prefix[b] - prefix[a]) / (b - a) as f64
-                    })
-                    .collect();
-                assert_eq!(moving_average(y, w), want, "n {n}, w {w}");
-            }
-        }
-    }
-
-    #[test]
-    fn moving_average_keeps_a_constant_and_a_ramp() {
-        let c = moving_average(&[2.0; 10], 4);
-        assert!(c.iter().all(|&x| (x - 2.0).abs() < 1e-12));
-        let r: Vec<f64> = (0..10).map(|k| k as f64).collect();
-        let m = moving_average(&r, 3);
-        assert!((m[5] - 5.0).abs() < 1e-12);
-    }
 }
