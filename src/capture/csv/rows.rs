@@ -362,13 +362,17 @@ impl RowFormat {
         let fast = self.fast_delimiter();
         let pair = self.time_and_one_value();
         let mut pos = 0;
-        while let Some(rest) = text.get(pos..).filter(|r| !r.is_empty()) {
-            if let Some((d, comma)) = fast {
-                let row = match (pair, p.channels.first_mut()) {
-                    (Some(f), Some(values)) => fast_pair(rest, d, comma, want_place, f, values),
-                    _ => self.fast_row(rest, d, comma, want_place, &mut p.channels),
-                };
-                if let Some((len, t)) = row {
+        loop {
+            if let (Some((d, comma)), Some(f)) = (fast, pair) {
+                if !self.pair_run(text, &mut pos, (d, comma), want_place, f, p) {
+                    return;
+                }
+            }
+            let Some(rest) = text.get(pos..).filter(|r| !r.is_empty()) else {
+                break;
+            };
+            if let (Some((d, comma)), None) = (fast, pair) {
+                if let Some((len, t)) = self.fast_row(rest, d, comma, want_place, &mut p.channels) {
                     pos += len;
                     let here = p.n_lines;
                     p.n_lines += 1;
@@ -397,6 +401,58 @@ impl RowFormat {
             if !self.take_line(line, want_place, p) {
                 return;
             }
+        }
+    }
+
+    /// Reads rows of a time and one value with [`fast_pair`] from `pos` for as long as they
+    /// come, its state in locals (the piece's fields, behind a reference, would be read
+    /// back from memory after every push); `pos` ends at the first row it cannot read.
+    /// `false` at a problem, kept in `p`.
+    fn pair_run(
+        &self,
+        text: &[u8],
+        pos: &mut usize,
+        (d, comma): (u8, bool),
+        want_place: bool,
+        factor: f64,
+        p: &mut Piece,
+    ) -> bool {
+        let Some(values) = p.channels.first_mut() else {
+            return true;
+        };
+        let mut values = std::mem::take(values);
+        let mut time = p.time.take();
+        let (mut n_lines, mut n_rows, mut first_time) = (p.n_lines, p.n_rows, p.first_time);
+        let mut at = *pos;
+        let mut problem = None;
+        while let Some(rest) = text.get(at..).filter(|r| !r.is_empty()) {
+            let Some((len, t)) = fast_pair(rest, d, comma, want_place, factor, &mut values) else {
+                break;
+            };
+            at += len;
+            let here = n_lines;
+            n_lines += 1;
+            if let (Some(tc), Some((t, q))) = (time.as_mut(), t) {
+                if first_time.is_none() {
+                    first_time = Some((t, q, here));
+                }
+                if let Err(e) = check_time(&self.file, tc, t, q, here) {
+                    problem = Some(e);
+                    break;
+                }
+            }
+            n_rows += 1;
+        }
+        p.channels[0] = values;
+        p.time = time;
+        (p.n_lines, p.n_rows, p.first_time) = (n_lines, n_rows, first_time);
+        *pos = at;
+        match problem {
+            Some(e) => {
+                p.fail(e);
+                false
+            }
+            None => true,
         }
     }
 
