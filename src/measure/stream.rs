@@ -469,12 +469,67 @@ impl Stretch {
         }
     }
 
-    /// Appends `other`'s samples `[from, to)` (cut to what it holds).
-    fn extend_from(&mut self, other: &Stretch, from: usize, to: usize) {
+    /// Appends the history's samples `[from, to)` (cut to what it holds).
+    fn extend_from(&mut self, other: &History, from: usize, to: usize) {
         let a = from.saturating_sub(other.first).min(other.v.len());
         let b = to.saturating_sub(other.first).clamp(a, other.v.len());
-        let i = other.i.as_ref().and_then(|i| i.get(a..b));
-        self.push(&other.v[a..b], i);
+        // The ring buffer holds the range in at most two pieces.
+        fn split<'a>((one, two): (&'a [f64], &'a [f64]), a: usize, b: usize) -> [&'a [f64]; 2] {
+            let cut = one.len();
+            [
+                &one[a.min(cut)..b.min(cut)],
+                &two[a.max(cut) - cut..b.max(cut) - cut],
+            ]
+        }
+        let [va, vb] = split(other.v.as_slices(), a, b);
+        let (ia, ib) = match other.i.as_ref().filter(|i| i.len() == other.v.len()) {
+            Some(i) => {
+                let [ia, ib] = split(i.as_slices(), a, b);
+                (Some(ia), Some(ib))
+            }
+            None => (None, None),
+        };
+        self.push(va, ia);
+        if !vb.is_empty() {
+            self.push(vb, ib);
+        }
+    }
+}
+
+/// The last samples of the record, kept for the stretch before the next edge: a ring
+/// buffer, so dropping the oldest moves nothing (a plain vector moved the kept samples to
+/// its front at every trim, half as much copying again as taking the blocks in).
+#[derive(Debug, Default)]
+struct History {
+    first: usize,
+    v: std::collections::VecDeque<f64>,
+    i: Option<std::collections::VecDeque<f64>>,
+}
+
+impl History {
+    fn end(&self) -> usize {
+        self.first + self.v.len()
+    }
+
+    /// As [`Stretch::push`]: the current is kept while every block brings one.
+    fn push(&mut self, v: &[f64], i: Option<&[f64]>) {
+        let fresh = self.v.is_empty();
+        self.v.extend(v);
+        match (self.i.as_mut(), i) {
+            (Some(all), Some(i)) => all.extend(i),
+            (None, Some(i)) if fresh => self.i = Some(i.iter().copied().collect()),
+            _ => self.i = None,
+        }
+    }
+
+    /// Keeps only the samples from absolute index `from` on.
+    fn drop_before(&mut self, from: usize) {
+        let k = from.saturating_sub(self.first).min(self.v.len());
+        self.v.drain(..k);
+        if let Some(i) = self.i.as_mut() {
+            i.drain(..k.min(i.len()));
+        }
+        self.first += k;
     }
 }
 
@@ -569,7 +624,7 @@ impl Scan<'_> {
     ) -> Result<ScanOut, MeasureError> {
         let mut det = events::EdgeDetector::new(self.params);
         let mut marks = Vec::new();
-        let mut recent = Stretch::default();
+        let mut recent = History::default();
         let mut open: Option<OpenWindow> = None;
         let mut last_on: Option<usize> = None;
         let mut memory_cuts = 0usize;
