@@ -923,6 +923,41 @@ mod tests {
     /// The mask count against the plain per-sample count it replaced (run = (run + 1) when
     /// near, else 0; best = the longest), over stretches near, away and alternating, NaN
     /// included, fed in blocks of awkward sizes.
+    /// Ranges copied out of the ring buffer are the samples at those absolute indices,
+    /// current included, also when the buffer has wrapped round.
+    #[test]
+    fn the_history_hands_out_the_samples_it_holds() {
+        let mut h = History::default();
+        let (mut next, mut wrapped) = (0usize, false);
+        for block in [7usize, 13, 5, 20, 9, 31, 4, 17, 11, 23, 6] {
+            let v: Vec<f64> = (next..next + block).map(|k| k as f64).collect();
+            let i: Vec<f64> = v.iter().map(|x| -x).collect();
+            h.push(&v, Some(&i));
+            next += block;
+            // Trimmed so that the ring's start moves on and later blocks wrap round.
+            h.drop_before(next.saturating_sub(25));
+            wrapped |= !h.v.as_slices().1.is_empty();
+            for (from, to) in [(h.first, next), (h.first + 3, next - 2), (0, next + 5)] {
+                let mut w = Stretch {
+                    first: from.max(h.first),
+                    ..Stretch::default()
+                };
+                w.extend_from(&h, from, to);
+                let want: Vec<f64> = (from.max(h.first)..to.min(next))
+                    .map(|k| k as f64)
+                    .collect();
+                assert_eq!(w.v, want, "{from}..{to}");
+                let neg: Vec<f64> = want.iter().map(|x| -x).collect();
+                assert_eq!(w.i.as_deref().unwrap_or(&[]), neg.as_slice());
+            }
+        }
+        assert_eq!(h.end(), next);
+        assert!(
+            wrapped,
+            "the ring buffer never wrapped: the test saw one piece only"
+        );
+    }
+
     #[test]
     fn runs_near_a_level_counted_on_masks_match_a_plain_count() {
         let mut v: Vec<f64> = Vec::new();
