@@ -45,8 +45,7 @@ pub fn run(cli: Cli) -> Result<ExitCode> {
             let doc = pipeline::inspect_inputs(&inputs, &read);
             let mut out = std::io::stdout().lock();
             if json {
-                serde_json::to_writer_pretty(&mut out, &doc)?;
-                writeln!(out)?;
+                crate::cli::print_json(&mut out, &doc)?;
             } else {
                 out.write_all(kickscan::report::inspect_text(&doc).as_bytes())?;
             }
@@ -84,8 +83,7 @@ pub fn run(cli: Cli) -> Result<ExitCode> {
                 .unwrap_or_default();
             let mut stdout = std::io::stdout().lock();
             if json {
-                serde_json::to_writer_pretty(&mut stdout, &doc)?;
-                writeln!(stdout)?;
+                crate::cli::print_json(&mut stdout, &doc)?;
             } else {
                 stdout.write_all(kickscan::report::measure_text(&doc).as_bytes())?;
                 for line in &advice {
@@ -138,8 +136,7 @@ pub fn run(cli: Cli) -> Result<ExitCode> {
             }
             let mut stdout = std::io::stdout().lock();
             if json {
-                serde_json::to_writer_pretty(&mut stdout, &run.doc)?;
-                writeln!(stdout)?;
+                crate::cli::print_json(&mut stdout, &run.doc)?;
             } else {
                 stdout.write_all(kickscan::report::compare_text(&run.doc).as_bytes())?;
             }
@@ -224,8 +221,7 @@ fn measure_tables(
         if let Some(m) = value.as_object_mut() {
             m.insert("tables".into(), serde_json::to_value(&run.groups)?);
         }
-        serde_json::to_writer_pretty(&mut stdout, &value)?;
-        writeln!(stdout)?;
+        crate::cli::print_json(&mut stdout, &value)?;
     } else {
         stdout.write_all(kickscan::report::parquet::groups_text(&run.groups).as_bytes())?;
         writeln!(stdout)?;

@@ -14,6 +14,21 @@ use kickscan::units::parse_si;
 pub mod parasitics;
 pub mod simulate;
 
+/// Writes `value` as indented JSON and a newline through one buffer: standard output
+/// flushes at every line end, which made a large document one write per line (a folder
+/// of a thousand captures spent a tenth of its run there).
+pub fn print_json<T: serde::Serialize + ?Sized>(
+    out: &mut impl std::io::Write,
+    value: &T,
+) -> anyhow::Result<()> {
+    use std::io::Write;
+    let mut buf = std::io::BufWriter::with_capacity(1 << 16, out);
+    serde_json::to_writer_pretty(&mut buf, value)?;
+    writeln!(buf)?;
+    buf.flush()?;
+    Ok(())
+}
+
 #[derive(Parser, Debug)]
 #[command(
     name = "kickscan",

@@ -100,8 +100,7 @@ pub fn run(args: ParasiticsArgs) -> Result<ExitCode> {
     let mut out = std::io::stdout().lock();
     use std::io::Write;
     if args.json {
-        serde_json::to_writer_pretty(&mut out, &doc)?;
-        writeln!(out)?;
+        super::print_json(&mut out, &doc)?;
     } else {
         out.write_all(text(&doc).as_bytes())?;
     }
