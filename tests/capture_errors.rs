@@ -62,6 +62,45 @@ fn text_cell_in_a_number_column() {
     );
 }
 
+/// Free text after the last row (a note some loggers append) is skipped and named in a
+/// warning; text followed by more rows, too much of it, or a bad cell in a row of numbers
+/// at the end stays an error.
+#[test]
+fn text_after_the_last_row() {
+    let dir = tempfile::tempdir().unwrap();
+    let text = format!("{GOOD_ROWS}6.000e-9,1,2\n\nEnd of record\r\n# 7 rows\n");
+    let p = write(dir.path(), "footer.csv", text.as_bytes());
+    let cap = read_capture(&p, &ReadOptions::default()).expect("the rows before the text");
+    // Seven rows written above (GOOD_ROWS has six).
+    assert_eq!(cap.channels[0].samples.len(), 7);
+    assert!(
+        cap.warnings
+            .iter()
+            .any(|w| w
+                .contains("2 line(s) of text after the last row (from line 10: 'End of record')")),
+        "{:?}",
+        cap.warnings
+    );
+    let more_rows = format!("{GOOD_ROWS}note\n6.000e-9,1,2\n");
+    let p = write(dir.path(), "middle.csv", more_rows.as_bytes());
+    fails(
+        &p,
+        &ReadOptions::default(),
+        &["line 8, column 1", "'note' is not a number"],
+    );
+    let long: String = (0..33).map(|k| format!("note {k}\n")).collect();
+    let p = write(
+        dir.path(),
+        "long.csv",
+        format!("{GOOD_ROWS}{long}").as_bytes(),
+    );
+    fails(
+        &p,
+        &ReadOptions::default(),
+        &["line 8, column 1", "'note 0'"],
+    );
+}
+
 #[test]
 fn nan_and_infinite_cells() {
     let dir = tempfile::tempdir().unwrap();

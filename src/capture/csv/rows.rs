@@ -54,7 +54,14 @@ pub(crate) struct CsvStream {
     time: Option<TimeCheck>,
     /// Chunks below this many bytes are parsed in one piece.
     parallel_min_bytes: usize,
+    /// Free-text lines after the last row, skipped: first line number, count, and the
+    /// first of them.
+    trailing: Option<(usize, usize, String)>,
 }
+
+/// Most lines of free text after the last row that are skipped (with a warning) rather
+/// than refused: a note or two an instrument or logger appends, not a second table.
+const MAX_TRAILING_LINES: usize = 32;
 
 /// The rows of one piece of a chunk, parsed.
 #[derive(Default)]
@@ -106,6 +113,7 @@ impl CsvStream {
             line_no: first_line,
             time,
             parallel_min_bytes: PARALLEL_MIN_BYTES,
+            trailing: None,
         }
     }
 
@@ -180,8 +188,16 @@ impl CsvStream {
             Some(e) => self.ahead = Some((next, e)),
             None => drop(next),
         }
-        self.spare = buf;
+        let first_line = self.line_no;
         self.join_pieces();
+        if self.ends_in_text(&buf, first_line, &end) {
+            // Nothing follows the text: the rows before it are the whole capture.
+            self.pending = None;
+            self.spare = buf;
+            self.exhausted = true;
+            return;
+        }
+        self.spare = buf;
         match end {
             ChunkEnd::More => {}
             ChunkEnd::Last => self.exhausted = true,
@@ -195,6 +211,92 @@ impl CsvStream {
                 }
             }
         }
+    }
+
+    /// Whether the problem just found starts the free text some exports append after the
+    /// last row: from its line to the end of the file, at most [`MAX_TRAILING_LINES`]
+    /// lines, each blank or with a first cell that is no number (a bad cell in a row of
+    /// numbers stays an error). The chunks after this one are read to see; whatever the
+    /// answer, nothing more is parsed. Notes the lines for a warning.
+    fn ends_in_text(&mut self, chunk: &Chunk, first_line: usize, end: &ChunkEnd) -> bool {
+        let Some(CaptureError::Csv { line, .. }) = &self.pending else {
+            return false;
+        };
+        let line = *line;
+        // The problem's line within this chunk.
+        let mut text = chunk.bytes();
+        for _ in first_line..line {
+            match memchr::memchr(b'\n', text) {
+                Some(k) => text = &text[k + 1..],
+                None => return false,
+            }
+        }
+        let (mut count, mut first) = (0usize, None);
+        if !self.all_free_text(text, &mut count, &mut first) {
+            return false;
+        }
+        let mut last = matches!(end, ChunkEnd::Last);
+        let mut ahead = self.ahead.take();
+        while !last {
+            let (next, end) = ahead.take().unwrap_or_else(|| {
+                let mut c = Chunk::default();
+                let e = self.source.read_chunk(&mut c);
+                (c, e)
+            });
+            if matches!(end, ChunkEnd::Failed(_))
+                || !self.all_free_text(next.bytes(), &mut count, &mut first)
+            {
+                return false;
+            }
+            last = matches!(end, ChunkEnd::Last);
+        }
+        self.trailing = Some((line, count, first.unwrap_or_default()));
+        true
+    }
+
+    /// Whether every line of `text` is free text, counting them into `count` (false past
+    /// [`MAX_TRAILING_LINES`]) and keeping the first that is not blank.
+    fn all_free_text(&self, text: &[u8], count: &mut usize, first: &mut Option<String>) -> bool {
+        if text.is_empty() {
+            return true;
+        }
+        // A text ending in a line end would leave an empty piece after it: no line.
+        let body = text.strip_suffix(b"\n").unwrap_or(text);
+        for l in body.split(|&b| b == b'\n') {
+            let l = l.strip_suffix(b"\r").unwrap_or(l);
+            *count += 1;
+            if *count > MAX_TRAILING_LINES || !self.is_free_text(l) {
+                return false;
+            }
+            if first.is_none() && !l.trim_ascii().is_empty() {
+                *first = Some(String::from_utf8_lossy(l.trim_ascii()).into_owned());
+            }
+        }
+        true
+    }
+
+    /// A blank line, or a line of words: its first cell is no number and does not even
+    /// begin like one (a digit, a sign or a decimal mark), so a mangled number or a line
+    /// of digits too long to read is never taken for a note.
+    fn is_free_text(&self, line: &[u8]) -> bool {
+        let Ok(text) = std::str::from_utf8(line) else {
+            return false;
+        };
+        if text.trim().is_empty() {
+            return true;
+        }
+        if line.len() > MAX_LINE_BYTES {
+            return false;
+        }
+        let Some(first) = super::row_cell_iter(text, self.format.delim)
+            .next()
+            .map(trim_cell)
+        else {
+            return true;
+        };
+        let numberlike = |b: &u8| b.is_ascii_digit() || matches!(b, b'+' | b'-' | b'.' | b',');
+        !first.first().is_some_and(numberlike)
+            && parse_number(first, self.format.decimal_comma).is_err()
     }
 
     /// Puts the parsed pieces in file order: line numbers, the time check across each
@@ -237,6 +339,11 @@ impl CsvStream {
     /// Warnings known only once every row has been read.
     pub(crate) fn end_warnings(&self) -> Vec<String> {
         let mut w = Vec::new();
+        if let Some((line, n, first)) = &self.trailing {
+            w.push(format!(
+                "{n} line(s) of text after the last row (from line {line}: '{first}') were not read"
+            ));
+        }
         if let Some(tc) = &self.time {
             if tc.jittered > 0 {
                 w.push(format!(
@@ -723,7 +830,8 @@ mod tests {
             10 => format!("{t:.9e}"),
             11 => format!("{t:.9e},NaN"),
             12 => format!("{t},{v}"),
-            _ => format!("{:.9e},{v:.4}", t + 3e-6),
+            13 => format!("{:.9e},{v:.4}", t + 3e-6),
+            _ => "note".to_string(),
         }
     }
 
@@ -776,7 +884,7 @@ mod tests {
             kinds in proptest::collection::vec(
                 proptest::prop_oneof![
                     30 => proptest::strategy::Just(0u8),
-                    20 => 1u8..14,
+                    20 => 1u8..15,
                 ],
                 0..120,
             ),
@@ -807,6 +915,36 @@ mod tests {
                 let got = read_all(f.path(), chunk, pieces, per_block);
                 proptest::prop_assert_eq!(&got, &reference, "chunk {:?} pieces {}", chunk, pieces);
             }
+        }
+    }
+
+    /// Text after the last row is found the same however the file is cut into chunks
+    /// (the text may start in one chunk and run on through several).
+    #[test]
+    fn text_after_the_last_row_is_found_at_every_chunk_size() {
+        let mut text = String::from("t,v\n");
+        for k in 0..40 {
+            text.push_str(&line(0, k, k as f64));
+            text.push('\n');
+        }
+        text.push_str("\nlogger stopped\r\n\n# 40 rows\n  \nend");
+        let f = tempfile::Builder::new().suffix(".csv").tempfile().unwrap();
+        std::fs::write(f.path(), &text).unwrap();
+        for (chunk, pieces, per_block) in [
+            (None, false, 1 << 16),
+            (Some(1), true, 1),
+            (Some(13), true, 3),
+            (Some(64), false, 7),
+            (None, true, 2),
+        ] {
+            let (values, warnings) = read_all(f.path(), chunk, pieces, per_block).unwrap();
+            let want: Vec<u64> = (0..40).map(|k| (k as f64).to_bits()).collect();
+            assert_eq!(values[0], want, "chunk {chunk:?}");
+            assert_eq!(
+                warnings,
+                ["5 line(s) of text after the last row (from line 43: 'logger stopped') were not read"],
+                "chunk {chunk:?}"
+            );
         }
     }
 
