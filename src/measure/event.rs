@@ -160,15 +160,10 @@ pub fn measure_event(cx: &Context, w: &Window) -> (Event, LocalLevels) {
     // One set of running sums serves every smoothing width asked for below.
     let sums_once = std::cell::OnceCell::new();
     let sums = || sums_once.get_or_init(|| RunningSums::of(&ys));
-    // The smoothed copy is read where needed, never held whole (a long window's copy
-    // would add to the memory peak).
-    let sm = |j: usize| {
-        if smooth_w > 1 {
-            sums().average(j, smooth_w)
-        } else {
-            ys[j]
-        }
-    };
+    // Smoothed copies are read where needed, never held whole (a long window's copy
+    // would add to the memory peak); a width of one is the samples themselves.
+    let smoothed = |j: usize, w: usize| if w > 1 { sums().average(j, w) } else { ys[j] };
+    let sm = |j: usize| smoothed(j, smooth_w);
     let ps = if smooth_w > 1 {
         sums().first_max_index(smooth_w)
     } else {
@@ -306,13 +301,7 @@ pub fn measure_event(cx: &Context, w: &Window) -> (Event, LocalLevels) {
     } else {
         1
     };
-    let smoothed_at = |k: usize| {
-        if settle_w > 1 {
-            sums().average(k, settle_w)
-        } else {
-            ys[k]
-        }
-    };
+    let smoothed_at = |k: usize| smoothed(k, settle_w);
     let last_out = if settle_w > 1 {
         sums().last_beyond(settle_w, band)
     } else {
