@@ -87,6 +87,24 @@ fn csv_semicolon_decimal_comma_values_only_interval_in_preamble() {
     assert!(has_note(&cap, "no header row"));
 }
 
+/// A spreadsheet's export with decimal commas inside quoted cells and a comma between
+/// them: the quotes keep each number whole (invented values).
+#[test]
+fn csv_comma_delimited_quoted_decimal_comma_cells() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = write(
+        dir.path(),
+        "quoted.csv",
+        b"\"Time [us]\",\"Switch node [V]\"\n\"0,0\",\"0,25\"\n\"0,5\",\"24,5\"\n\"1,0\",\"-3,75\"\n\"1,5\",\"1,125\"\n\"2,0\",\"0\"\n",
+    );
+    let cap = read_capture(&p, &ReadOptions::default()).unwrap();
+    assert_eq!(names(&cap), ["Switch node"]);
+    assert_close(cap.sample_interval_s, 0.5e-6);
+    assert_eq!(cap.channels[0].samples, [0.25, 24.5, -3.75, 1.125, 0.0]);
+    assert!(has_note(&cap, "delimiter ',' (sniffed)"), "{:?}", cap.notes);
+    assert!(has_note(&cap, "decimal comma (sniffed)"), "{:?}", cap.notes);
+}
+
 #[test]
 fn csv_tab_time_in_ms_and_millivolt_column() {
     let dir = tempfile::tempdir().unwrap();

@@ -34,6 +34,26 @@ pub(crate) fn bare_delimiter(delim: Delim, decimal_comma: bool) -> Option<(u8, b
     }
 }
 
+/// Where a cell that opens with a quote (after spaces) closes, just past its closing quote:
+/// a delimiter inside the quotes (a decimal comma in a comma-separated file, a comma in a
+/// column name) belongs to the cell. A doubled quote inside is a quote. `None` for a cell
+/// without an opening quote or with no closing one (split as it stands).
+fn quoted_end(rest: &[u8]) -> Option<usize> {
+    let open = rest.iter().position(|b| *b != b' ' && *b != b'\t')?;
+    if rest[open] != b'"' {
+        return None;
+    }
+    let mut k = open + 1;
+    loop {
+        k += memchr::memchr(b'"', rest.get(k..)?)?;
+        if rest.get(k + 1) == Some(&b'"') {
+            k += 2;
+        } else {
+            return Some(k + 1);
+        }
+    }
+}
+
 /// Iterator over the cells of one row.
 pub(crate) struct Cells<'a> {
     rest: &'a [u8],
@@ -67,17 +87,21 @@ impl<'a> Iterator for Cells<'a> {
                 self.done = true;
                 Some(self.rest)
             }
-            Delim::Byte(d) => match memchr::memchr(d, self.rest) {
-                Some(k) => {
-                    let (cell, rest) = self.rest.split_at(k);
-                    self.rest = rest.get(1..).unwrap_or(&[]);
-                    Some(cell)
+            Delim::Byte(d) => {
+                // Searched from past a quoted cell's closing quote.
+                let from = quoted_end(self.rest).unwrap_or(0);
+                match memchr::memchr(d, &self.rest[from..]) {
+                    Some(k) => {
+                        let (cell, rest) = self.rest.split_at(from + k);
+                        self.rest = rest.get(1..).unwrap_or(&[]);
+                        Some(cell)
+                    }
+                    None => {
+                        self.done = true;
+                        Some(self.rest)
+                    }
                 }
-                None => {
-                    self.done = true;
-                    Some(self.rest)
-                }
-            },
+            }
             Delim::Whitespace => {
                 if self.rest.is_empty() {
                     self.done = true;
@@ -264,6 +288,22 @@ mod tests {
         assert_eq!(split("1,2,", Delim::Byte(b',')), ["1", "2", ""]);
         assert_eq!(split("  1   2\t3 ", Delim::Whitespace), ["1", "2", "3"]);
         assert_eq!(split("1,5", Delim::None), ["1,5"]);
+    }
+
+    #[test]
+    fn a_delimiter_inside_quotes_stays_in_its_cell() {
+        let comma = Delim::Byte(b',');
+        assert_eq!(split(r#""0,25","24,5""#, comma), [r#""0,25""#, r#""24,5""#]);
+        assert_eq!(
+            split(r#" "Time, s" ,"a ""b"", c",3"#, comma),
+            [r#" "Time, s" "#, r#""a ""b"", c""#, "3"]
+        );
+        // No closing quote: split as it stands.
+        assert_eq!(split(r#""0,25,3"#, comma), [r#""0"#, "25", "3"]);
+        assert_eq!(
+            split(r#"1;"2;3";4"#, Delim::Byte(b';')),
+            ["1", r#""2;3""#, "4"]
+        );
     }
 
     #[test]

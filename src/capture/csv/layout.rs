@@ -7,8 +7,9 @@ use crate::capture::cells::{parse_number, trim_cell, Delim};
 use crate::capture::columns::{self, MetaKey};
 use crate::capture::ReadOptions;
 
-/// Delimiter and decimal mark candidates in order of preference.
-fn candidates(opts: &ReadOptions) -> Vec<(Delim, bool)> {
+/// Delimiter and decimal mark candidates in order of preference; `quoted` when the lines
+/// hold quotes, inside which a decimal comma can sit in a comma-separated file.
+fn candidates(opts: &ReadOptions, quoted: bool) -> Vec<(Delim, bool)> {
     let delims: Vec<Delim> = match opts.delimiter {
         Some(b' ') => vec![Delim::Whitespace],
         Some(d) => vec![Delim::Byte(d)],
@@ -27,8 +28,9 @@ fn candidates(opts: &ReadOptions) -> Vec<(Delim, bool)> {
     let mut out = Vec::new();
     for &d in &delims {
         for &m in &marks {
-            // A comma cannot be both; a forced pair is kept so the user gets what was asked.
-            if m && d == Delim::Byte(b',') && opts.delimiter.is_none() {
+            // A comma cannot be both, unless the numbers are quoted (`"0,25","24,5"`); a
+            // forced pair is kept so the user gets what was asked.
+            if m && d == Delim::Byte(b',') && opts.delimiter.is_none() && !quoted {
                 continue;
             }
             out.push((d, m));
@@ -137,7 +139,8 @@ fn rank(
     opts: &ReadOptions,
 ) -> Vec<((Delim, bool, usize), (usize, bool, usize))> {
     let mut out: Vec<((Delim, bool, usize), (usize, bool, usize))> = Vec::new();
-    for (d, m) in candidates(opts) {
+    let quoted = lines.iter().any(|l| l.text.contains('"'));
+    for (d, m) in candidates(opts, quoted) {
         let (k, n) = score(lines, d, m);
         if k > 0 {
             out.push(((d, m, n), (k, header_agrees(lines, d, m, n), n)));
