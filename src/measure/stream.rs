@@ -920,9 +920,6 @@ mod tests {
         measure_trace(&trace, &MeasureOptions::default()).expect("measurable")
     }
 
-    /// The mask count against the plain per-sample count it replaced (run = (run + 1) when
-    /// near, else 0; best = the longest), over stretches near, away and alternating, NaN
-    /// included, fed in blocks of awkward sizes.
     /// Ranges copied out of the ring buffer are the samples at those absolute indices,
     /// current included, also when the buffer has wrapped round.
     #[test]
@@ -958,6 +955,9 @@ mod tests {
         );
     }
 
+    /// The mask count against the plain per-sample count it replaced (run = (run + 1) when
+    /// near, else 0; best = the longest), over stretches near, away and alternating, NaN
+    /// included, fed in blocks of awkward sizes.
     #[test]
     fn runs_near_a_level_counted_on_masks_match_a_plain_count() {
         let mut v: Vec<f64> = Vec::new();
