@@ -190,14 +190,14 @@ impl CsvStream {
         }
         let first_line = self.line_no;
         self.join_pieces();
-        if self.ends_in_text(&buf, first_line, &end) {
+        let ends_in_text = self.ends_in_text(&buf, first_line, &end);
+        self.spare = buf;
+        if ends_in_text {
             // Nothing follows the text: the rows before it are the whole capture.
             self.pending = None;
-            self.spare = buf;
             self.exhausted = true;
             return;
         }
-        self.spare = buf;
         match end {
             ChunkEnd::More => {}
             ChunkEnd::Last => self.exhausted = true,
@@ -470,36 +470,22 @@ impl RowFormat {
         let pair = self.time_and_one_value();
         let mut pos = 0;
         loop {
-            if let (Some((d, comma)), Some(f)) = (fast, pair) {
-                if !self.pair_run(text, &mut pos, (d, comma), want_place, f, p) {
+            if let Some((d, comma)) = fast {
+                let read_on = match pair {
+                    Some(f) => self.fast_run(text, &mut pos, p, |row, out| {
+                        fast_pair(row, d, comma, want_place, f, out.first_mut()?)
+                    }),
+                    None => self.fast_run(text, &mut pos, p, |row, out| {
+                        self.fast_row(row, d, comma, want_place, out)
+                    }),
+                };
+                if !read_on {
                     return;
                 }
             }
             let Some(rest) = text.get(pos..).filter(|r| !r.is_empty()) else {
                 break;
             };
-            if let (Some((d, comma)), None) = (fast, pair) {
-                if let Some((len, t)) = self.fast_row(rest, d, comma, want_place, &mut p.channels) {
-                    pos += len;
-                    let here = p.n_lines;
-                    p.n_lines += 1;
-                    if let (Some(tc), Some((t, q))) = (p.time.as_mut(), t) {
-                        if p.first_time.is_none() {
-                            p.first_time = Some((t, q, here));
-                        }
-                        if let Err(e) = check_time(&self.file, tc, t, q, here) {
-                            p.fail(e);
-                            return;
-                        }
-                    }
-                    p.n_rows += 1;
-                    continue;
-                }
-                // Values the fast path took before it gave up.
-                for c in &mut p.channels {
-                    c.truncate(p.n_rows);
-                }
-            }
             let (line, next) = match memchr::memchr(b'\n', rest) {
                 Some(k) => (rest.get(..k).unwrap_or(&[]), pos + k + 1),
                 None => (rest, text.len()),
@@ -511,29 +497,28 @@ impl RowFormat {
         }
     }
 
-    /// Reads rows of a time and one value with [`fast_pair`] from `pos` for as long as they
-    /// come, its state in locals (the piece's fields, behind a reference, would be read
-    /// back from memory after every push); `pos` ends at the first row it cannot read.
+    /// Reads rows with `read` (a fast path: [`fast_pair`] or [`RowFormat::fast_row`]) from
+    /// `pos` for as long as it can, its state in locals (the piece's fields, behind a
+    /// reference, would be read back from memory after every push); `pos` ends at the
+    /// first row it cannot read, whose values the fast path took are dropped again.
     /// `false` at a problem, kept in `p`.
-    fn pair_run(
+    fn fast_run(
         &self,
         text: &[u8],
         pos: &mut usize,
-        (d, comma): (u8, bool),
-        want_place: bool,
-        factor: f64,
         p: &mut Piece,
+        mut read: impl FnMut(&[u8], &mut [Vec<f64>]) -> Option<(usize, Option<(f64, f64)>)>,
     ) -> bool {
-        let Some(values) = p.channels.first_mut() else {
-            return true;
-        };
-        let mut values = std::mem::take(values);
+        let mut channels = std::mem::take(&mut p.channels);
         let mut time = p.time.take();
         let (mut n_lines, mut n_rows, mut first_time) = (p.n_lines, p.n_rows, p.first_time);
         let mut at = *pos;
         let mut problem = None;
         while let Some(rest) = text.get(at..).filter(|r| !r.is_empty()) {
-            let Some((len, t)) = fast_pair(rest, d, comma, want_place, factor, &mut values) else {
+            let Some((len, t)) = read(rest, &mut channels) else {
+                for c in &mut channels {
+                    c.truncate(n_rows);
+                }
                 break;
             };
             at += len;
@@ -550,7 +535,7 @@ impl RowFormat {
             }
             n_rows += 1;
         }
-        p.channels[0] = values;
+        p.channels = channels;
         p.time = time;
         (p.n_lines, p.n_rows, p.first_time) = (n_lines, n_rows, first_time);
         *pos = at;
