@@ -53,7 +53,7 @@ impl RailWatch {
     /// the extremes are the first values reaching them, counted with every value equal to
     /// them, and the subsample keeps every `stride`-th value of the whole channel.
     pub(crate) fn observe(&mut self, values: &[f64]) {
-        let Some((lo, hi)) = extremes(values) else {
+        let Some((lo, hi)) = crate::levels::finite_extremes(values) else {
             return;
         };
         if hi > self.max {
@@ -157,27 +157,6 @@ impl RailWatch {
             format!("'{name}': {} (seen in the data)", parts.join(", ")),
         ))
     }
-}
-
-/// Least and greatest of finite values, in independent lanes so the loop vectorizes.
-fn extremes(values: &[f64]) -> Option<(f64, f64)> {
-    let first = *values.first()?;
-    let mut lo = [first; 4];
-    let mut hi = [first; 4];
-    let mut quads = values.chunks_exact(4);
-    for q in &mut quads {
-        for j in 0..4 {
-            lo[j] = if q[j] < lo[j] { q[j] } else { lo[j] };
-            hi[j] = if q[j] > hi[j] { q[j] } else { hi[j] };
-        }
-    }
-    let mut l = lo[0].min(lo[1]).min(lo[2].min(lo[3]));
-    let mut h = hi[0].max(hi[1]).max(hi[2].max(hi[3]));
-    for &x in quads.remainder() {
-        l = l.min(x);
-        h = h.max(x);
-    }
-    Some((l, h))
 }
 
 fn count_equal(values: &[f64], target: f64) -> u64 {

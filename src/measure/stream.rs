@@ -133,44 +133,10 @@ impl Surveyor {
     pub fn push(&mut self, block: &[f64]) {
         let base = self.n;
         let end = base + block.len();
-        // Plain comparisons over eight lanes vectorise to one instruction each (and pass
-        // over NaN, as `f64::min` does, at a third of its cost); infinities are rare and
-        // are filtered out by a second look only when they show up.
-        let mut lanes_lo = [f64::INFINITY; 8];
-        let mut lanes_hi = [f64::NEG_INFINITY; 8];
-        let chunks = block.chunks_exact(8);
-        let rest = chunks.remainder();
-        for c in chunks {
-            for j in 0..8 {
-                lanes_lo[j] = if c[j] < lanes_lo[j] {
-                    c[j]
-                } else {
-                    lanes_lo[j]
-                };
-                lanes_hi[j] = if c[j] > lanes_hi[j] {
-                    c[j]
-                } else {
-                    lanes_hi[j]
-                };
-            }
+        if let Some((lo, hi)) = levels::finite_extremes(block) {
+            self.lo = self.lo.min(lo);
+            self.hi = self.hi.max(hi);
         }
-        let (mut lo, mut hi) = rest.iter().fold(
-            (
-                lanes_lo.iter().copied().fold(f64::INFINITY, f64::min),
-                lanes_hi.iter().copied().fold(f64::NEG_INFINITY, f64::max),
-            ),
-            |(a, b), &x| (a.min(x), b.max(x)),
-        );
-        if lo == f64::NEG_INFINITY || hi == f64::INFINITY {
-            (lo, hi) = block
-                .iter()
-                .filter(|x| x.is_finite())
-                .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &x| {
-                    (a.min(x), b.max(x))
-                });
-        }
-        self.lo = self.lo.min(lo);
-        self.hi = self.hi.max(hi);
         while self.next_thin < end {
             if self.thin.len() >= self.limits.thin_samples.max(2) {
                 self.thin = self.thin.iter().copied().step_by(2).collect();
