@@ -59,16 +59,24 @@ impl Default for StreamLimits {
     }
 }
 
-/// What a [`Replay`] hands each block to: voltage and (if any) current samples; `false`
-/// stops the pass.
-pub type BlockSink<'a> = dyn FnMut(&[f64], Option<&[f64]>) -> bool + 'a;
+/// One block of a record: voltage samples and (when the record has one) current samples,
+/// both the same length.
+#[derive(Debug, Default)]
+pub struct Samples {
+    pub v: Vec<f64>,
+    pub i: Option<Vec<f64>>,
+}
+
+/// What a [`Replay`] hands each block to; `false` stops the pass. The sink may keep the
+/// block's vectors and leave others (of any length) in their place, which the source
+/// fills next: so the scan keeps recent blocks without copying them.
+pub type BlockSink<'a> = dyn FnMut(&mut Samples) -> bool + 'a;
 
 /// A record that can be read again from its start, block by block.
 pub trait Replay {
-    /// Calls `each(v, i)` with consecutive blocks of the voltage and (when the record has
-    /// one) current samples, both the same length, from the first sample to the last.
-    /// `each` returns `false` to stop early; the result says whether every block was
-    /// handed out. The error message names the file and place.
+    /// Calls `each` with consecutive blocks of the record, from the first sample to the
+    /// last. `each` returns `false` to stop early; the result says whether every block
+    /// was handed out. The error message names the file and place.
     fn replay(&mut self, each: &mut BlockSink) -> Result<bool, String>;
 }
 
@@ -83,9 +91,23 @@ pub struct SliceReplay<'a> {
 impl Replay for SliceReplay<'_> {
     fn replay(&mut self, each: &mut BlockSink) -> Result<bool, String> {
         let block = self.block.max(1);
+        let mut s = Samples::default();
         for (k, v) in self.v.chunks(block).enumerate() {
-            let i = self.i.and_then(|i| i.get(k * block..k * block + v.len()));
-            if !each(v, i) {
+            s.v.clear();
+            s.v.extend_from_slice(v);
+            s.i = match (
+                self.i.and_then(|i| i.get(k * block..k * block + v.len())),
+                s.i.take(),
+            ) {
+                (Some(i), buf) => {
+                    let mut buf = buf.unwrap_or_default();
+                    buf.clear();
+                    buf.extend_from_slice(i);
+                    Some(buf)
+                }
+                (None, _) => None,
+            };
+            if !each(&mut s) {
                 return Ok(false);
             }
         }
@@ -333,16 +355,16 @@ pub fn measure_stream<O: Observer>(
 fn run_pass(
     src: &mut dyn Replay,
     stop: &dyn Fn() -> bool,
-    each: &mut dyn FnMut(&[f64], Option<&[f64]>),
+    each: &mut dyn FnMut(&mut Samples),
 ) -> Result<(), MeasureError> {
     let mut stopped = false;
     let done = src
-        .replay(&mut |v, i| {
+        .replay(&mut |block| {
             if stop() {
                 stopped = true;
                 return false;
             }
-            each(v, i);
+            each(block);
             true
         })
         .map_err(MeasureError::Read)?;
@@ -437,65 +459,86 @@ impl Stretch {
 
     /// Appends the history's samples `[from, to)` (cut to what it holds).
     fn extend_from(&mut self, other: &History, from: usize, to: usize) {
-        let a = from.saturating_sub(other.first).min(other.v.len());
-        let b = to.saturating_sub(other.first).clamp(a, other.v.len());
-        // The ring buffer holds the range in at most two pieces.
-        fn split<'a>((one, two): (&'a [f64], &'a [f64]), a: usize, b: usize) -> [&'a [f64]; 2] {
-            let cut = one.len();
-            [
-                &one[a.min(cut)..b.min(cut)],
-                &two[a.max(cut) - cut..b.max(cut) - cut],
-            ]
-        }
-        let [va, vb] = split(other.v.as_slices(), a, b);
-        let (ia, ib) = match other.i.as_ref().filter(|i| i.len() == other.v.len()) {
-            Some(i) => {
-                let [ia, ib] = split(i.as_slices(), a, b);
-                (Some(ia), Some(ib))
+        for p in &other.pieces {
+            let a = from.saturating_sub(p.first).min(p.v.len());
+            let b = to.saturating_sub(p.first).clamp(a, p.v.len());
+            if a < b {
+                self.push(&p.v[a..b], p.i.as_ref().map(|i| &i[a..b]));
             }
-            None => (None, None),
-        };
-        self.push(va, ia);
-        if !vb.is_empty() {
-            self.push(vb, ib);
         }
     }
 }
 
-/// The last samples of the record, kept for the stretch before the next edge: a ring
-/// buffer, so dropping the oldest moves nothing (a plain vector moved the kept samples to
-/// its front at every trim, half as much copying again as taking the blocks in).
+/// The last samples of the record, kept for the stretch before the next edge: the
+/// blocks themselves, taken from the source rather than copied (copying every block in
+/// was 9 % of a long WAV's measurement), and their vectors handed back to the source once
+/// they fall out of use.
 #[derive(Debug, Default)]
 struct History {
+    pieces: std::collections::VecDeque<Piece>,
+    /// Index of the next sample to come.
+    end: usize,
+    /// Vectors of dropped pieces, for the source to fill again.
+    spare: Vec<Vec<f64>>,
+}
+
+/// A block held by the history: `v[k]` is absolute sample `first + k`; the current, if
+/// any, is as long as `v`.
+#[derive(Debug)]
+struct Piece {
     first: usize,
-    v: std::collections::VecDeque<f64>,
-    i: Option<std::collections::VecDeque<f64>>,
+    v: Vec<f64>,
+    i: Option<Vec<f64>>,
 }
 
 impl History {
+    /// Vectors kept for reuse: a block and its current, twice over.
+    const SPARE: usize = 4;
+
+    /// Index of the first sample held (the next to come when none is).
+    fn first(&self) -> usize {
+        self.pieces.front().map_or(self.end, |p| p.first)
+    }
+
     fn end(&self) -> usize {
-        self.first + self.v.len()
+        self.end
     }
 
-    /// As [`Stretch::push`]: the current is kept while every block brings one.
-    fn push(&mut self, v: &[f64], i: Option<&[f64]>) {
-        let fresh = self.v.is_empty();
-        self.v.extend(v);
-        match (self.i.as_mut(), i) {
-            (Some(all), Some(i)) => all.extend(i),
-            (None, Some(i)) if fresh => self.i = Some(i.iter().copied().collect()),
-            _ => self.i = None,
-        }
+    /// Takes the block's samples, leaving spare vectors in their place; a current whose
+    /// length differs from the voltage's is not kept.
+    fn push(&mut self, block: &mut Samples) {
+        let mut take =
+            |x: &mut Vec<f64>| std::mem::replace(x, self.spare.pop().unwrap_or_default());
+        let v = take(&mut block.v);
+        let i = block.i.as_mut().map(take).filter(|i| i.len() == v.len());
+        let first = self.end;
+        self.end += v.len();
+        self.pieces.push_back(Piece { first, v, i });
     }
 
-    /// Keeps only the samples from absolute index `from` on.
+    /// The samples of the last block taken.
+    fn last(&self) -> &[f64] {
+        self.pieces.back().map_or(&[], |p| &p.v)
+    }
+
+    /// Drops the blocks that end at or before absolute index `from` (a block holding it
+    /// is kept whole).
     fn drop_before(&mut self, from: usize) {
-        let k = from.saturating_sub(self.first).min(self.v.len());
-        self.v.drain(..k);
-        if let Some(i) = self.i.as_mut() {
-            i.drain(..k.min(i.len()));
+        while self
+            .pieces
+            .front()
+            .is_some_and(|p| p.first + p.v.len() <= from)
+        {
+            let Some(p) = self.pieces.pop_front() else {
+                break;
+            };
+            for mut x in std::iter::once(p.v).chain(p.i) {
+                if self.spare.len() < Self::SPARE {
+                    x.clear();
+                    self.spare.push(x);
+                }
+            }
         }
-        self.first += k;
     }
 }
 
@@ -648,10 +691,11 @@ impl Scan<'_> {
                     push(self.measure_window(&closed, shared));
                 }
             };
-            let mut each = |v: &[f64], i: Option<&[f64]>| {
+            let mut each = |block: &mut Samples| {
+                recent.push(block);
+                let v = recent.last();
                 shared.block(v);
                 RunNear::push_both(&mut runs, v);
-                recent.push(v, i);
                 let here = recent.end();
                 if let Some(w) = open.as_mut() {
                     let cap_end = w.edge + self.window_limit + 1;
@@ -687,7 +731,7 @@ impl Scan<'_> {
                             let from = e.saturating_sub(pre_max);
                             let cap_end = e + self.window_limit + 1;
                             let mut samples = Stretch {
-                                first: from.max(recent.first),
+                                first: from.max(recent.first()),
                                 ..Stretch::default()
                             };
                             // Switchings repeat: room for about the last window's length
@@ -703,10 +747,7 @@ impl Scan<'_> {
                         }
                     }
                 }
-                // Trimmed seldom, so moving the kept history costs little per sample.
-                if recent.v.len() > 3 * keep {
-                    recent.drop_before(here - keep);
-                }
+                recent.drop_before(here.saturating_sub(keep));
             };
             let r = run_pass(src, stop, &mut each);
             if r.is_ok() {
@@ -886,27 +927,34 @@ mod tests {
         measure_trace(&trace, &MeasureOptions::default()).expect("measurable")
     }
 
-    /// Ranges copied out of the ring buffer are the samples at those absolute indices,
-    /// current included, also when the buffer has wrapped round.
+    /// Ranges copied out of the history are the samples at those absolute indices, current
+    /// included, across the blocks it holds; it keeps every sample from the trim point on,
+    /// and the vectors it leaves in a block's place are ones it dropped.
     #[test]
     fn the_history_hands_out_the_samples_it_holds() {
         let mut h = History::default();
-        let (mut next, mut wrapped) = (0usize, false);
+        let (mut next, mut most_pieces, mut reused) = (0usize, 0usize, 0usize);
         for block in [7usize, 13, 5, 20, 9, 31, 4, 17, 11, 23, 6] {
             let v: Vec<f64> = (next..next + block).map(|k| k as f64).collect();
             let i: Vec<f64> = v.iter().map(|x| -x).collect();
-            h.push(&v, Some(&i));
+            let mut b = Samples { v, i: Some(i) };
+            h.push(&mut b);
+            reused += usize::from(b.v.capacity() > 0);
+            assert!(b.v.is_empty() && b.i.as_ref().is_some_and(Vec::is_empty));
+            assert_eq!(h.last().len(), block);
             next += block;
-            // Trimmed so that the ring's start moves on and later blocks wrap round.
-            h.drop_before(next.saturating_sub(25));
-            wrapped |= !h.v.as_slices().1.is_empty();
-            for (from, to) in [(h.first, next), (h.first + 3, next - 2), (0, next + 5)] {
+            let trim = next.saturating_sub(25);
+            h.drop_before(trim);
+            assert!(h.first() <= trim);
+            most_pieces = most_pieces.max(h.pieces.len());
+            let first = h.first();
+            for (from, to) in [(first, next), (first + 3, next - 2), (0, next + 5)] {
                 let mut w = Stretch {
-                    first: from.max(h.first),
+                    first: from.max(first),
                     ..Stretch::default()
                 };
                 w.extend_from(&h, from, to);
-                let want: Vec<f64> = (from.max(h.first)..to.min(next))
+                let want: Vec<f64> = (from.max(first)..to.min(next))
                     .map(|k| k as f64)
                     .collect();
                 assert_eq!(w.v, want, "{from}..{to}");
@@ -915,10 +963,8 @@ mod tests {
             }
         }
         assert_eq!(h.end(), next);
-        assert!(
-            wrapped,
-            "the ring buffer never wrapped: the test saw one piece only"
-        );
+        assert!(most_pieces >= 3, "ranges never spanned several blocks");
+        assert!(reused > 0, "no dropped vector was handed back");
     }
 
     /// The mask count against the plain per-sample count it replaced (run = (run + 1) when

@@ -17,7 +17,8 @@ use super::{capture_doc, fit_plot, model_context, pick_channels, Settings, SKETC
 use crate::capture::{self, AdcRange, Block, BlockReader, Capture, Channel, Format};
 use crate::document::CaptureDoc;
 use crate::measure::stream::{
-    measure_stream, BlockSink, Observer, Replay, StreamInfo, StreamLimits, Surveyor, WindowView,
+    measure_stream, BlockSink, Observer, Replay, Samples, StreamInfo, StreamLimits, Surveyor,
+    WindowView,
 };
 use crate::measure::MeasureError;
 use crate::model::{self, EventFit};
@@ -152,20 +153,20 @@ impl Replay for Source<'_> {
                 if let Some(f) = i.as_mut() {
                     f.seek(SeekFrom::Start(0)).map_err(fail)?;
                 }
-                let with_current = i.is_some();
+                let mut block = Samples {
+                    v: Vec::with_capacity(BLOCK),
+                    i: i.is_some().then(|| Vec::with_capacity(BLOCK)),
+                };
                 read_in_turn(
-                    (Vec::with_capacity(BLOCK), Vec::with_capacity(BLOCK)),
-                    |(vb, ib): &mut (Vec<f64>, Vec<f64>)| {
-                        let n = read_values(v, BLOCK, vb).map_err(fail)?;
-                        if let (Some(f), true) = (i.as_mut(), n > 0) {
+                    &mut block,
+                    |b: &mut &mut Samples| {
+                        let n = read_values(v, BLOCK, &mut b.v).map_err(fail)?;
+                        if let (Some(f), Some(ib), true) = (i.as_mut(), b.i.as_mut(), n > 0) {
                             read_values(f, n, ib).map_err(fail)?;
                         }
                         Ok(n > 0)
                     },
-                    |(vb, ib)| {
-                        let cur = (with_current && ib.len() == vb.len()).then_some(ib.as_slice());
-                        Ok(each(vb, cur))
-                    },
+                    |b| Ok(each(b)),
                 )
             }
             Source::Reopened {
@@ -181,13 +182,14 @@ impl Replay for Source<'_> {
                     |block| {
                         let channels = std::mem::take(&mut block.channels);
                         let (sig, cur) = pick_block(header, channels, settings)?;
-                        let go_on = each(&sig.samples, cur.as_ref().map(|c| c.samples.as_slice()));
-                        // The block's buffers go back to the reader.
-                        block.channels = [Some(sig), cur]
-                            .into_iter()
-                            .flatten()
-                            .map(|c| c.samples)
-                            .collect();
+                        let mut samples = Samples {
+                            v: sig.samples,
+                            i: cur.map(|c| c.samples),
+                        };
+                        let go_on = each(&mut samples);
+                        // The buffers (the block's, or those left in their place) go back
+                        // to the reader.
+                        block.channels = std::iter::once(samples.v).chain(samples.i).collect();
                         Ok(go_on)
                     },
                 )
@@ -520,8 +522,8 @@ mod tests {
         for _ in 0..2 {
             let (mut seen, mut ok) = (0usize, true);
             let done = src
-                .replay(&mut |v, i| {
-                    let i = i.expect("the current channel");
+                .replay(&mut |b| {
+                    let (v, i) = (&b.v, b.i.as_deref().expect("the current channel"));
                     ok &= v.len() == i.len();
                     for (k, (&a, &b)) in v.iter().zip(i).enumerate() {
                         ok &= a == (seen + k) as f64 && b == -a;
@@ -535,7 +537,7 @@ mod tests {
         }
         let mut blocks = 0;
         let done = src
-            .replay(&mut |_, _| {
+            .replay(&mut |_| {
                 blocks += 1;
                 blocks < 2
             })
