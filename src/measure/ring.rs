@@ -111,6 +111,17 @@ fn fit_offset(peaks: &[f64]) -> Option<f64> {
 /// used for the decrement.
 fn analyse_once(y: &[f64], dt_s: f64, band: f64) -> Option<(Ring, Vec<f64>)> {
     let band = band.max(0.0);
+    // Once the swings have shrunk to a few percent of the first, an error in the off level
+    // moves the crossings noticeably; the crossings stop there. Only the swings in the
+    // spike's direction are judged: the troughs between them may be held by a body diode
+    // to a small fraction of the spike while the ring is still large. Judged as each
+    // crossing is found, so the search ends with the ring, not with the window (a window
+    // held to the memory bound is mostly settled record).
+    let amp = |a: usize, b: usize| {
+        y.get(a..b.min(y.len()))
+            .map_or(0.0, |seg| seg.iter().fold(0f64, |m, x| m.max(x.abs())))
+    };
+    let (mut first_amp, mut keep_floor) = (0.0, 0.0);
     // Crossings: fractional sample positions and their direction.
     let mut crossings: Vec<(f64, bool)> = Vec::new();
     let mut side: i8 = 0;
@@ -143,6 +154,15 @@ fn analyse_once(y: &[f64], dt_s: f64, band: f64) -> Option<(Ring, Vec<f64>)> {
                 let c = line_fit_zero(y, from, k).or_else(|| zero_crossing_between(y, from, k));
                 if let Some(c) = c {
                     crossings.push((c, s > 0));
+                    if let [.., (a, true), (b, _)] = crossings[..] {
+                        if amp(a as usize, b as usize + 1) < keep_floor {
+                            crossings.pop();
+                            break;
+                        }
+                    } else if let [(c0, _)] = crossings[..] {
+                        first_amp = amp(0, c0 as usize + 1);
+                        keep_floor = (2.0 * band).max(0.03 * first_amp);
+                    }
                 }
             }
             side = s;
@@ -152,27 +172,6 @@ fn analyse_once(y: &[f64], dt_s: f64, band: f64) -> Option<(Ring, Vec<f64>)> {
         }
         k += 1;
     }
-    // Once the swings have shrunk to a few percent of the first, an error in the off level
-    // moves the crossings noticeably; stop there. Only the swings in the spike's direction
-    // are judged: the troughs between them may be held by a body diode to a small fraction
-    // of the spike while the ring is still large.
-    let amp = |a: usize, b: usize| {
-        y.get(a..b.min(y.len()))
-            .map_or(0.0, |seg| seg.iter().fold(0f64, |m, x| m.max(x.abs())))
-    };
-    let first_amp = amp(0, crossings.first().map_or(0, |c| c.0 as usize + 1));
-    let keep_floor = (2.0 * band).max(0.03 * first_amp);
-    let mut keep = crossings.len();
-    for k in 1..crossings.len() {
-        let lobe_in_spike_direction = crossings[k - 1].1;
-        if lobe_in_spike_direction
-            && amp(crossings[k - 1].0 as usize, crossings[k].0 as usize + 1) < keep_floor
-        {
-            keep = k;
-            break;
-        }
-    }
-    crossings.truncate(keep);
     if crossings.len() < 3 {
         return None;
     }

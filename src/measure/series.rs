@@ -8,8 +8,8 @@
 //! at once. Every function gives exactly what its plain one-sample-at-a-time form gives
 //! (unit tests below compare them); samples are finite, which the readers guarantee.
 
-/// Index of the first largest value of `y`.
-pub fn first_max_index(y: &[f64]) -> Option<usize> {
+/// The largest value of `y` (minus infinity for none).
+fn max_value(y: &[f64]) -> f64 {
     let mut lanes = [f64::NEG_INFINITY; 8];
     let chunks = y.chunks_exact(8);
     let rest = chunks.remainder();
@@ -20,11 +20,16 @@ pub fn first_max_index(y: &[f64]) -> Option<usize> {
             lanes[j] = if c[j] > lanes[j] { c[j] } else { lanes[j] };
         }
     }
-    let m = lanes
+    lanes
         .iter()
         .chain(rest)
         .copied()
-        .fold(f64::NEG_INFINITY, |m, x| if x > m { x } else { m });
+        .fold(f64::NEG_INFINITY, |m, x| if x > m { x } else { m })
+}
+
+/// Index of the first largest value of `y`.
+pub fn first_max_index(y: &[f64]) -> Option<usize> {
+    let m = max_value(y);
     y.iter().position(|&x| x == m)
 }
 
@@ -48,6 +53,8 @@ pub fn last_beyond(y: &[f64], band: f64) -> Option<usize> {
 /// for, so the sequential additions are made once.
 pub struct RunningSums {
     p: Vec<f64>,
+    /// The largest `|P[j]|`, which bounds the rounding of every average.
+    p_max: f64,
 }
 
 /// Averages worked out together when only some are wanted (a search from the end).
@@ -57,12 +64,13 @@ impl RunningSums {
     pub fn of(y: &[f64]) -> Self {
         let mut p = Vec::with_capacity(y.len() + 1);
         p.push(0.0);
-        let mut sum = 0.0;
+        let (mut sum, mut p_max) = (0.0f64, 0.0f64);
         p.extend(y.iter().map(|&x| {
             sum += x;
+            p_max = p_max.max(sum.abs());
             sum
         }));
-        RunningSums { p }
+        RunningSums { p, p_max }
     }
 
     /// Samples in the window.
@@ -90,27 +98,51 @@ impl RunningSums {
         let m = inner1 - inner0;
         if m > 0 {
             let (a0, b0) = (inner0 - h, inner0 + w - h);
-            let width = w as f64;
-            out.extend(
-                self.p[b0..b0 + m]
-                    .iter()
-                    .zip(&self.p[a0..a0 + m])
-                    .map(|(b, a)| (b - a) / width),
-            );
+            let (b, a) = (&self.p[b0..b0 + m], &self.p[a0..a0 + m]);
+            if w.is_power_of_two() {
+                // Dividing by a power of two and multiplying by its inverse scale by the
+                // same exact factor, so give the same value; the product is several
+                // times cheaper.
+                let inv = 1.0 / w as f64;
+                out.extend(b.iter().zip(a).map(|(b, a)| (b - a) * inv));
+            } else {
+                let width = w as f64;
+                out.extend(b.iter().zip(a).map(|(b, a)| (b - a) / width));
+            }
         }
         for k in inner1.max(inner0.min(k1))..k1 {
             out.push(self.average(k, w));
         }
     }
 
-    /// Index of the first largest average over `w >= 2` samples, worked out a block at a
-    /// time (no copy of the window's length).
-    pub fn first_max_index(&self, w: usize) -> Option<usize> {
+    /// Index of the first largest average over `w >= 2` samples of `y` (the samples these
+    /// sums were made of), worked out a block at a time (no copy of the window's length).
+    /// A block whose samples all lie below a value some average reaches cannot hold the
+    /// largest average and is passed over: so only the stretch around the spike is
+    /// averaged, not the settled rest of a long window.
+    pub fn first_max_index(&self, y: &[f64], w: usize) -> Option<usize> {
+        debug_assert_eq!(y.len(), self.len());
+        let (n, h) = (self.len(), w / 2);
+        // Any one average bounds the largest from below; the one at the largest sample
+        // is close to it.
+        let floor = first_max_index(y).map(|k| self.average(k, w));
+        // A computed average exceeds its largest sample by its rounding at most: each of
+        // the `b - a` sums between P[a] and P[b] was rounded by at most u p_max (u = 2^-53),
+        // so their share of the average is at most u p_max; the difference and the
+        // division add u each of a value at most 2 p_max (a sample is the difference of
+        // two sums). 5 u p_max in all; 2^-48 p_max (32 u) leaves room to spare.
+        let margin = self.p_max * f64::EPSILON * 16.0;
         let mut buf = Vec::with_capacity(BLOCK);
         let mut best: Option<(usize, f64)> = None;
         let mut k0 = 0;
-        while k0 < self.len() {
-            let k1 = (k0 + BLOCK).min(self.len());
+        while k0 < n {
+            let k1 = (k0 + BLOCK).min(n);
+            // The samples the averages at k0..k1 span.
+            let span = &y[k0.saturating_sub(h)..(k1 - 1 + w - h).min(n)];
+            if floor.is_some_and(|f| max_value(span) + margin < f) {
+                k0 = k1;
+                continue;
+            }
             buf.clear();
             self.fill(w, k0, k1, &mut buf);
             if let Some(j) = first_max_index(&buf) {
@@ -211,7 +243,7 @@ mod tests {
                 let sums = RunningSums::of(y);
                 assert_eq!(averages(&sums, w), want, "n {n}, w {w}");
                 assert_eq!(
-                    sums.first_max_index(w),
+                    sums.first_max_index(y, w),
                     first_max_index(&want),
                     "n {n}, w {w}"
                 );
@@ -219,6 +251,41 @@ mod tests {
                     let last = want.iter().rposition(|x| x.abs() > band);
                     assert_eq!(sums.last_beyond(w, band), last, "n {n}, w {w}");
                 }
+            }
+        }
+    }
+
+    /// Long records, mostly quiet, whose largest averages sit in a few blocks: the search
+    /// that passes over blocks below an average already reached finds what averaging
+    /// every sample finds, also for ties between a flat top and an earlier one, a single
+    /// sample as high as the largest average, and negative records.
+    #[test]
+    fn the_largest_average_of_a_mostly_quiet_record_is_found() {
+        let quiet: Vec<f64> = record(40_000).iter().map(|x| 0.01 * x).collect();
+        let mut cases = Vec::new();
+        // One spike far into the record.
+        let mut y = quiet.clone();
+        for k in 0..300 {
+            y[25_000 + k] = 50.0 * (std::f64::consts::PI * k as f64 / 300.0).sin();
+        }
+        cases.push(y.clone());
+        // Flat tops of 7 at 30 000 and (first) at 9000, and one sample of 7 at 2000.
+        for k in 0..40 {
+            y[30_000 + k] = 7.0;
+            y[9000 + k] = 7.0;
+        }
+        y[2000] = 7.0;
+        cases.push(y.iter().map(|x| x.min(7.0)).collect());
+        // All below zero.
+        cases.push(y.iter().map(|x| x - 100.0).collect());
+        for y in &cases {
+            let sums = RunningSums::of(y);
+            for w in [2, 3, 16, 41] {
+                assert_eq!(
+                    sums.first_max_index(y, w),
+                    first_max_index(&averages(&sums, w)),
+                    "w {w}"
+                );
             }
         }
     }
