@@ -36,6 +36,50 @@ impl EdgeParams {
     }
 }
 
+/// The quiet-run tests of [`EdgeDetector::skip_quiet`] without a division per sample: with
+/// `d = v_off - v_on` and `s` its sign, `s (v - v_on) > above` proves `unit(v) > 0.5 + h`
+/// and `s (v - v_on) < below` proves `unit(v) < 0.5 - h`. The bounds are the band's edges
+/// times `|d|`, moved outwards by 1e-12 of themselves: more than the roundings of the
+/// division and of the bounds' own product (a few 2^-53 each), so a sample the test passes
+/// always passes the exact one; a sample near an edge fails it and the run is judged
+/// sample by sample as before.
+#[derive(Debug, Clone, Copy)]
+struct QuietBounds {
+    s: f64,
+    above: f64,
+    below: f64,
+}
+
+impl QuietBounds {
+    fn of(p: &EdgeParams) -> Self {
+        let d = p.v_off - p.v_on;
+        let (hi, lo) = (0.5 + p.hysteresis_f, 0.5 - p.hysteresis_f);
+        let outwards = |bound: f64, up: bool| {
+            let b = bound * d.abs();
+            if up == (b >= 0.0) {
+                b * (1.0 + 1e-12)
+            } else {
+                b * (1.0 - 1e-12)
+            }
+        };
+        let (above, below) = (outwards(hi, true), outwards(lo, false));
+        // A step too small (or not finite) for the bounds to mean anything: never skip.
+        if d.abs().is_normal() && above.is_finite() && below.is_finite() && hi > 0.0 {
+            QuietBounds {
+                s: d.signum(),
+                above,
+                below,
+            }
+        } else {
+            QuietBounds {
+                s: 1.0,
+                above: f64::INFINITY,
+                below: f64::NEG_INFINITY,
+            }
+        }
+    }
+}
+
 /// What the detector reports, with absolute sample indices.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum Mark {
@@ -57,6 +101,7 @@ enum State {
 #[derive(Debug, Clone)]
 pub struct EdgeDetector {
     p: EdgeParams,
+    quiet: QuietBounds,
     state: State,
     /// Where the current low run entered the low band.
     low_start: usize,
@@ -73,6 +118,7 @@ impl EdgeDetector {
     pub fn new(p: EdgeParams) -> Self {
         EdgeDetector {
             p,
+            quiet: QuietBounds::of(&p),
             state: State::Unknown,
             low_start: 0,
             below_mid_start: 0,
@@ -101,13 +147,14 @@ impl EdgeDetector {
         if len == 0 {
             return true;
         }
-        let h = self.p.hysteresis_f;
+        let QuietBounds { s, above, below } = self.quiet;
+        let v_on = self.p.v_on;
         // Folded without a short cut so the comparisons vectorise; NaN fails both.
         match self.state {
             State::High => {
                 let above = run
                     .iter()
-                    .fold(true, |all, &v| all & (self.p.unit(v) > 0.5 + h));
+                    .fold(true, |all, &v| all & (s * (v - v_on) > above));
                 if !above {
                     return false;
                 }
@@ -123,7 +170,7 @@ impl EdgeDetector {
                 }
                 let below = run
                     .iter()
-                    .fold(true, |all, &v| all & (self.p.unit(v) < 0.5 - h));
+                    .fold(true, |all, &v| all & (s * (v - v_on) < below));
                 if !below {
                     return false;
                 }
@@ -424,6 +471,55 @@ mod tests {
                 }
                 assert_eq!(got, want, "dwell {dwell}, blocks of {size}");
             }
+        }
+    }
+
+    /// The division-free quiet tests never pass a sample the exact test would not: samples
+    /// ulp by ulp and 1e-13 of the step at a time either side of each band edge, for steps up and down, large offsets,
+    /// tiny and huge steps; and they do pass samples clearly beyond the band.
+    #[test]
+    fn quiet_bounds_never_pass_a_sample_the_exact_test_fails() {
+        let cases = [
+            (0.0, 10.0, 0.1),
+            (24.0, 0.15, 0.07),
+            (-3.3, 1e6, 0.25),
+            (1e9, 1e9 + 3.0, 0.01),
+            (5e-300, 7e-300, 0.2),
+            (2.0, -40.0, 0.45),
+        ];
+        for (v_on, v_off, h) in cases {
+            let p = EdgeParams {
+                v_on,
+                v_off,
+                hysteresis_f: h,
+                dwell_samples: 10,
+            };
+            let q = QuietBounds::of(&p);
+            let d = v_off - v_on;
+            let mut passed = [0usize; 2];
+            for edge in [0.5 + h, 0.5 - h] {
+                let centre = v_on + edge * d;
+                let mut vs = vec![centre, v_on + 0.5 * d, v_on + 2.0 * d, v_on - d];
+                let (mut up, mut down) = (centre, centre);
+                for k in 0..2000 {
+                    up = up.next_up();
+                    down = down.next_down();
+                    // Also steps of 1e-13 of the step, across the bounds' margin.
+                    let f = k as f64 * 1e-13 * d;
+                    vs.extend([up, down, centre + f, centre - f]);
+                }
+                for v in vs {
+                    if q.s * (v - v_on) > q.above {
+                        assert!(p.unit(v) > 0.5 + h, "{v} above for {p:?}");
+                        passed[0] += 1;
+                    }
+                    if q.s * (v - v_on) < q.below {
+                        assert!(p.unit(v) < 0.5 - h, "{v} below for {p:?}");
+                        passed[1] += 1;
+                    }
+                }
+            }
+            assert!(passed[0] > 0 && passed[1] > 0, "{p:?}: {passed:?}");
         }
     }
 

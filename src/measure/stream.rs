@@ -954,9 +954,7 @@ mod tests {
                     ..Stretch::default()
                 };
                 w.extend_from(&h, from, to);
-                let want: Vec<f64> = (from.max(first)..to.min(next))
-                    .map(|k| k as f64)
-                    .collect();
+                let want: Vec<f64> = (from.max(first)..to.min(next)).map(|k| k as f64).collect();
                 assert_eq!(w.v, want, "{from}..{to}");
                 let neg: Vec<f64> = want.iter().map(|x| -x).collect();
                 assert_eq!(w.i.as_deref().unwrap_or(&[]), neg.as_slice());
