@@ -122,7 +122,10 @@ pub fn measure_event(cx: &Context, w: &Window) -> (Event, LocalLevels) {
     let ae = ae.max(e + 2).min(n);
 
     // The window from the edge on, in the spike's direction above the off level.
-    let ys: Vec<f64> = (e..ae).map(|k| cx.y(k)).collect();
+    // (`s` is one or minus one: the product is the same value `cx.y` gives, in a loop
+    // without a bounds check or polarity test per sample, which vectorises.)
+    let v_off = cx.v_off;
+    let ys: Vec<f64> = v[e..ae].iter().map(|&x| s * (x - v_off)).collect();
     // Peak: the extreme sample in the spike's direction.
     // The first of equal extremes (a clipped run starts there).
     let p = ys
