@@ -84,6 +84,12 @@ impl Chunk {
     fn room(&mut self, n: usize) -> &mut [u8] {
         let end = self.len + n;
         if self.data.len() < end {
+            // Room for a whole chunk at once, whatever is read: the allocation has one size
+            // for every file (sizes that change from file to file cost the allocator far
+            // more than the memory), while only the bytes asked for are zero-filled.
+            if self.data.capacity() < end {
+                self.data.reserve(end.max(CHUNK_BYTES) - self.data.len());
+            }
             self.data.resize(end, 0);
         }
         self.data.get_mut(self.len..end).unwrap_or(&mut [])
@@ -99,6 +105,8 @@ pub(crate) struct ChunkReader<R> {
     /// The start of a line cut by the end of the previous chunk.
     carry: Vec<u8>,
     done: bool,
+    /// The source's length when it was opened, if known.
+    length: Option<u64>,
 }
 
 impl<R: ReadAt> ChunkReader<R> {
@@ -110,7 +118,17 @@ impl<R: ReadAt> ChunkReader<R> {
             chunk_bytes: CHUNK_BYTES,
             carry: Vec::new(),
             done: false,
+            length: None,
         }
+    }
+
+    /// Gives the source's length: reads then ask for no more than one byte past it, so a
+    /// short file is read (and its buffer zero-filled) to its end rather than a whole
+    /// chunk's length, in one read rather than two halves on two threads. The byte past
+    /// the end shows that the text ended, or that the file has grown since (then reading
+    /// goes on as without the length).
+    pub(crate) fn set_length(&mut self, length: u64) {
+        self.length = Some(length);
     }
 
     /// Sets the bytes read per chunk (at least 1; tests use tiny chunks to cut every line).
@@ -135,13 +153,23 @@ impl<R: ReadAt> ChunkReader<R> {
         let mut searched = chunk.len;
         loop {
             // Past the mark (a line crossing it), read on in steps of a chunk, at most 4 KiB.
-            let want = self
+            let mut want = self
                 .chunk_bytes
                 .saturating_sub(chunk.len)
                 .max(self.chunk_bytes.min(1 << 12));
+            let mut capped = false;
+            if let Some(length) = self.length {
+                let left = length.saturating_sub(self.offset).saturating_add(1);
+                capped = left < want as u64;
+                want = want.min(usize::try_from(left).unwrap_or(usize::MAX));
+            }
             let (got, failure) = fill_at(&self.inner, chunk.room(want), self.offset);
             chunk.len += got;
             self.offset += got as u64;
+            if capped && got == want {
+                // The file has grown since it was opened: its length says nothing now.
+                self.length = None;
+            }
             if let Some(e) = failure {
                 // The lines complete before the failure still count; a cut line does not.
                 self.done = true;
@@ -215,8 +243,17 @@ mod tests {
     use super::*;
 
     fn chunks(text: &[u8], chunk_bytes: usize) -> Vec<Vec<u8>> {
+        chunks_told(text, chunk_bytes, None)
+    }
+
+    /// As [`chunks`], the reader told the length `length` (which may be wrong: the source
+    /// grew or shrank after it was opened).
+    fn chunks_told(text: &[u8], chunk_bytes: usize, length: Option<u64>) -> Vec<Vec<u8>> {
         let mut r = ChunkReader::new(text, 0);
         r.set_chunk_bytes(chunk_bytes);
+        if let Some(n) = length {
+            r.set_length(n);
+        }
         let mut out = Vec::new();
         let mut c = Chunk::default();
         loop {
@@ -228,6 +265,34 @@ mod tests {
                 ChunkEnd::More => {}
                 ChunkEnd::Last => return out,
                 ChunkEnd::Failed(e) => panic!("{e}"),
+            }
+        }
+    }
+
+    /// A reader told the source's length gives the same chunks, also when the text is
+    /// shorter than told (it shrank after it was opened); when it is longer (it grew), the
+    /// same bytes in about as many chunks.
+    #[test]
+    fn a_known_length_gives_the_same_chunks() {
+        let text: Vec<u8> = (0..40_000)
+            .flat_map(|k| format!("{k},{}\n", k * 3).into_bytes())
+            .chain(b"9,9".iter().copied())
+            .collect();
+        let n = text.len() as u64;
+        for size in [7, 4096, 100_000, CHUNK_BYTES] {
+            let want = chunks(&text, size);
+            for told in [n, n + 1, 10 * n] {
+                assert_eq!(chunks_told(&text, size, Some(told)), want, "{size}, {told}");
+            }
+            // Told too little, the first chunk may end sooner; every byte still comes back
+            // once, in chunks that end lines, and no more of them than one more chunk.
+            for told in [0, 1, n / 2, n - 1] {
+                let got = chunks_told(&text, size, Some(told));
+                assert_eq!(got.concat(), text, "chunk size {size}, told {told} of {n}");
+                assert!(got[..got.len() - 1]
+                    .iter()
+                    .all(|c| c.last() == Some(&b'\n')));
+                assert!(got.len() <= want.len() + 1, "{size}, {told}: {}", got.len());
             }
         }
     }

@@ -100,9 +100,18 @@ impl CsvStream {
         first_line: usize,
         time: Option<TimeCheck>,
     ) -> Self {
+        let length = file
+            .metadata()
+            .ok()
+            .filter(|m| m.is_file())
+            .map(|m| m.len());
+        let mut source = ChunkReader::new(file, offset);
+        if let Some(length) = length {
+            source.set_length(length);
+        }
         CsvStream {
             format,
-            source: ChunkReader::new(file, offset),
+            source,
             ahead: None,
             spare: Chunk::default(),
             pieces: Vec::new(),
