@@ -475,8 +475,9 @@ mod tests {
     }
 
     /// The division-free quiet tests never pass a sample the exact test would not: samples
-    /// ulp by ulp and 1e-13 of the step at a time either side of each band edge, for steps up and down, large offsets,
-    /// tiny and huge steps; and they do pass samples clearly beyond the band.
+    /// ulp by ulp and 1e-13 of the step at a time either side of each band edge, for steps
+    /// up and down, large offsets, tiny and huge steps; and they do pass samples clearly
+    /// beyond the band.
     #[test]
     fn quiet_bounds_never_pass_a_sample_the_exact_test_fails() {
         let cases = [

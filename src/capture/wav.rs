@@ -228,7 +228,7 @@ pub(crate) fn open(path: &Path, opts: &ReadOptions) -> Result<(Capture, WavStrea
     let (data_start, data_len) = data_chunk(path, &mut inner)?;
     // The samples are read from the file itself, in runs longer than any buffer would
     // batch: through the header's buffered reader each run was copied twice (once by the
-    // kernel into the buffer, once out of it; 5 % of a long WAV's measurement).
+    // kernel into the buffer, once out of it: a fifth of a long WAV's wall time).
     let mut file = inner.into_inner();
     file.seek(SeekFrom::Start(data_start))
         .map_err(|source| CaptureError::Io {
