@@ -168,7 +168,7 @@ pub fn measure_event(cx: &Context, w: &Window) -> (Event, LocalLevels) {
     let smoothed = |j: usize, w: usize| if w > 1 { sums().average(j, w) } else { ys[j] };
     let sm = |j: usize| smoothed(j, smooth_w);
     let ps = if smooth_w > 1 {
-        sums().first_max_index(&ys, smooth_w)
+        sums().first_max_index(&ys, smooth_w, p - e)
     } else {
         series::first_max_index(&ys)
     }

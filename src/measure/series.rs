@@ -119,13 +119,14 @@ impl RunningSums {
     /// sums were made of), worked out a block at a time (no copy of the window's length).
     /// A block whose samples all lie below a value some average reaches cannot hold the
     /// largest average and is passed over: so only the stretch around the spike is
-    /// averaged, not the settled rest of a long window.
-    pub fn first_max_index(&self, y: &[f64], w: usize) -> Option<usize> {
+    /// averaged, not the settled rest of a long window. The average at `near` is that
+    /// value: any index gives the same result, one at (or by) the largest sample, which
+    /// the caller has found already, lets the most be passed over.
+    pub fn first_max_index(&self, y: &[f64], w: usize, near: usize) -> Option<usize> {
         debug_assert_eq!(y.len(), self.len());
         let (n, h) = (self.len(), w / 2);
-        // Any one average bounds the largest from below; the one at the largest sample
-        // is close to it.
-        let floor = first_max_index(y).map(|k| self.average(k, w));
+        // Any one average bounds the largest from below.
+        let floor = (n > 0).then(|| self.average(near.min(n - 1), w));
         // A computed average exceeds its largest sample by its rounding at most: each of
         // the `b - a` sums between P[a] and P[b] was rounded by at most u p_max (u = 2^-53),
         // so their share of the average is at most u p_max; the difference and the
@@ -242,11 +243,13 @@ mod tests {
                     .collect();
                 let sums = RunningSums::of(y);
                 assert_eq!(averages(&sums, w), want, "n {n}, w {w}");
-                assert_eq!(
-                    sums.first_max_index(y, w),
-                    first_max_index(&want),
-                    "n {n}, w {w}"
-                );
+                for near in [0, n / 2, n.saturating_sub(1)] {
+                    assert_eq!(
+                        sums.first_max_index(y, w, near),
+                        first_max_index(&want),
+                        "n {n}, w {w}"
+                    );
+                }
                 for band in [0.5, 2.0, 4.9] {
                     let last = want.iter().rposition(|x| x.abs() > band);
                     assert_eq!(sums.last_beyond(w, band), last, "n {n}, w {w}");
@@ -280,12 +283,15 @@ mod tests {
         cases.push(y.iter().map(|x| x - 100.0).collect());
         for y in &cases {
             let sums = RunningSums::of(y);
+            let peak = first_max_index(y).unwrap_or(0);
             for w in [2, 3, 16, 41] {
-                assert_eq!(
-                    sums.first_max_index(y, w),
-                    first_max_index(&averages(&sums, w)),
-                    "w {w}"
-                );
+                for near in [peak, 0, 31_000] {
+                    assert_eq!(
+                        sums.first_max_index(y, w, near),
+                        first_max_index(&averages(&sums, w)),
+                        "w {w}, near {near}"
+                    );
+                }
             }
         }
     }

@@ -93,20 +93,20 @@ impl Replay for SliceReplay<'_> {
         let block = self.block.max(1);
         let mut s = Samples::default();
         for (k, v) in self.v.chunks(block).enumerate() {
-            s.v.clear();
-            s.v.extend_from_slice(v);
-            s.i = match (
-                self.i.and_then(|i| i.get(k * block..k * block + v.len())),
-                s.i.take(),
-            ) {
-                (Some(i), buf) => {
-                    let mut buf = buf.unwrap_or_default();
-                    buf.clear();
-                    buf.extend_from_slice(i);
-                    Some(buf)
-                }
-                (None, _) => None,
+            let refill = |buf: &mut Vec<f64>, from: &[f64]| {
+                buf.clear();
+                buf.extend_from_slice(from);
             };
+            refill(&mut s.v, v);
+            let mut cur = s.i.take();
+            s.i = self
+                .i
+                .and_then(|i| i.get(k * block..k * block + v.len()))
+                .map(|i| {
+                    let mut buf = cur.take().unwrap_or_default();
+                    refill(&mut buf, i);
+                    buf
+                });
             if !each(&mut s) {
                 return Ok(false);
             }
@@ -524,6 +524,7 @@ impl History {
     /// Drops the blocks that end at or before absolute index `from` (a block holding it
     /// is kept whole).
     fn drop_before(&mut self, from: usize) {
+        // (`VecDeque::pop_front_if` is newer than the crate's minimum Rust.)
         while self
             .pieces
             .front()
