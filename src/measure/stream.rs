@@ -396,17 +396,34 @@ struct ScanOut {
     memory_cuts: usize,
 }
 
-/// Samples of a stretch of the record: `v[k]` is absolute sample `first + k`.
+/// Samples of a stretch of the record: `v[skip + k]` is absolute sample `first + k`. The
+/// `skip` samples before are dropped ones, left in place: moving a long window's samples
+/// down to drop its first few was 6 % of a long CSV's second pass.
 #[derive(Debug, Default)]
 struct Stretch {
     first: usize,
+    skip: usize,
     v: Vec<f64>,
     i: Option<Vec<f64>>,
 }
 
 impl Stretch {
     fn end(&self) -> usize {
-        self.first + self.v.len()
+        self.first + self.len()
+    }
+
+    fn len(&self) -> usize {
+        self.v.len() - self.skip
+    }
+
+    /// The voltage samples held, the first at `first`.
+    fn values(&self) -> &[f64] {
+        self.v.get(self.skip..).unwrap_or(&[])
+    }
+
+    /// The current samples held, if any, the first at `first`.
+    fn currents(&self) -> Option<&[f64]> {
+        self.i.as_deref().map(|i| i.get(self.skip..).unwrap_or(&[]))
     }
 
     fn push(&mut self, v: &[f64], i: Option<&[f64]>) {
@@ -421,9 +438,10 @@ impl Stretch {
             grow(all, v.len());
         }
         self.v.extend_from_slice(v);
+        let first_push = self.len() == v.len();
         match (self.i.as_mut(), i) {
             (Some(all), Some(i)) => all.extend_from_slice(i),
-            (None, Some(i)) if self.v.len() == v.len() => {
+            (None, Some(i)) if first_push => {
                 let mut all = Vec::with_capacity(self.v.capacity());
                 all.extend_from_slice(i);
                 self.i = Some(all);
@@ -440,17 +458,14 @@ impl Stretch {
 
     /// Keeps only the samples from absolute index `from` on.
     fn drop_before(&mut self, from: usize) {
-        let k = from.saturating_sub(self.first).min(self.v.len());
-        self.v.drain(..k);
-        if let Some(i) = self.i.as_mut() {
-            i.drain(..k.min(i.len()));
-        }
+        let k = from.saturating_sub(self.first).min(self.len());
+        self.skip += k;
         self.first += k;
     }
 
     /// Drops the samples from absolute index `to` on.
     fn truncate_at(&mut self, to: usize) {
-        let k = to.saturating_sub(self.first);
+        let k = self.skip + to.saturating_sub(self.first);
         self.v.truncate(k);
         if let Some(i) = self.i.as_mut() {
             i.truncate(k);
@@ -533,9 +548,10 @@ impl History {
             let Some(p) = self.pieces.pop_front() else {
                 break;
             };
-            for mut x in std::iter::once(p.v).chain(p.i) {
+            // Handed back with their old samples: the source sets the length it fills (a
+            // spill read then overwrites a block's worth without zeroing it first).
+            for x in std::iter::once(p.v).chain(p.i) {
                 if self.spare.len() < Self::SPARE {
-                    x.clear();
                     self.spare.push(x);
                 }
             }
@@ -660,7 +676,7 @@ impl Scan<'_> {
         let scanned = rayon::in_place_scope(|scope| {
             let dispatch = |closed: ClosedWindow| {
                 use std::sync::atomic::Ordering;
-                let size = closed.samples.v.len();
+                let size = closed.samples.len();
                 let (measured, in_flight) = (&measured, &in_flight);
                 let push = move |m: Measured<O::Out>| {
                     measured.lock().unwrap_or_else(|p| p.into_inner()).push(m)
@@ -712,7 +728,7 @@ impl Scan<'_> {
                         events::Mark::TurnOn { index: t } => {
                             if let Some(w) = open.take_if(|w| t > w.edge) {
                                 let closed = self.close(w, index, Some(t), here);
-                                last_len = closed.samples.v.len();
+                                last_len = closed.samples.len();
                                 index += 1;
                                 memory_cuts += usize::from(self.cut_by_memory(&closed, t));
                                 dispatch(closed);
@@ -817,8 +833,8 @@ impl Scan<'_> {
     fn measure_window<O: Observer>(&self, w: &ClosedWindow, observer: &O) -> Measured<O::Out> {
         let s = &w.samples;
         let mut cx = self.cx;
-        cx.v = &s.v;
-        cx.i = s.i.as_deref();
+        cx.v = s.values();
+        cx.i = s.currents();
         cx.first_index = s.first;
         let rel = event::Window {
             index: w.index,
@@ -829,11 +845,11 @@ impl Scan<'_> {
             closed_by_turn_on: w.closed_by_turn_on,
         };
         let (event, local) = event::measure_event(&cx, &rel);
-        let len = (w.end - w.start).min(s.v.len());
+        let len = (w.end - w.start).min(s.len());
         let view = WindowView {
             event: &event,
-            v: &s.v[..len],
-            i: s.i.as_deref().map(|i| &i[..len.min(i.len())]),
+            v: &s.values()[..len],
+            i: s.currents().map(|i| &i[..len.min(i.len())]),
             range: (w.start, w.end),
         };
         let out = observer.window(&view);
@@ -941,7 +957,6 @@ mod tests {
             let mut b = Samples { v, i: Some(i) };
             h.push(&mut b);
             reused += usize::from(b.v.capacity() > 0);
-            assert!(b.v.is_empty() && b.i.as_ref().is_some_and(Vec::is_empty));
             assert_eq!(h.last().len(), block);
             next += block;
             let trim = next.saturating_sub(25);
@@ -956,9 +971,17 @@ mod tests {
                 };
                 w.extend_from(&h, from, to);
                 let want: Vec<f64> = (from.max(first)..to.min(next)).map(|k| k as f64).collect();
-                assert_eq!(w.v, want, "{from}..{to}");
+                assert_eq!(w.values(), want, "{from}..{to}");
                 let neg: Vec<f64> = want.iter().map(|x| -x).collect();
-                assert_eq!(w.i.as_deref().unwrap_or(&[]), neg.as_slice());
+                assert_eq!(w.currents().unwrap_or(&[]), neg.as_slice());
+                // Dropping the first samples and the last leaves the stretch between.
+                let (a, b) = (from.max(first) + 2, to.min(next).saturating_sub(3));
+                w.drop_before(a);
+                w.truncate_at(b);
+                let kept: Vec<f64> = (a..b.max(a)).map(|k| k as f64).collect();
+                assert_eq!((w.first, w.values()), (a, kept.as_slice()), "{from}..{to}");
+                let neg: Vec<f64> = kept.iter().map(|x| -x).collect();
+                assert_eq!(w.currents().unwrap_or(&[]), neg.as_slice());
             }
         }
         assert_eq!(h.end(), next);

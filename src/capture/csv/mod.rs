@@ -97,7 +97,11 @@ pub(crate) fn open(
         source,
     };
     let mut f = File::open(path).map_err(io)?;
-    let mut head = Vec::new();
+    // Room for the whole head at once: grown from nothing, the buffer was copied a dozen
+    // times over for a file of a few hundred KiB.
+    let length = f.metadata().map_or(0, |m| m.len());
+    let mut head =
+        Vec::with_capacity(usize::try_from(length).map_or(SNIFF_BYTES, |n| n.min(SNIFF_BYTES)) + 1);
     (&mut f)
         .take(SNIFF_BYTES as u64 + 1)
         .read_to_end(&mut head)
