@@ -398,7 +398,8 @@ struct ScanOut {
 
 /// Samples of a stretch of the record: `v[skip + k]` is absolute sample `first + k`. The
 /// `skip` samples before are dropped ones, left in place: moving a long window's samples
-/// down to drop its first few was 6 % of a long CSV's second pass.
+/// down to drop its first few was 6 % of the scanning thread's profile in a long CSV's
+/// second pass.
 #[derive(Debug, Default)]
 struct Stretch {
     first: usize,

@@ -220,7 +220,8 @@ fn read_in_turn<B>(
 
 /// Fills `out` with up to `max` values read from `f`; returns how many. Whatever `out`
 /// held is overwritten, not zeroed first (zeroing a block's worth before every read was
-/// 6 % of a long CSV's second pass): only its length beyond what it held is zeroed.
+/// 6 % of the scanning thread's profile in a long CSV's second pass): only its length
+/// beyond what it held is zeroed.
 fn read_values(f: &mut File, max: usize, out: &mut Vec<f64>) -> std::io::Result<usize> {
     if out.len() < max {
         out.resize(max, 0.0);
