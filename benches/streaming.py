@@ -6,13 +6,15 @@ captures.
 Run from the project's root (after `cargo build --release`):
 
     python3 benches/streaming.py [--samples 100000000] [--files 1000] [--only csv,wav,folder]
+                                 [--runs 3]
 
 It uses the shared bench's Python environment and its capture maker (cached under
 $KICKSCAN_BENCH_DIR or kickscan-bench in the temporary folder), writes the inputs there once,
 and prints for each: wall time, user+sys CPU time, peak resident memory (ru_maxrss of the
 child) for `cat` (the floor), kickscan, and for the folder the shared reference pipeline
-looped over the files in one Python process. Machines here are noisy: compare ratios from
-one run.
+looped over the files in one Python process. Each command runs --runs times, the commands
+taking turns, and the medians are printed (peak memory: the largest). Machines here are
+noisy: compare ratios from one run.
 
 The WAV holds the capture maker's scenario (a 24 V coil, series RLC ring after turn-off,
 body diode at -0.7 V, noise 0.4 V) as 16-bit codes over -50..500 V; the folder's captures
@@ -22,6 +24,7 @@ Invented demo data.
 """
 import argparse
 import os
+import statistics
 import subprocess
 import sys
 import tempfile
@@ -42,6 +45,23 @@ def run(cmd, stdout=subprocess.DEVNULL):
     if code != 0:
         sys.exit(f"{' '.join(cmd)} failed ({code}): {err.decode()[-2000:]}")
     return wall, ru.ru_utime + ru.ru_stime, ru.ru_maxrss / 1024.0, out
+
+
+def runs_of(commands, runs):
+    """Runs each (name, cmd, stdout) in turn, `runs` rounds; medians of wall and CPU time,
+    the largest peak memory, and the last output of each."""
+    got = {name: [] for name, _, _ in commands}
+    for _ in range(max(1, runs)):
+        for name, cmd, stdout in commands:
+            got[name].append(run(cmd, stdout))
+    rows = {}
+    for name, results in got.items():
+        rows[name] = (
+            statistics.median(r[0] for r in results),
+            statistics.median(r[1] for r in results),
+            max(r[2] for r in results),
+        )
+    return rows
 
 
 def ring(np, n_on, n_total, dt, i0, rng):
@@ -117,6 +137,7 @@ def main():
     ap.add_argument("--files", type=int, default=1000)
     ap.add_argument("--only", default="csv,wav,folder")
     ap.add_argument("--binary", default="target/release/kickscan")
+    ap.add_argument("--runs", type=int, default=3, help="rounds of runs; medians are printed")
     a = ap.parse_args()
     only = set(a.only.split(","))
     work = os.environ.get("KICKSCAN_BENCH_DIR", os.path.join(tempfile.gettempdir(), "kickscan-bench"))
@@ -132,19 +153,17 @@ def main():
             subprocess.check_call([py, os.path.join(SHARED, "make_capture.py"), csv + ".tmp",
                                    "--samples", str(a.samples)])
             os.rename(csv + ".tmp", csv)
-        rows = {"floor": run(["sh", "-c", f"cat '{csv}' > /dev/null"])[:3]}
-        w, c, m, out = run([ks, "measure", csv, "--json"], stdout=subprocess.PIPE)
-        rows["kickscan"] = (w, c, m)
-        report(f"CSV {os.path.getsize(csv) / 1e6:.0f} MB, {a.samples} samples", rows)
+        rows = runs_of([("floor", ["sh", "-c", f"cat '{csv}' > /dev/null"], subprocess.DEVNULL),
+                        ("kickscan", [ks, "measure", csv, "--json"], subprocess.PIPE)], a.runs)
+        report(f"CSV {os.path.getsize(csv) / 1e6:.0f} MB, {a.samples} samples, medians of {a.runs} runs", rows)
 
     if "wav" in only:
         wav = os.path.join(work, f"capture_{a.samples}.wav")
         if not os.path.exists(wav):
             make_wav(py, wav, a.samples)
-        rows = {"floor": run(["sh", "-c", f"cat '{wav}' > /dev/null"])[:3]}
-        w, c, m, out = run([ks, "measure", wav, "--json"], stdout=subprocess.PIPE)
-        rows["kickscan"] = (w, c, m)
-        report(f"WAV {os.path.getsize(wav) / 1e6:.0f} MB, {a.samples} samples, 16-bit", rows)
+        rows = runs_of([("floor", ["sh", "-c", f"cat '{wav}' > /dev/null"], subprocess.DEVNULL),
+                        ("kickscan", [ks, "measure", wav, "--json"], subprocess.PIPE)], a.runs)
+        report(f"WAV {os.path.getsize(wav) / 1e6:.0f} MB, {a.samples} samples, 16-bit, medians of {a.runs} runs", rows)
 
     if "folder" in only:
         folder = os.path.join(work, f"folder_{a.files}")
@@ -157,10 +176,10 @@ def main():
             "    with contextlib.redirect_stdout(io.StringIO()):\n"
             "        reference.main()\n" % (SHARED, os.path.join(folder, "*.csv"))
         )
-        rows = {"floor": run(["sh", "-c", f"cat '{folder}'/*.csv > /dev/null"])[:3]}
-        rows["reference"] = run([py, "-c", loop])[:3]
-        rows["kickscan"] = run([ks, "measure", folder, "--json"], stdout=subprocess.PIPE)[:3]
-        report(f"folder of {a.files} captures of 10 000 samples", rows)
+        rows = runs_of([("floor", ["sh", "-c", f"cat '{folder}'/*.csv > /dev/null"], subprocess.DEVNULL),
+                        ("reference", [py, "-c", loop], subprocess.DEVNULL),
+                        ("kickscan", [ks, "measure", folder, "--json"], subprocess.PIPE)], a.runs)
+        report(f"folder of {a.files} captures of 10 000 samples, medians of {a.runs} runs", rows)
         w, c, _ = rows["kickscan"]
         print(f"  kickscan wall / cpu {w / c:.2f} (both cores busy: at most 0.6)")
         print(f"  kickscan / reference wall {w / rows['reference'][0]:.3f}")
