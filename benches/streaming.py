@@ -48,8 +48,8 @@ def run(cmd, stdout=subprocess.DEVNULL):
 
 
 def runs_of(commands, runs):
-    """Runs each (name, cmd, stdout) in turn, `runs` rounds; medians of wall and CPU time,
-    the largest peak memory, and the last output of each."""
+    """Runs each (name, cmd, stdout) in turn, `runs` rounds; for each name the medians of
+    wall and CPU time and the largest peak memory."""
     got = {name: [] for name, _, _ in commands}
     for _ in range(max(1, runs)):
         for name, cmd, stdout in commands:

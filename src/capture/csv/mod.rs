@@ -97,11 +97,12 @@ pub(crate) fn open(
         source,
     };
     let mut f = File::open(path).map_err(io)?;
-    // Room for the whole head at once: grown from nothing, the buffer was copied a dozen
-    // times over for a file of a few hundred KiB.
-    let length = f.metadata().map_or(0, |m| m.len());
-    let mut head =
-        Vec::with_capacity(usize::try_from(length).map_or(SNIFF_BYTES, |n| n.min(SNIFF_BYTES)) + 1);
+    // The length of a regular file: room for the whole head at once (grown from nothing,
+    // the buffer was copied a dozen times over for a file of a few hundred KiB), and the
+    // stream's reads capped at it.
+    let length = f.metadata().ok().filter(|m| m.is_file()).map(|m| m.len());
+    let head_room = length.map_or(0, |n| usize::try_from(n).unwrap_or(usize::MAX));
+    let mut head = Vec::with_capacity(head_room.min(SNIFF_BYTES) + 1);
     (&mut f)
         .take(SNIFF_BYTES as u64 + 1)
         .read_to_end(&mut head)
@@ -341,7 +342,7 @@ pub(crate) fn open(
         roles,
         factors,
     };
-    let stream = CsvStream::new(format, f, offset, data_line, time_check);
+    let stream = CsvStream::new(format, f, offset, data_line, time_check, length);
     Ok((cap, stream, pre.record_length))
 }
 

@@ -93,18 +93,16 @@ impl Piece {
 }
 
 impl CsvStream {
+    /// `length` is the file's when it was opened, if it is a regular file (see
+    /// [`ChunkReader::set_length`]).
     pub(super) fn new(
         format: RowFormat,
         file: File,
         offset: u64,
         first_line: usize,
         time: Option<TimeCheck>,
+        length: Option<u64>,
     ) -> Self {
-        let length = file
-            .metadata()
-            .ok()
-            .filter(|m| m.is_file())
-            .map(|m| m.len());
         let mut source = ChunkReader::new(file, offset);
         if let Some(length) = length {
             source.set_length(length);
