@@ -285,3 +285,38 @@ fn a_file_removed_after_listing() {
     assert!(e.contains("No such file or directory"), "{e}");
     assert!(measure_file(&files[1], &settings, false).is_ok());
 }
+
+/// A named pipe among captures, and one given by itself. Before the check, reading one hung
+/// `measure` (the reader's second open waits for a writer that is gone) and `inspect` failed
+/// with the system's "Illegal seek"; now it is refused by name at once and the capture beside
+/// it is still measured. No writer is ever attached: a reader that opened the pipe would
+/// block, and the two-minute timeout of `kickscan()` would fail the test.
+#[test]
+fn a_pipe_is_refused_by_name_without_waiting() {
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::copy(corpus().join("no-turn-off.csv"), dir.path().join("a.csv")).unwrap();
+    let pipe = dir.path().join("b.csv");
+    let made = std::process::Command::new("mkfifo").arg(&pipe).status();
+    if !made.is_ok_and(|s| s.success()) {
+        eprintln!("skipped: mkfifo is not available here");
+        return;
+    }
+    let expected = "a pipe (FIFO or process substitution), not a regular file";
+    let o = kickscan(&["measure", dir.path().to_str().unwrap(), "--json"]);
+    assert_eq!(code(&o), 1, "{}", stderr(&o));
+    let doc: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    let files: Vec<&str> = doc["captures"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|c| c["file"].as_str().unwrap())
+        .collect();
+    assert_eq!(files, [dir.path().join("a.csv").to_str().unwrap()]);
+    let error = doc["errors"][0]["error"].as_str().unwrap();
+    assert!(error.starts_with(pipe.to_str().unwrap()), "{error}");
+    assert!(error.contains(expected), "{error}");
+
+    let o = kickscan(&["inspect", pipe.to_str().unwrap()]);
+    assert_eq!(code(&o), 1);
+    assert!(stderr(&o).contains(expected), "{}", stderr(&o));
+}

@@ -193,6 +193,7 @@ pub fn read_capture(path: &Path, opts: &ReadOptions) -> Result<Capture, CaptureE
 
 /// Which reader a file needs.
 pub(crate) fn detect_format(path: &Path, opts: &ReadOptions) -> Result<Format, CaptureError> {
+    refuse_unless_regular(path)?;
     if opts.raw.is_some() {
         return Ok(Format::Raw);
     }
@@ -235,6 +236,52 @@ pub(crate) fn detect_format(path: &Path, opts: &ReadOptions) -> Result<Format, C
         return Ok(Format::Raw);
     }
     Ok(Format::Csv)
+}
+
+/// Every reader opens its file more than once (the format's first bytes, the sniffed head,
+/// the stream; a long capture once more for each pass). A pipe cannot be read again: its
+/// second open waits for a writer that has gone (a hang) and a seek fails, so anything but a
+/// regular file is refused here, by name, before it is opened.
+fn refuse_unless_regular(path: &Path) -> Result<(), CaptureError> {
+    let meta = std::fs::metadata(path).map_err(|source| CaptureError::Io {
+        file: path.to_path_buf(),
+        source,
+    })?;
+    if meta.is_file() {
+        return Ok(());
+    }
+    let kind = file_kind(&meta.file_type());
+    Err(CaptureError::Invalid {
+        file: path.to_path_buf(),
+        message: format!(
+            "{kind}, not a regular file; a capture is read more than once (its layout first, then its samples), so save it to a file first (for example `cat SOURCE > capture.csv`) and give that"
+        ),
+    })
+}
+
+/// What a file that is not a regular file is, in words.
+fn file_kind(t: &std::fs::FileType) -> &'static str {
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::FileTypeExt;
+        if t.is_fifo() {
+            return "a pipe (FIFO or process substitution)";
+        }
+        if t.is_char_device() {
+            return "a character device";
+        }
+        if t.is_block_device() {
+            return "a block device";
+        }
+        if t.is_socket() {
+            return "a socket";
+        }
+    }
+    if t.is_dir() {
+        "a folder"
+    } else {
+        "a special file"
+    }
 }
 
 /// Applies `--scale NAME=FACTOR` to the header (units of the ADC range) and returns the
