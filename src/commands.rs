@@ -63,6 +63,13 @@ pub fn run(cli: Cli) -> Result<ExitCode> {
         } => {
             let mut settings = analysis.to_settings(read.to_options()?)?;
             if from_table {
+                let unused = analysis.measuring_options_given(&read);
+                if !unused.is_empty() {
+                    anyhow::bail!(
+                        "--from-table: {} cannot apply to event tables (their events were measured when the tables were written); only --rating, --block, --lifetime and the --fail-* limits do",
+                        unused.join(", ")
+                    );
+                }
                 return measure_tables(&inputs, json, out, force, &settings);
             }
             settings.stop = stop_on_ctrl_c();

@@ -38,6 +38,37 @@ fn nonsense_value_is_a_usage_error_naming_the_option() {
         .stderr(predicate::str::contains("parsecs"));
 }
 
+/// Event tables hold events already measured: options that act on samples would be
+/// silently unused, so they are a usage error naming each one (the summary's own options,
+/// here --rating and --block, are accepted alongside). The check comes before the tables
+/// are opened, so it holds with or without the `parquet` feature.
+#[test]
+fn from_table_refuses_options_that_act_on_samples() {
+    kickscan()
+        .args([
+            "measure",
+            "--from-table",
+            "events.parquet",
+            "--rating",
+            "60V",
+        ])
+        .args([
+            "--block",
+            "10",
+            "--supply",
+            "24V",
+            "--no-fit",
+            "--settle-band",
+            "2",
+        ])
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains(
+            "--from-table: --supply, --settle-band, --no-fit cannot apply to event tables",
+        ))
+        .stderr(predicate::str::contains("--rating").count(1));
+}
+
 #[test]
 fn compare_needs_two_labels() {
     kickscan()

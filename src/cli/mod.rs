@@ -73,8 +73,9 @@ pub enum Command {
         inputs: Vec<PathBuf>,
         /// The inputs are event tables (events.parquet from earlier --out reports, or
         /// folders holding them): summarise their events together, e.g. from many machines.
-        /// Only --rating, --block, --lifetime and the --fail-* limits apply. Needs a kickscan
-        /// built with the `parquet` feature.
+        /// Only --rating, --block, --lifetime and the --fail-* limits apply; options that act
+        /// on samples (or label them) are refused. Needs a kickscan built with the `parquet`
+        /// feature.
         #[arg(long)]
         from_table: bool,
         /// Print the kickscan.measure/1 JSON document on stdout.
@@ -257,7 +258,7 @@ pub struct AnalysisArgs {
     #[arg(long, value_name = "S")]
     pub max_window: Option<String>,
     /// Settle band in percent of the step.
-    #[arg(long, value_name = "PCT", default_value = "5")]
+    #[arg(long, value_name = "PCT", default_value = SETTLE_BAND_DEFAULT)]
     pub settle_band: String,
     /// On-state dwell before an edge counts (derived from the data by default).
     #[arg(long, value_name = "S")]
@@ -284,6 +285,9 @@ pub struct AnalysisArgs {
     #[arg(long, short)]
     pub quiet: bool,
 }
+
+/// `--settle-band` when not given, in percent of the step.
+const SETTLE_BAND_DEFAULT: &str = "5";
 
 fn opt_si(name: &str, v: &Option<String>, unit: &str) -> Result<Option<f64>> {
     v.as_deref()
@@ -338,6 +342,42 @@ impl ReadArgs {
 }
 
 impl AnalysisArgs {
+    /// The options given that act on samples (reading them, finding and measuring events,
+    /// the fit, the clamp advice) or label captures: event tables were measured when they
+    /// were written, so `--from-table` refuses these rather than leave them unused.
+    pub fn measuring_options_given(&self, read: &ReadArgs) -> Vec<&'static str> {
+        let r = read;
+        let a = self;
+        [
+            ("--dt", r.dt.is_some()),
+            ("--sample-rate", r.sample_rate.is_some()),
+            ("--raw", r.raw.is_some()),
+            ("--scale", !r.scale.is_empty()),
+            ("--skew", !r.skew.is_empty()),
+            ("--delimiter", r.delimiter.is_some()),
+            ("--decimal", r.decimal.is_some()),
+            ("--signal", a.signal.is_some()),
+            ("--current", a.current.is_some()),
+            (
+                "--current-through",
+                !matches!(a.current_through, ThroughArg::Switch),
+            ),
+            ("--polarity", !matches!(a.polarity, PolarityArg::Auto)),
+            ("--supply", a.supply.is_some()),
+            ("--inductance", a.inductance.is_some()),
+            ("--coil-current", a.coil_current.is_some()),
+            ("--switching-rate", a.switching_rate.is_some()),
+            ("--max-window", a.max_window.is_some()),
+            ("--settle-band", a.settle_band != SETTLE_BAND_DEFAULT),
+            ("--min-on-time", a.min_on_time.is_some()),
+            ("--label", a.label.is_some()),
+            ("--no-fit", a.no_fit),
+        ]
+        .into_iter()
+        .filter_map(|(name, given)| given.then_some(name))
+        .collect()
+    }
+
     pub fn to_settings(&self, read: ReadOptions) -> Result<Settings> {
         let settle_band_pct = parse_si(&self.settle_band, Some("%"))
             .or_else(|_| parse_si(self.settle_band.trim_end_matches('%'), None))
