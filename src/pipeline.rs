@@ -250,15 +250,11 @@ fn pick_channels(
 ) -> Result<(capture::Channel, Option<capture::Channel>), String> {
     // Both selections are resolved before anything is moved, so each sees every channel.
     let signal = match &settings.signal {
-        Some(s) => {
-            Some(capture::select_channel(cap, s, &settings.read).map_err(|e| e.to_string())?)
-        }
+        Some(s) => Some(capture::select_channel(cap, s).map_err(|e| e.to_string())?),
         None => None,
     };
     let current = match &settings.current {
-        Some(s) => {
-            Some(capture::select_channel(cap, s, &settings.read).map_err(|e| e.to_string())?)
-        }
+        Some(s) => Some(capture::select_channel(cap, s).map_err(|e| e.to_string())?),
         None => None,
     };
     let signal = match signal {
@@ -318,14 +314,9 @@ pub fn measure_file(
     settings: &Settings,
     sketch: bool,
 ) -> Result<(CaptureDoc, Option<TraceSketch>), String> {
-    // Skews shift channels against each other by interpolation over the whole record.
-    let cap = if settings.read.skew.is_empty() {
-        match streamed::load(path, settings, sketch)? {
-            streamed::Loaded::Whole(cap) => cap,
-            streamed::Loaded::Measured(doc, sketch) => return Ok((*doc, sketch)),
-        }
-    } else {
-        capture::read_capture(path, &settings.read).map_err(|e| e.to_string())?
+    let cap = match streamed::load(path, settings, sketch)? {
+        streamed::Loaded::Whole(cap) => cap,
+        streamed::Loaded::Measured(doc, sketch) => return Ok((*doc, sketch)),
     };
     measure_capture(path, cap, settings, sketch)
 }

@@ -321,9 +321,7 @@ fn a_channel_that_does_not_exist() {
     let dir = tempfile::tempdir().unwrap();
     let p = write(dir.path(), "ok.csv", GOOD_ROWS.as_bytes());
     let cap = read_capture(&p, &ReadOptions::default()).unwrap();
-    let e = select_channel(&cap, "v_gate", &ReadOptions::default())
-        .unwrap_err()
-        .to_string();
+    let e = select_channel(&cap, "v_gate").unwrap_err().to_string();
     assert_eq!(
         e,
         format!(

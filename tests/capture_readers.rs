@@ -265,7 +265,7 @@ fn csv_scale_option_and_difference_channel() {
     };
     let cap = read_capture(&p, &opts).unwrap();
     assert_eq!(cap.channels[0].samples, [24.0, 25.0, 180.0]);
-    let d = select_channel(&cap, "DRAIN-2", &opts).unwrap();
+    let d = select_channel(&cap, "DRAIN-2").unwrap();
     assert_eq!(d.name, "drain-source");
     assert_eq!(d.samples, [23.9, 24.8, 179.5]);
 }
@@ -294,6 +294,48 @@ fn blocks_stream_a_capture_in_bounded_pieces() {
     assert_eq!(firsts, [0, 3, 6, 9]);
     assert_eq!(b_values[9], 27.0);
     assert_eq!(r.samples_read(), 10);
+}
+
+/// `--skew` while streaming in blocks of 3 and 4 samples: every block holds all channels
+/// for the same samples, the record keeps its length, and the values are the definition's
+/// (value at `k + S/dt`, linearly interpolated, ends held), worked by hand for a ramp:
+/// `a` (late by 1.5 s at 1 s sampling) reads 2 (k + 1.5) up to the held last value 18,
+/// `b` (early by 2 s) reads 3 (k - 2) from the held first value 0; `c` does not move.
+#[test]
+fn skewed_channels_stream_in_step() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut text = String::from("t,a,b,c\n");
+    for k in 0..10 {
+        text.push_str(&format!("{},{},{},{}\n", k, k * 2, k * 3, k));
+    }
+    let p = write(dir.path(), "skew.csv", text.as_bytes());
+    let opts = ReadOptions {
+        skew: vec![("a".into(), 1.0), ("A".into(), 0.5), ("b".into(), -2.0)],
+        ..Default::default()
+    };
+    let a_want = [3.0, 5.0, 7.0, 9.0, 11.0, 13.0, 15.0, 17.0, 18.0, 18.0];
+    let b_want = [0.0, 0.0, 0.0, 3.0, 6.0, 9.0, 12.0, 15.0, 18.0, 21.0];
+    for len in [3, 4, 1000] {
+        let mut r = open_blocks(&p, &opts).unwrap();
+        r.set_block_len(len);
+        let (mut a, mut b, mut c, mut firsts) = (vec![], vec![], vec![], vec![]);
+        while let Some(block) = r.next_block().unwrap() {
+            assert!(block.len() <= len);
+            assert!(block.channels.iter().all(|ch| ch.len() == block.len()));
+            firsts.push(block.first_sample);
+            a.extend_from_slice(&block.channels[0]);
+            b.extend_from_slice(&block.channels[1]);
+            c.extend_from_slice(&block.channels[2]);
+        }
+        assert_eq!(a, a_want, "blocks of {len}");
+        assert_eq!(b, b_want, "blocks of {len}");
+        assert_eq!(c, (0..10).map(f64::from).collect::<Vec<_>>());
+        assert_eq!(firsts[0], 0);
+        assert_eq!(r.samples_read(), 10);
+        let note = "'a' moved earlier by 1.5e0 s (1.5 samples, --skew)";
+        assert!(r.finish().notes.iter().any(|n| n == note), "{note}");
+    }
+    assert_eq!(read_capture(&p, &opts).unwrap().channels[0].samples, a_want);
 }
 
 fn wav_spec(channels: u16, bits: u16, float: bool) -> hound::WavSpec {

@@ -188,3 +188,51 @@ fn out_writes_a_report_folder_and_replaces_its_own() {
         .code(2);
     assert!(foreign.join("notes.txt").is_file());
 }
+
+/// `--skew` acts on the channel it names however that channel is picked: the current
+/// channel found by its unit (no `--current`) moves as it does when named. Before, a skew
+/// reached a channel only through `--signal`/`--current`, and was silently unused
+/// otherwise. The capture is a bundled sample (coil current beside the switch node); a
+/// skew name that matches no channel is an error naming the option.
+#[test]
+fn skew_moves_the_channel_it_names_however_it_is_picked() {
+    let file = Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("sample-captures/coil-current/zener-shot-01.csv");
+    let energy = |extra: &[&str]| -> f64 {
+        let out = kickscan()
+            .arg("measure")
+            .arg(&file)
+            .arg("--json")
+            .args(extra)
+            .output()
+            .unwrap();
+        assert!(
+            out.status.success(),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        let doc: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+        doc["captures"][0]["events"][0]["energy_j"]
+            .as_f64()
+            .unwrap()
+    };
+    let plain = energy(&[]);
+    let by_unit = energy(&["--skew", "i_coil=2us"]);
+    let named = energy(&["--skew", "i_coil=2us", "--current", "i_coil"]);
+    assert_eq!(by_unit.to_bits(), named.to_bits());
+    // Two samples of a current falling through the spike move the energy by well over a
+    // rounding error (about 0.7 % here).
+    assert!(
+        (by_unit - plain).abs() > 1e-3 * plain,
+        "{by_unit} vs {plain}"
+    );
+    kickscan()
+        .arg("measure")
+        .arg(&file)
+        .args(["--skew", "i_cool=2us"])
+        .assert()
+        .code(1)
+        .stderr(predicate::str::contains(
+            "--skew i_cool: no channel 'i_cool'",
+        ));
+}

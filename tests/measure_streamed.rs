@@ -117,6 +117,25 @@ fn a_current_channel_streams_beside_the_voltage() {
         .all(|e| e.energy_j.is_some() || e.coil_energy_j.is_some()));
 }
 
+/// `--skew` moves channels while they are read, in blocks: a streamed capture with the
+/// voltage late by 1.5 samples and the current early by 2.25 gives what it gives whole
+/// (before, a skew made the capture be read whole whatever its length).
+#[test]
+fn skewed_channels_stream_as_they_read_whole() {
+    let path = sample("coil-current/zener-shot-01.csv");
+    let read = kickscan::capture::ReadOptions {
+        skew: vec![("v_sw".into(), 1.5e-6), ("i_coil".into(), -2.25e-6)],
+        ..Default::default()
+    };
+    both(
+        &path,
+        Settings {
+            read,
+            ..Settings::default()
+        },
+    );
+}
+
 /// A mono 16-bit WAV of `n` samples at 10 MS/s (invented): on at code 0 for 20 000 samples,
 /// then off at code 8000 after a decaying ring, over and over. Long enough to be read in
 /// several runs, so the reader reads ahead.

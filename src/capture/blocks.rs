@@ -6,6 +6,7 @@ use std::path::Path;
 use super::adc::RailWatch;
 use super::csv::CsvStream;
 use super::raw::RawStream;
+use super::skew::{skews_of, Skew};
 use super::wav::WavStream;
 use super::{csv, raw, wav, Capture, CaptureError, Format, ReadOptions};
 
@@ -51,7 +52,76 @@ pub struct BlockReader {
     /// Extremes seen per channel (CSV only; WAV and raw rails come from full scale).
     rails: Option<Vec<RailWatch>>,
     record_length: Option<u64>,
+    /// `--skew`, when a channel moves.
+    skew: Option<Box<Skewing>>,
     done: bool,
+}
+
+/// The `--skew` stages of a capture's channels and the samples they have settled but not
+/// yet handed out: a stage holds back as many samples as it looks ahead, so the channels
+/// are handed out together, as far as every one of them has got.
+struct Skewing {
+    /// One per channel; `None` for a channel that does not move.
+    stages: Vec<Option<Skew>>,
+    settled: Vec<Vec<f64>>,
+    /// The samples as read, before the stages.
+    read: Vec<Vec<f64>>,
+    /// The file has no more samples (every stage has finished).
+    ended: bool,
+}
+
+impl Skewing {
+    fn new(shifts: &[f64]) -> Self {
+        Skewing {
+            stages: shifts
+                .iter()
+                .map(|&s| (s != 0.0).then(|| Skew::new(s)))
+                .collect(),
+            settled: vec![Vec::new(); shifts.len()],
+            read: vec![Vec::new(); shifts.len()],
+            ended: false,
+        }
+    }
+
+    /// Passes the samples just read through the stages (all of them at the record's end).
+    fn take_read(&mut self) {
+        let ended = self.ended;
+        for ((stage, read), settled) in self
+            .stages
+            .iter_mut()
+            .zip(&self.read)
+            .zip(&mut self.settled)
+        {
+            match stage {
+                Some(s) => {
+                    s.push(read, settled);
+                    if ended {
+                        s.finish(settled);
+                    }
+                }
+                None => settled.extend_from_slice(read),
+            }
+        }
+    }
+
+    /// Moves up to `most` samples of every channel, as many as all have settled, into
+    /// `out`; how many.
+    fn hand_out(&mut self, most: usize, out: &mut [Vec<f64>]) -> usize {
+        let m = self
+            .settled
+            .iter()
+            .map(Vec::len)
+            .min()
+            .unwrap_or(0)
+            .min(most);
+        if m > 0 {
+            for (settled, o) in self.settled.iter_mut().zip(out) {
+                o.extend_from_slice(&settled[..m]);
+                settled.drain(..m);
+            }
+        }
+        m
+    }
 }
 
 /// Opens a capture for streaming. The format comes from `opts.raw`, then the file's leading
@@ -73,6 +143,25 @@ pub fn open_blocks(path: &Path, opts: &ReadOptions) -> Result<BlockReader, Captu
         }
     };
     let factors = super::apply_scale_options(&mut header, opts)?;
+    let skew = skews_of(&header, opts)?.map(|shifts| {
+        for (ch, s) in header.channels.iter().zip(&shifts) {
+            if *s != 0.0 {
+                let (how, by) = if *s > 0.0 {
+                    ("earlier", *s)
+                } else {
+                    ("later", -*s)
+                };
+                let note = format!(
+                    "'{}' moved {how} by {:e} s ({} samples, --skew)",
+                    ch.name,
+                    super::sig(by * header.sample_interval_s),
+                    super::sig(by)
+                );
+                header.notes.push(note);
+            }
+        }
+        Box::new(Skewing::new(&shifts))
+    });
     let rails = matches!(source, Source::Csv(_)).then(|| {
         header
             .channels
@@ -88,6 +177,7 @@ pub fn open_blocks(path: &Path, opts: &ReadOptions) -> Result<BlockReader, Captu
         factors,
         rails,
         record_length,
+        skew,
         done: false,
     })
 }
@@ -120,10 +210,39 @@ impl BlockReader {
         if self.done {
             return Ok(false);
         }
+        let Some(mut sk) = self.skew.take() else {
+            let n = self.read_samples(&mut block.channels)?;
+            self.next_sample += n as u64;
+            return Ok(n > 0);
+        };
+        let got = loop {
+            let m = sk.hand_out(self.block_len, &mut block.channels);
+            if m > 0 || sk.ended {
+                break m;
+            }
+            for c in &mut sk.read {
+                c.clear();
+            }
+            let mut read = std::mem::take(&mut sk.read);
+            let n = self.read_samples(&mut read);
+            sk.read = read;
+            sk.ended = n? == 0;
+            sk.take_read();
+        };
+        self.skew = Some(sk);
+        self.done = got == 0;
+        self.next_sample += got as u64;
+        Ok(got > 0)
+    }
+
+    /// Reads the next samples as the file holds them, `--scale` applied and rails watched,
+    /// into `channels` (cleared); how many per channel, 0 at the end (then `done` is set,
+    /// as it is at an error).
+    fn read_samples(&mut self, channels: &mut [Vec<f64>]) -> Result<usize, CaptureError> {
         let r = match &mut self.source {
-            Source::Csv(s) => s.fill(&mut block.channels, self.block_len),
-            Source::Wav(s) => s.fill(&mut block.channels, self.block_len),
-            Source::Raw(s) => s.fill(&mut block.channels, self.block_len),
+            Source::Csv(s) => s.fill(channels, self.block_len),
+            Source::Wav(s) => s.fill(channels, self.block_len),
+            Source::Raw(s) => s.fill(channels, self.block_len),
         };
         let n = match r {
             Ok(n) => n,
@@ -134,9 +253,9 @@ impl BlockReader {
         };
         if n == 0 {
             self.done = true;
-            return Ok(false);
+            return Ok(0);
         }
-        for (k, c) in block.channels.iter_mut().enumerate() {
+        for (k, c) in channels.iter_mut().enumerate() {
             let f = self.factors.get(k).copied().unwrap_or(1.0);
             if f != 1.0 {
                 c.iter_mut().for_each(|x| *x *= f);
@@ -145,8 +264,7 @@ impl BlockReader {
                 w.observe(c);
             }
         }
-        self.next_sample += n as u64;
-        Ok(true)
+        Ok(n)
     }
 
     /// Samples per channel read so far.

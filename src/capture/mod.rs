@@ -10,8 +10,8 @@
 //! - Delimited text (`csv`): preamble lines, header, units, time column, checked row by row.
 //! - WAV (`wav`) and raw little-endian dumps (`raw`), described by a sidecar JSON file
 //!   ([`sidecar`] documents its schema).
-//! - [`select_channel`] picks a channel by name, number or difference (`CH1-CH2`) and
-//!   applies `--skew`; `--scale` is applied while reading.
+//! - [`select_channel`] picks a channel by name, number or difference (`CH1-CH2`);
+//!   `--scale` and `--skew` (`skew`) are applied while reading, to every channel named.
 //!
 //! Untrusted sizes never drive allocation: lines are capped at 1 MiB, sidecars at 1 MiB,
 //! and sample vectors grow with the samples actually read, not with what a header claims.
@@ -34,6 +34,7 @@ mod lines;
 mod raw;
 mod runs;
 pub mod sidecar;
+mod skew;
 mod wav;
 
 pub use blocks::{open_blocks, Block, BlockReader, DEFAULT_BLOCK_LEN};
@@ -128,7 +129,7 @@ pub struct ReadOptions {
     pub raw: Option<RawKind>,
     /// `NAME=FACTOR` multipliers (probe attenuation, shunt transconductance).
     pub scale: Vec<(String, f64)>,
-    /// `NAME=S` time skews (probe and cable delay), applied when a channel is selected.
+    /// `NAME=S` time skews (probe and cable delay), applied while reading.
     pub skew: Vec<(String, f64)>,
     /// Force a CSV delimiter.
     pub delimiter: Option<u8>,
@@ -173,7 +174,7 @@ pub enum CaptureError {
 /// Reads a whole capture. The format comes from `opts.raw`, then the file's leading bytes
 /// (`RIFF....WAVE`), then its extension, then a sidecar naming a `sample_type` (a raw
 /// dump); anything else is tried as delimited text.
-/// `--scale` factors are applied here; `--skew` is applied by [`select_channel`].
+/// `--scale` factors and `--skew` shifts are applied here.
 pub fn read_capture(path: &Path, opts: &ReadOptions) -> Result<Capture, CaptureError> {
     let mut reader = open_blocks(path, opts)?;
     let mut channels: Vec<Vec<f64>> = reader

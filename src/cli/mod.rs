@@ -176,7 +176,9 @@ pub struct ReadArgs {
     /// Multiply a channel by a factor (probe attenuation, shunt): NAME=FACTOR, repeatable.
     #[arg(long, value_name = "NAME=FACTOR")]
     pub scale: Vec<String>,
-    /// Shift a channel in time (probe and cable delay): NAME=S, repeatable.
+    /// Correct a channel's probe and cable delay: NAME=S, repeatable. S > 0 means the
+    /// channel lags, so its samples move earlier by S (linear interpolation).
+    /// Example: --skew i_coil=12ns.
     #[arg(long, value_name = "NAME=S")]
     pub skew: Vec<String>,
     /// CSV delimiter, when sniffing guesses wrong: comma, semicolon, tab.
