@@ -31,6 +31,16 @@ fn stderr(o: &Output) -> String {
     String::from_utf8_lossy(&o.stderr).into_owned()
 }
 
+/// The string field `key` of every item of a JSON array (files measured, errors).
+fn strings_at<'a>(items: &'a serde_json::Value, key: &str) -> Vec<&'a str> {
+    items
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|item| item[key].as_str().unwrap())
+        .collect()
+}
+
 /// One row of README.md's troubleshooting table.
 struct Row {
     file: String,
@@ -246,19 +256,9 @@ fn folder_with_symlink_loops_and_a_dangling_link() {
     let o = kickscan(&["measure", d.to_str().unwrap(), "--json"]);
     assert_eq!(code(&o), 1);
     let doc: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
-    let files: Vec<&str> = doc["captures"]
-        .as_array()
-        .unwrap()
-        .iter()
-        .map(|c| c["file"].as_str().unwrap())
-        .collect();
+    let files = strings_at(&doc["captures"], "file");
     assert_eq!(files, [d.join("a.csv").to_str().unwrap()]);
-    let errors: Vec<&str> = doc["errors"]
-        .as_array()
-        .unwrap()
-        .iter()
-        .map(|e| e["error"].as_str().unwrap())
-        .collect();
+    let errors = strings_at(&doc["errors"], "error");
     assert_eq!(errors.len(), 3, "{errors:?}");
     assert!(errors[0].contains("gone.csv: No such file or directory"));
     assert!(errors[1].contains("self: symlink loop"));
@@ -305,12 +305,7 @@ fn a_pipe_is_refused_by_name_without_waiting() {
     let o = kickscan(&["measure", dir.path().to_str().unwrap(), "--json"]);
     assert_eq!(code(&o), 1, "{}", stderr(&o));
     let doc: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
-    let files: Vec<&str> = doc["captures"]
-        .as_array()
-        .unwrap()
-        .iter()
-        .map(|c| c["file"].as_str().unwrap())
-        .collect();
+    let files = strings_at(&doc["captures"], "file");
     assert_eq!(files, [dir.path().join("a.csv").to_str().unwrap()]);
     let error = doc["errors"][0]["error"].as_str().unwrap();
     assert!(error.starts_with(pipe.to_str().unwrap()), "{error}");
