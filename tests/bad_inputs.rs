@@ -315,3 +315,36 @@ fn a_pipe_is_refused_by_name_without_waiting() {
     assert_eq!(code(&o), 1);
     assert!(stderr(&o).contains(expected), "{}", stderr(&o));
 }
+
+/// A long capture is measured from a temporary copy of its samples in `TMPDIR`; when that
+/// copy cannot be made, the message names the folder and the way out. The capture is just
+/// over the in-memory limit (2^20 samples per channel), so the copy is the first thing
+/// the streaming path needs.
+#[test]
+fn a_missing_temporary_folder_is_named_with_the_way_out() {
+    use std::fmt::Write as _;
+    let dir = tempfile::tempdir().unwrap();
+    let mut text = String::from("t,v\n");
+    for k in 0..1_100_000u32 {
+        writeln!(text, "{k}e-6,{}", if k % 1000 < 500 { 0 } else { 24 }).unwrap();
+    }
+    let file = dir.path().join("long.csv");
+    std::fs::write(&file, text).unwrap();
+    let missing = dir.path().join("no-such-folder");
+    let o = Command::cargo_bin("kickscan")
+        .unwrap()
+        .env("TMPDIR", &missing)
+        .args(["measure", file.to_str().unwrap(), "--json"])
+        .timeout(Duration::from_secs(120))
+        .output()
+        .unwrap();
+    assert_eq!(code(&o), 1, "{}", stderr(&o));
+    let doc: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    let error = strings_at(&doc["errors"], "error")[0];
+    let place = format!("could not be created in {}", missing.display());
+    assert!(error.contains(&place), "{error}");
+    assert!(
+        error.contains("point TMPDIR at a folder with room"),
+        "{error}"
+    );
+}

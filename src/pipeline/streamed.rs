@@ -95,6 +95,10 @@ fn pick_block(
     pick_channels(&mut cap, settings)
 }
 
+/// What to do when the temporary copy cannot be made, said with the error.
+const SPILL_ADVICE: &str =
+    "it takes 8 bytes per sample of each channel measured; point TMPDIR at a folder with room";
+
 /// Plain f64 values (in the machine's byte order: the file lives and dies with this
 /// process) written to an unnamed temporary file and read back.
 struct Spill {
@@ -105,8 +109,9 @@ impl Spill {
     fn new(path: &Path) -> Result<Spill, String> {
         let file = tempfile::tempfile().map_err(|e| {
             format!(
-                "{}: the capture is long and is measured from a temporary copy of its samples, which could not be created: {e}",
-                path.display()
+                "{}: the capture is long and is measured from a temporary copy of its samples, which could not be created in {}: {e} ({SPILL_ADVICE})",
+                path.display(),
+                std::env::temp_dir().display()
             )
         })?;
         Ok(Spill { file })
@@ -324,8 +329,9 @@ fn measure_streaming(
     let (mut spill_v, mut spill_i) = (None, None);
     let io = |e: std::io::Error| {
         format!(
-            "{}: writing the temporary copy of the samples: {e}",
-            path.display()
+            "{}: writing the temporary copy of the samples in {}: {e} ({SPILL_ADVICE})",
+            path.display(),
+            std::env::temp_dir().display()
         )
     };
     let (signal, current) = pick_block(&header, held, settings)?;
