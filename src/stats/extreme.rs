@@ -163,6 +163,35 @@ where
     out
 }
 
+/// A fitted model's block of the report: its return levels for `lifetimes` and its
+/// exceedance probability of `rating`, with the warnings met on the way; a fit that failed
+/// gives no block and the warning `failed` makes of its error (if any).
+fn model_block<F: Serialize>(
+    fitted: Result<F, StatsError>,
+    (lifetimes, what, rating): (&[f64], &str, Option<f64>),
+    level: impl Fn(&F, f64) -> Result<ReturnLevel, StatsError>,
+    p_exceed: impl Fn(&F, f64) -> Option<f64>,
+    failed: impl FnOnce(StatsError) -> Option<String>,
+) -> (Option<ModelBlock<F>>, Vec<String>) {
+    let mut warnings = Vec::new();
+    let block = match fitted {
+        Ok(fit) => {
+            let return_levels = levels_of(lifetimes, what, &mut warnings, |n| level(&fit, n));
+            let p = rating.and_then(|r| p_exceed(&fit, r));
+            Some(ModelBlock {
+                fit,
+                return_levels,
+                p_exceed_rating_per_event: p,
+            })
+        }
+        Err(e) => {
+            warnings.extend(failed(e));
+            None
+        }
+    };
+    (block, warnings)
+}
+
 /// Fit what the data allow and project: Gumbel and GEV to the maxima of blocks of
 /// `block_len` consecutive events, generalized Pareto to the exceedances of the 90th
 /// percentile of all events. `lifetimes` are numbers of switchings to project to; `rating`
@@ -201,70 +230,34 @@ pub fn extreme_value_of_maxima(
     // large batch they are the last step after the captures: run them side by side. Their
     // warnings are kept in the order the report has always listed them.
     let gumbel_block = || {
-        let mut warnings = Vec::new();
-        let block = match fit_gumbel(&maxima) {
-            Ok(fit) => {
-                let return_levels = levels_of(lifetimes, "Gumbel", &mut warnings, |n| {
-                    fit.return_level(n, m)
-                });
-                let p = rating.and_then(|r| p_exceed_per_event(&fit, r, m));
-                Some(ModelBlock {
-                    fit,
-                    return_levels,
-                    p_exceed_rating_per_event: p,
-                })
-            }
-            Err(e) => {
-                if block_len > 0 {
-                    warnings.push(e.to_string());
-                }
-                None
-            }
-        };
-        (block, warnings)
+        model_block(
+            fit_gumbel(&maxima),
+            (lifetimes, "Gumbel", rating),
+            |fit, n| fit.return_level(n, m),
+            |fit, r| p_exceed_per_event(fit, r, m),
+            |e| (block_len > 0).then(|| e.to_string()),
+        )
     };
     let gev_block = || {
-        let mut warnings = Vec::new();
-        let block = match fit_gev(&maxima) {
-            Ok(fit) => {
-                let return_levels =
-                    levels_of(lifetimes, "GEV", &mut warnings, |n| fit.return_level(n, m));
-                let p = rating.and_then(|r| p_exceed_per_event(&fit, r, m));
-                Some(ModelBlock {
-                    fit,
-                    return_levels,
-                    p_exceed_rating_per_event: p,
-                })
-            }
-            Err(StatsError::TooFew { .. }) | Err(StatsError::NoSpread { .. }) => None,
-            Err(e) => {
-                warnings.push(e.to_string());
-                None
-            }
-        };
-        (block, warnings)
+        model_block(
+            fit_gev(&maxima),
+            (lifetimes, "GEV", rating),
+            |fit, n| fit.return_level(n, m),
+            |fit, r| p_exceed_per_event(fit, r, m),
+            |e| match e {
+                StatsError::TooFew { .. } | StatsError::NoSpread { .. } => None,
+                e => Some(e.to_string()),
+            },
+        )
     };
     let pot_block = || {
-        let mut warnings = Vec::new();
-        let block = match fit_pot(values_in_order, None) {
-            Ok(fit) => {
-                let return_levels =
-                    levels_of(lifetimes, "peaks over threshold", &mut warnings, |n| {
-                        fit.return_level(n)
-                    });
-                let p = rating.and_then(|r| fit.p_exceed_per_event(r));
-                Some(ModelBlock {
-                    fit,
-                    return_levels,
-                    p_exceed_rating_per_event: p,
-                })
-            }
-            Err(e) => {
-                warnings.push(format!("peaks over threshold: {e}"));
-                None
-            }
-        };
-        (block, warnings)
+        model_block(
+            fit_pot(values_in_order, None),
+            (lifetimes, "peaks over threshold", rating),
+            |fit, n| fit.return_level(n),
+            |fit, r| fit.p_exceed_per_event(r),
+            |e| Some(format!("peaks over threshold: {e}")),
+        )
     };
     let ((gumbel, w_gumbel), ((gev, w_gev), (pot, w_pot))) =
         rayon::join(gumbel_block, || rayon::join(gev_block, pot_block));
