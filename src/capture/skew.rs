@@ -10,8 +10,9 @@
 
 use super::{Capture, CaptureError, ReadOptions};
 
-/// Largest shift accepted, in samples: a stage keeps that many samples back, so the bound
-/// keeps memory flat (8 MiB per channel). Probe and cable delays are a few samples.
+/// Largest shift accepted, in samples: a stage holds up to about twice that many samples
+/// (and the channels beside a late one wait as long), so the bound keeps memory flat (at
+/// most about 16 MiB per channel). Probe and cable delays are a few samples.
 pub(crate) const MAX_SHIFT_SAMPLES: f64 = (1 << 20) as f64;
 
 /// One channel's shift, applied to its samples block by block. Every output is computed
@@ -58,6 +59,8 @@ impl Skew {
                 break;
             }
             let (left, i) = floor_of(pos);
+            // Positions only increase and `drop_unneeded` keeps the first one still needed.
+            debug_assert!(left >= base, "skew stage dropped a needed sample");
             let (a, b) = match held.get(left - base..left - base + 2) {
                 Some(&[a, b]) => (a, b),
                 _ => (0.0, 0.0),
