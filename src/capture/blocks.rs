@@ -143,25 +143,7 @@ pub fn open_blocks(path: &Path, opts: &ReadOptions) -> Result<BlockReader, Captu
         }
     };
     let factors = super::apply_scale_options(&mut header, opts)?;
-    let skew = skews_of(&header, opts)?.map(|shifts| {
-        for (ch, s) in header.channels.iter().zip(&shifts) {
-            if *s != 0.0 {
-                let (how, by) = if *s > 0.0 {
-                    ("earlier", *s)
-                } else {
-                    ("later", -*s)
-                };
-                let note = format!(
-                    "'{}' moved {how} by {:e} s ({} samples, --skew)",
-                    ch.name,
-                    super::sig(by * header.sample_interval_s),
-                    super::sig(by)
-                );
-                header.notes.push(note);
-            }
-        }
-        Box::new(Skewing::new(&shifts))
-    });
+    let skew = skews_of(&mut header, opts)?.map(|shifts| Box::new(Skewing::new(&shifts)));
     let rails = matches!(source, Source::Csv(_)).then(|| {
         header
             .channels

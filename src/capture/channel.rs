@@ -25,14 +25,19 @@ pub(crate) fn no_such_channel(capture: &Capture, wanted: &str) -> CaptureError {
     CaptureError::NoSuchChannel {
         file: capture.source.clone(),
         wanted: wanted.to_string(),
-        available: capture
-            .channels
-            .iter()
-            .enumerate()
-            .map(|(k, c)| format!("{} ({})", c.name, k + 1))
-            .collect::<Vec<_>>()
-            .join(", "),
+        available: channels_listed(capture),
     }
+}
+
+/// The channels by name and number, as messages list them: `v_sw (1), i_coil (2)`.
+pub(crate) fn channels_listed(capture: &Capture) -> String {
+    capture
+        .channels
+        .iter()
+        .enumerate()
+        .map(|(k, c)| format!("{} ({})", c.name, k + 1))
+        .collect::<Vec<_>>()
+        .join(", ")
 }
 
 /// A copy of channel `index`.

@@ -8,7 +8,8 @@
 //! the ends of the record. Applied while reading, after `--scale`, to every channel named,
 //! before any channel is picked or differenced.
 
-use super::{Capture, CaptureError, ReadOptions};
+use super::channel::{channels_listed, find_channel};
+use super::{sig, Capture, CaptureError, ReadOptions};
 
 /// Largest shift accepted, in samples: a stage holds up to about twice that many samples
 /// (and the channels beside a late one wait as long), so the bound keeps memory flat (at
@@ -121,10 +122,11 @@ fn index_value(k: usize) -> f64 {
 }
 
 /// The shift of every channel from `--skew` (summed when a channel is named twice), in
-/// samples; `None` when no channel moves. A name that matches no channel, a time that is not
-/// finite or a shift beyond [`MAX_SHIFT_SAMPLES`] is an error naming the option.
+/// samples, with a note in `cap` for each channel that moves; `None` when none does. A name
+/// that matches no channel, a time that is not finite or a shift beyond
+/// [`MAX_SHIFT_SAMPLES`] is an error naming the option.
 pub(crate) fn skews_of(
-    cap: &Capture,
+    cap: &mut Capture,
     opts: &ReadOptions,
 ) -> Result<Option<Vec<f64>>, CaptureError> {
     if opts.skew.is_empty() {
@@ -138,16 +140,12 @@ pub(crate) fn skews_of(
                 message: format!("--skew {name}={s}: expected a finite time"),
             });
         }
-        let k = super::channel::find_channel(cap, name).ok_or_else(|| {
-            let listed = super::channel::no_such_channel(cap, name).to_string();
-            let source = cap.source.display().to_string();
-            let what = listed
-                .strip_prefix(&source)
-                .map_or(listed.as_str(), |r| r.trim_start_matches(": "));
-            CaptureError::Invalid {
-                file: cap.source.clone(),
-                message: format!("--skew {name}: {what}"),
-            }
+        let k = find_channel(cap, name).ok_or_else(|| CaptureError::Invalid {
+            file: cap.source.clone(),
+            message: format!(
+                "--skew {name}: no channel '{name}'; the channels are: {}",
+                channels_listed(cap)
+            ),
         })?;
         seconds[k] += s;
     }
@@ -170,6 +168,17 @@ pub(crate) fn skews_of(
             });
         }
         shifts.push(shift);
+    }
+    for (ch, &shift) in cap.channels.iter().zip(&shifts) {
+        if shift != 0.0 {
+            let how = if shift > 0.0 { "earlier" } else { "later" };
+            cap.notes.push(format!(
+                "'{}' moved {how} by {:e} s ({} samples, --skew)",
+                ch.name,
+                sig(shift.abs() * dt),
+                sig(shift.abs())
+            ));
+        }
     }
     Ok(Some(shifts))
 }
