@@ -222,6 +222,7 @@ pub fn inspect_inputs(inputs: &[PathBuf], read: &ReadOptions) -> InspectDoc {
     let (files, mut errors) = collect_inputs(inputs);
     let results: Vec<_> = files
         .par_iter()
+        .with_max_len(1)
         .map(|f| (f, inspect_file(f, read)))
         .collect();
     let mut out = Vec::new();
@@ -435,6 +436,9 @@ pub fn measure_inputs_sketched(
     let (files, mut errors) = collect_inputs(inputs);
     let results: Vec<_> = files
         .par_iter()
+        // One file per job: with rayon's default splitting a core that finished its share
+        // sat idle while the other went on through a run of files it could not hand over.
+        .with_max_len(1)
         .map(|f| {
             // Checked between files; files under way stop at their next block.
             if settings.stopped() {
