@@ -76,6 +76,13 @@ pub(crate) struct Chunk {
 }
 
 impl Chunk {
+    /// The text from byte `start` of `data` on, as a chunk (text already read whole).
+    pub(crate) fn from_text(mut data: Vec<u8>, start: usize) -> Chunk {
+        data.drain(..start.min(data.len()));
+        let len = data.len();
+        Chunk { data, len }
+    }
+
     pub(crate) fn bytes(&self) -> &[u8] {
         self.data.get(..self.len).unwrap_or(&[])
     }
@@ -129,6 +136,17 @@ impl<R: ReadAt> ChunkReader<R> {
     /// goes on as without the length).
     pub(crate) fn set_length(&mut self, length: u64) {
         self.length = Some(length);
+    }
+
+    /// Reads nothing more: the caller holds the rest of the text.
+    pub(crate) fn finish(&mut self) {
+        self.done = true;
+    }
+
+    /// Reads on after [`ChunkReader::finish`], from where it stood.
+    #[cfg(test)]
+    pub(crate) fn resume(&mut self) {
+        self.done = false;
     }
 
     /// Sets the bytes read per chunk (at least 1; tests use tiny chunks to cut every line).

@@ -18,6 +18,7 @@ use std::path::Path;
 
 use super::cells::{trim_cell, CellError, Cells, Delim};
 use super::columns;
+use super::lines::CHUNK_BYTES;
 use super::{Capture, CaptureError, Channel, Format, ReadOptions};
 use layout::{locate_rows, pick_delimiter, Located};
 use preamble::read_preamble;
@@ -102,7 +103,7 @@ pub(crate) fn open(
     // stream's reads capped at it.
     let length = f.metadata().ok().filter(|m| m.is_file()).map(|m| m.len());
     let head_room = length.map_or(0, |n| usize::try_from(n).unwrap_or(usize::MAX));
-    let mut head = Vec::with_capacity(head_room.min(SNIFF_BYTES) + 1);
+    let mut head = Vec::with_capacity((head_room.min(SNIFF_BYTES) + 1).max(CHUNK_BYTES));
     (&mut f)
         .take(SNIFF_BYTES as u64 + 1)
         .read_to_end(&mut head)
@@ -333,7 +334,7 @@ pub(crate) fn open(
     };
 
     // Stream from the first data row.
-    let offset = lines[data_idx].offset as u64;
+    let offset = lines[data_idx].offset;
     let format = RowFormat {
         file: path.to_path_buf(),
         delim,
@@ -342,7 +343,10 @@ pub(crate) fn open(
         roles,
         factors,
     };
-    let stream = CsvStream::new(format, f, offset, data_line, time_check, length);
+    let mut stream = CsvStream::new(format, f, offset as u64, data_line, time_check, length);
+    if complete {
+        stream = stream.with_whole_text(head, offset);
+    }
     Ok((cap, stream, pre.record_length))
 }
 

@@ -124,9 +124,21 @@ impl CsvStream {
         }
     }
 
+    /// Streams the rows from the text already read: `text` is the whole file and the
+    /// rows start at byte `offset`. A short file sniffed whole is not read a second time.
+    pub(super) fn with_whole_text(mut self, text: Vec<u8>, offset: usize) -> Self {
+        self.source.finish();
+        self.ahead = Some((Chunk::from_text(text, offset), ChunkEnd::Last));
+        self
+    }
+
     /// Sets the bytes read per chunk (tests cut lines at every place with tiny chunks).
     #[cfg(test)]
     pub(crate) fn set_chunk_bytes(&mut self, n: usize) {
+        // A file sniffed whole is read again, in these chunks.
+        if self.ahead.take().is_some() {
+            self.source.resume();
+        }
         self.source.set_chunk_bytes(n);
     }
 
