@@ -13,6 +13,7 @@ pub mod event_fit;
 pub mod extraction;
 pub mod lm;
 pub mod parasitics;
+mod recurrence;
 pub mod ringfit;
 
 pub use clipped::PeakEstimate;

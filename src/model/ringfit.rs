@@ -16,6 +16,7 @@
 use serde::Serialize;
 
 use super::lm::{self, LmOptions};
+use super::recurrence::{fill_decay, fill_sin_cos, StepPlan};
 use super::ModelError;
 
 /// Starting values for [`fit_damped_sine`].
@@ -252,151 +253,36 @@ fn linear_part(
     omega: f64,
     c_fixed: Option<f64>,
 ) -> Option<([f64; 3], f64)> {
+    let plan = StepPlan::new(t);
     let mut trig = vec![(0.0, 0.0); t.len()];
-    fill_sin_cos(t, omega, &mut trig);
-    linear_part_trig(t, y, &trig, alpha, c_fixed)
-}
-
-/// Samples between direct evaluations in [`Stepper`]: the running products below lose
-/// about one rounding per step, so resynchronising every 64 keeps them within some 1e-14 of
-/// the direct values, far below what a scan for the starting point can notice.
-const RESYNC: usize = 64;
-
-/// Walks increasing times and notices runs of equal steps, where a value at `t + d` follows
-/// from the value at `t` by one multiplication (exp) or one rotation (sin, cos); samples
-/// left out of a fit break a run, and there the value is computed directly.
-struct Stepper {
-    prev_t: f64,
-    step: f64,
-    k: usize,
-}
-
-impl Stepper {
-    fn new() -> Self {
-        Stepper {
-            prev_t: f64::NAN,
-            step: f64::NAN,
-            k: 0,
-        }
-    }
-
-    /// `Some(true)` when `t` continues the run (use the recurrence), `Some(false)` when a
-    /// new step starts here (compute directly and take the new step's factor), `None` for a
-    /// direct value that keeps the step (resynchronisation, or the first sample).
-    fn advance(&mut self, t: f64) -> Option<bool> {
-        let d = t - self.prev_t;
-        self.prev_t = t;
-        let same = (d - self.step).abs() <= 1e-9 * self.step.abs();
-        self.k += 1;
-        if same {
-            if self.k.is_multiple_of(RESYNC) {
-                None
-            } else {
-                Some(true)
-            }
-        } else if d.is_finite() {
-            self.step = d;
-            Some(false)
-        } else {
-            None
-        }
-    }
-}
-
-/// `sin_cos(omega t)` for every `t` (increasing), by rotation along runs of equal steps.
-fn fill_sin_cos(t: &[f64], omega: f64, out: &mut [(f64, f64)]) {
-    let mut r = Rotation::new(omega);
-    for (&ti, o) in t.iter().zip(out.iter_mut()) {
-        *o = r.at(ti);
-    }
-}
-
-/// `sin_cos(omega t)` along increasing times, by rotation along runs of equal steps.
-struct Rotation {
-    st: Stepper,
-    omega: f64,
-    sc: (f64, f64),
-    step_sc: (f64, f64),
-}
-
-impl Rotation {
-    fn new(omega: f64) -> Self {
-        Rotation {
-            st: Stepper::new(),
-            omega,
-            sc: (0.0, 1.0),
-            step_sc: (0.0, 1.0),
-        }
-    }
-
-    fn at(&mut self, t: f64) -> (f64, f64) {
-        match self.st.advance(t) {
-            Some(true) => {
-                let ((s, c), (sd, cd)) = (self.sc, self.step_sc);
-                self.sc = (s * cd + c * sd, c * cd - s * sd);
-            }
-            Some(false) => {
-                self.sc = (self.omega * t).sin_cos();
-                self.step_sc = (self.omega * self.st.step).sin_cos();
-            }
-            None => self.sc = (self.omega * t).sin_cos(),
-        }
-        self.sc
-    }
-}
-
-/// `exp(-rate t)` along increasing times, by multiplication along runs of equal steps.
-struct Decay {
-    st: Stepper,
-    rate: f64,
-    e: f64,
-    factor: f64,
-}
-
-impl Decay {
-    fn new(rate: f64) -> Self {
-        Decay {
-            st: Stepper::new(),
-            rate,
-            e: 1.0,
-            factor: 1.0,
-        }
-    }
-
-    fn at(&mut self, t: f64) -> f64 {
-        match self.st.advance(t) {
-            Some(true) => self.e *= self.factor,
-            Some(false) => {
-                self.e = (-self.rate * t).exp();
-                self.factor = (-self.rate * self.st.step).exp();
-            }
-            None => self.e = (-self.rate * t).exp(),
-        }
-        self.e
-    }
+    fill_sin_cos(t, &plan, omega, &mut trig);
+    let mut decay = vec![0.0; t.len()];
+    linear_part_trig(t, y, &plan, &trig, &mut decay, alpha, c_fixed)
 }
 
 /// [`linear_part`] with `sin_cos(omega t)` already computed for every sample, so a scan
-/// over damping at one frequency pays for the trigonometry once; times must increase. The sum of squares comes
+/// over damping at one frequency pays for the trigonometry once; times must increase
+/// (`plan` is theirs) and `decay` is room for as many values. The sum of squares comes
 /// from the normal equations, `SSR = y'y - x'A'y` at the solution `x` (exact algebra; the
 /// rounding it loses is far below the differences a scan compares).
 fn linear_part_trig(
     t: &[f64],
     y: &[f64],
+    plan: &StepPlan,
     trig: &[(f64, f64)],
+    decay: &mut [f64],
     alpha: f64,
     c_fixed: Option<f64>,
 ) -> Option<([f64; 3], f64)> {
     let c0 = c_fixed.unwrap_or(0.0);
+    fill_decay(t, plan, alpha, decay);
     let mut ata = [0.0f64; 9];
     let mut aty = [0.0f64; 3];
     let mut yty = 0.0f64;
     if c_fixed.is_some() {
         // Two columns: the oscillation only.
         let (mut scc, mut scs, mut sss, mut syc, mut sys) = (0.0, 0.0, 0.0, 0.0, 0.0);
-        let mut decay = Decay::new(alpha);
-        for ((&ti, &yi), &(s, c)) in t.iter().zip(y).zip(trig) {
-            let e = decay.at(ti);
+        for ((&e, &yi), &(s, c)) in decay.iter().zip(y).zip(trig) {
             let (ec, es) = (e * c, e * s);
             let target = yi - c0;
             scc += ec * ec;
@@ -412,9 +298,7 @@ fn linear_part_trig(
     } else {
         let (mut scc, mut scs, mut sss, mut sc, mut ss, mut n1) = (0.0, 0.0, 0.0, 0.0, 0.0, 0.0);
         let (mut syc, mut sys, mut sy) = (0.0, 0.0, 0.0);
-        let mut decay = Decay::new(alpha);
-        for ((&ti, &yi), &(s, c)) in t.iter().zip(y).zip(trig) {
-            let e = decay.at(ti);
+        for ((&e, &yi), &(s, c)) in decay.iter().zip(y).zip(trig) {
             let (ec, es) = (e * c, e * s);
             scc += ec * ec;
             scs += ec * es;
@@ -490,13 +374,18 @@ pub fn fit_damped_sine(
     let scan_stride = m.div_ceil(scan_points).max(1);
     let ts_scan: Vec<f64> = ts.iter().step_by(scan_stride).copied().collect();
     let ys_scan: Vec<f64> = ys.iter().step_by(scan_stride).copied().collect();
+    let scan_plan = StepPlan::new(&ts_scan);
     let mut trig = vec![(0.0, 0.0); ts_scan.len()];
+    let mut decay = vec![0.0; ts_scan.len()];
     for g in 0..=n_grid {
         let w = 0.55 * (1.8f64 / 0.55).powf(g as f64 / n_grid as f64);
-        fill_sin_cos(&ts_scan, w, &mut trig);
+        fill_sin_cos(&ts_scan, &scan_plan, w, &mut trig);
         for &z in &zetas {
             let a = z * w / (1.0 - z * z).sqrt();
-            if let Some((coef, ssr)) = linear_part_trig(&ts_scan, &ys_scan, &trig, a, c_fixed) {
+            let linear = linear_part_trig(
+                &ts_scan, &ys_scan, &scan_plan, &trig, &mut decay, a, c_fixed,
+            );
+            if let Some((coef, ssr)) = linear {
                 if best.as_ref().is_none_or(|b| ssr < b.3) {
                     best = Some((a, w, coef, ssr));
                 }
@@ -508,17 +397,20 @@ pub fn fit_damped_sine(
     if start.fit_offset {
         p0.push(coef0[2]);
     }
+    // Running products along the (mostly uniform) times: within about 1e-14 of the
+    // direct values, far inside what the fit resolves.
+    let plan = StepPlan::new(&ts);
+    let mut decay = vec![0.0; m];
+    let mut trig = vec![(0.0, 0.0); m];
     let fit = lm::minimize(&p0, m, &LmOptions::default(), |p, r, jac| {
         let c0 = if p.len() > 4 { p[4] } else { 0.0 };
         let mut jac = jac;
-        // Running products along the (mostly uniform) times: within about 1e-14 of the
-        // direct values, far inside what the fit resolves.
-        let mut decay = Decay::new(p[2]);
-        let mut rotation = Rotation::new(p[3]);
+        fill_decay(&ts, &plan, p[2], &mut decay);
+        fill_sin_cos(&ts, &plan, p[3], &mut trig);
         for i in 0..m {
             let t = ts[i];
-            let e = decay.at(t);
-            let (s, c) = rotation.at(t);
+            let e = decay[i];
+            let (s, c) = trig[i];
             let osc = p[0] * c + p[1] * s;
             r[i] = c0 + e * osc - ys[i];
             if let Some(j) = jac.as_deref_mut() {
@@ -759,12 +651,14 @@ pub fn fit_exponential(
     if fit_offset {
         p0.push(0.0);
     }
+    let plan = StepPlan::new(&ts);
+    let mut decay = vec![0.0; m];
     let fit = lm::minimize(&p0, m, &LmOptions::default(), |p, r, jac| {
         let c0 = if p.len() > 2 { p[2] } else { 0.0 };
         let mut jac = jac;
-        let mut decay = Decay::new(p[1]);
+        fill_decay(&ts, &plan, p[1], &mut decay);
         for i in 0..m {
-            let e = decay.at(ts[i]);
+            let e = decay[i];
             r[i] = c0 + p[0] * e - ys[i];
             if let Some(j) = jac.as_deref_mut() {
                 let row = &mut j[i * p.len()..(i + 1) * p.len()];
@@ -990,31 +884,6 @@ mod lm_alone {
             let ratio = (r.params[3] * w0 / omega).abs();
             assert!((ratio - 1.0).abs() < 1e-6, "start x{f}: ratio {ratio}");
             assert!(r.n_evals < 150, "start x{f}: {} evaluations", r.n_evals);
-        }
-    }
-}
-#[cfg(test)]
-mod recurrences {
-    use super::*;
-
-    /// The running products agree with direct evaluation (the reference) within 1e-12,
-    /// across a gap in the times (a left-out stretch) and over many resynchronisations.
-    #[test]
-    fn running_products_match_direct_values() {
-        let mut t: Vec<f64> = (0..700).map(|i| i as f64 * 0.013).collect();
-        t.extend((900..1500).map(|i| i as f64 * 0.013));
-        let omega = 3.7;
-        let mut trig = vec![(0.0, 0.0); t.len()];
-        fill_sin_cos(&t, omega, &mut trig);
-        let mut d = Decay::new(0.2);
-        for (&ti, &(s, c)) in t.iter().zip(&trig) {
-            let (s0, c0) = (omega * ti).sin_cos();
-            assert!((s - s0).abs() < 1e-12 && (c - c0).abs() < 1e-12, "t {ti}");
-            let e0 = (-0.2 * ti).exp();
-            assert!(
-                (d.at(ti) - e0).abs() < 1e-12 * e0.max(1e-300) + 1e-300,
-                "t {ti}"
-            );
         }
     }
 }
