@@ -86,6 +86,11 @@ pub(super) fn split_lines<'a>(
     latin1: bool,
 ) -> Result<Vec<SniffLine<'a>>, CaptureError> {
     let mut out = Vec::new();
+    // The valid UTF-8 at the start, checked once: its lines need no check of their own.
+    let valid = match std::str::from_utf8(head) {
+        Ok(text) => text,
+        Err(e) => std::str::from_utf8(head.get(..e.valid_up_to()).unwrap_or(&[])).unwrap_or(""),
+    };
     // A UTF-8 byte-order mark (Windows editors write one) is not part of the first cell.
     let mut start = if head.starts_with(UTF8_BOM) { 3 } else { 0 };
     let mut no = 1usize;
@@ -112,10 +117,13 @@ pub(super) fn split_lines<'a>(
         if bytes.last() == Some(&b'\r') {
             bytes = &bytes[..bytes.len() - 1];
         }
-        let text = match std::str::from_utf8(bytes) {
-            Ok(s) => Cow::Borrowed(s),
-            Err(_) if latin1 => Cow::Owned(bytes.iter().map(|&b| b as char).collect()),
-            Err(_) => Cow::Owned(String::from_utf8_lossy(bytes).into_owned()),
+        let text = match valid.get(start..start + bytes.len()) {
+            Some(s) => Cow::Borrowed(s),
+            None => match std::str::from_utf8(bytes) {
+                Ok(s) => Cow::Borrowed(s),
+                Err(_) if latin1 => Cow::Owned(bytes.iter().map(|&b| b as char).collect()),
+                Err(_) => Cow::Owned(String::from_utf8_lossy(bytes).into_owned()),
+            },
         };
         out.push(SniffLine {
             no,

@@ -103,9 +103,21 @@ fn bare_time_cell(
                 number.decimals as usize,
             ));
         } else {
-            let len = memchr::memchr(d, rest).unwrap_or(rest.len());
-            let cell = rest.get(..len)?;
-            if trim_cell(cell).is_empty() || memchr::memchr(b'"', cell).is_some() {
+            // One look at each byte of the (short) cell: where it ends, and that it holds
+            // no quote and more than blanks. Two searches cost more than the cell.
+            let mut len = 0;
+            let mut filled = false;
+            for &b in rest {
+                if b == d {
+                    break;
+                }
+                if b == b'"' {
+                    return None;
+                }
+                filled |= !b.is_ascii_whitespace();
+                len += 1;
+            }
+            if !filled {
                 return None;
             }
             at += len;
