@@ -69,6 +69,22 @@ fn from_table_refuses_options_that_act_on_samples() {
         .stderr(predicate::str::contains("--rating").count(1));
 }
 
+
+/// An option given is refused however its value is written, even when it names the
+/// default: `--settle-band 5%` (the default band, written with its percent sign) and
+/// `--polarity auto` once slipped through because they were compared with the defaults'
+/// spellings.
+#[test]
+fn from_table_refuses_options_given_at_their_defaults() {
+    kickscan()
+        .args(["measure", "--from-table", "events.parquet"])
+        .args(["--settle-band", "5%", "--polarity", "auto"])
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains(
+            "--from-table: --polarity, --settle-band cannot apply to event tables",
+        ));
+}
 #[test]
 fn compare_needs_two_labels() {
     kickscan()

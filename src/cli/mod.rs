@@ -238,9 +238,10 @@ pub struct AnalysisArgs {
     /// Where the current probe sits; decides which energies are reported.
     #[arg(long, value_enum, default_value_t = ThroughArg::Switch)]
     pub current_through: ThroughArg,
-    /// Spike direction: up for a low-side switch, down for a high-side switch.
-    #[arg(long, value_enum, default_value_t = PolarityArg::Auto)]
-    pub polarity: PolarityArg,
+    /// Spike direction: up for a low-side switch, down for a high-side switch, auto to
+    /// judge each capture by its levels [default: auto].
+    #[arg(long, value_enum)]
+    pub polarity: Option<PolarityArg>,
     /// Supply voltage (e.g. 24V).
     #[arg(long, value_name = "V")]
     pub supply: Option<String>,
@@ -259,9 +260,9 @@ pub struct AnalysisArgs {
     /// Longest event window kept (e.g. 5ms); longer events are marked truncated.
     #[arg(long, value_name = "S")]
     pub max_window: Option<String>,
-    /// Settle band in percent of the step.
-    #[arg(long, value_name = "PCT", default_value = SETTLE_BAND_DEFAULT)]
-    pub settle_band: String,
+    /// Settle band in percent of the step (e.g. 2 or 2%) [default: 5].
+    #[arg(long, value_name = "PCT")]
+    pub settle_band: Option<String>,
     /// On-state dwell before an edge counts (derived from the data by default).
     #[arg(long, value_name = "S")]
     pub min_on_time: Option<String>,
@@ -289,7 +290,7 @@ pub struct AnalysisArgs {
 }
 
 /// `--settle-band` when not given, in percent of the step.
-const SETTLE_BAND_DEFAULT: &str = "5";
+const SETTLE_BAND_DEFAULT_PCT: f64 = 5.0;
 
 fn opt_si(name: &str, v: &Option<String>, unit: &str) -> Result<Option<f64>> {
     v.as_deref()
@@ -364,13 +365,13 @@ impl AnalysisArgs {
                 "--current-through",
                 !matches!(a.current_through, ThroughArg::Switch),
             ),
-            ("--polarity", !matches!(a.polarity, PolarityArg::Auto)),
+            ("--polarity", a.polarity.is_some()),
             ("--supply", a.supply.is_some()),
             ("--inductance", a.inductance.is_some()),
             ("--coil-current", a.coil_current.is_some()),
             ("--switching-rate", a.switching_rate.is_some()),
             ("--max-window", a.max_window.is_some()),
-            ("--settle-band", a.settle_band != SETTLE_BAND_DEFAULT),
+            ("--settle-band", a.settle_band.is_some()),
             ("--min-on-time", a.min_on_time.is_some()),
             ("--label", a.label.is_some()),
             ("--no-fit", a.no_fit),
@@ -381,14 +382,17 @@ impl AnalysisArgs {
     }
 
     pub fn to_settings(&self, read: ReadOptions) -> Result<Settings> {
-        let settle_band_pct = parse_si(&self.settle_band, Some("%"))
-            .or_else(|_| parse_si(self.settle_band.trim_end_matches('%'), None))
-            .context("--settle-band")?;
+        let settle_band_pct = match &self.settle_band {
+            None => SETTLE_BAND_DEFAULT_PCT,
+            Some(band) => parse_si(band, Some("%"))
+                .or_else(|_| parse_si(band.trim_end_matches('%'), None))
+                .context("--settle-band")?,
+        };
         if !(settle_band_pct > 0.0 && settle_band_pct < 100.0) {
             bail!("--settle-band: expected a percentage between 0 and 100");
         }
         let measure = MeasureOptions {
-            polarity: match self.polarity {
+            polarity: match self.polarity.unwrap_or(PolarityArg::Auto) {
                 PolarityArg::Auto => PolarityChoice::Auto,
                 PolarityArg::Up => PolarityChoice::Up,
                 PolarityArg::Down => PolarityChoice::Down,
