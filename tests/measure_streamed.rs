@@ -119,21 +119,30 @@ fn a_current_channel_streams_beside_the_voltage() {
 
 /// `--skew` moves channels while they are read, in blocks: a streamed capture with the
 /// voltage late by 1.5 samples and the current early by 2.25 gives what it gives whole
-/// (before, a skew made the capture be read whole whatever its length).
+/// (before, a skew made the capture be read whole whatever its length). A WAV, whose
+/// later passes read the file itself again rather than a spill, is moved the same way on
+/// every read: late by 2.5 samples of its 1 MS/s.
 #[test]
 fn skewed_channels_stream_as_they_read_whole() {
-    let path = sample("coil-current/zener-shot-01.csv");
-    let read = kickscan::capture::ReadOptions {
-        skew: vec![("v_sw".into(), 1.5e-6), ("i_coil".into(), -2.25e-6)],
-        ..Default::default()
-    };
-    both(
-        &path,
-        Settings {
-            read,
-            ..Settings::default()
-        },
-    );
+    for (file, skew) in [
+        (
+            "coil-current/zener-shot-01.csv",
+            vec![("v_sw".to_string(), 1.5e-6), ("i_coil".to_string(), -2.25e-6)],
+        ),
+        ("zener/shot-03.wav", vec![("v_sw".to_string(), 2.5e-6)]),
+    ] {
+        let read = kickscan::capture::ReadOptions {
+            skew,
+            ..Default::default()
+        };
+        both(
+            &sample(file),
+            Settings {
+                read,
+                ..Settings::default()
+            },
+        );
+    }
 }
 
 /// A mono 16-bit WAV of `n` samples at 10 MS/s (invented): on at code 0 for 20 000 samples,
