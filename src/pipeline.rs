@@ -13,6 +13,7 @@ use crate::document::{
 use crate::measure::{self, Event, MeasureOptions, Trace};
 use crate::report::TraceSketch;
 
+mod spill;
 mod streamed;
 pub use streamed::IN_MEMORY_SAMPLES;
 

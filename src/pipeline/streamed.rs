@@ -4,15 +4,15 @@
 //! The file is read block by block. Up to [`IN_MEMORY_SAMPLES`] samples per channel it is
 //! kept whole and measured as before. Beyond that only the switch-node and current channels
 //! go on: a [`Surveyor`] looks at every sample once, and the later passes of
-//! [`measure_stream`] read the samples again, from a spill file of plain f64 values for
-//! delimited text (parsing text twice would cost more than writing and reading the
-//! numbers), or from the file itself for WAV and raw dumps (decoding binary samples again
-//! is as cheap as reading a spill).
+//! [`measure_stream`] read the samples again, from a spill file for delimited text
+//! (parsing text twice would cost more than writing and reading the numbers; the spill
+//! keeps most samples as short integer codes, see [`super::spill`]), or from the file
+//! itself for WAV and raw dumps (decoding binary samples again is as cheap as reading a
+//! spill).
 
-use std::fs::File;
-use std::io::{Read, Seek, SeekFrom, Write};
 use std::path::Path;
 
+use super::spill::{SpillReader, SpillWriter, RECORD_SAMPLES};
 use super::{capture_doc, fit_plot, model_context, pick_channels, Settings, SKETCH_POINTS};
 use crate::capture::{self, AdcRange, Block, BlockReader, Capture, Channel, Format};
 use crate::document::CaptureDoc;
@@ -97,34 +97,18 @@ fn pick_block(
 
 /// What to do when the temporary copy cannot be made, said with the error.
 const SPILL_ADVICE: &str =
-    "it takes 8 bytes per sample of each channel measured; point TMPDIR at a folder with room";
+    "it takes 2 to 8 bytes per sample of each channel measured; point TMPDIR at a folder with room";
 
-/// Plain f64 values (in the machine's byte order: the file lives and dies with this
-/// process) written to an unnamed temporary file and read back.
-struct Spill {
-    file: File,
-}
-
-impl Spill {
-    fn new(path: &Path) -> Result<Spill, String> {
-        let file = tempfile::tempfile().map_err(|e| {
-            format!(
-                "{}: the capture is long and is measured from a temporary copy of its samples, which could not be created in {}: {e} ({SPILL_ADVICE})",
-                path.display(),
-                std::env::temp_dir().display()
-            )
-        })?;
-        Ok(Spill { file })
-    }
-
-    /// Writes a block (blocks are long: no further buffering).
-    fn write(&mut self, v: &[f64]) -> std::io::Result<()> {
-        self.file.write_all(bytemuck::cast_slice(v))
-    }
-
-    fn finish(self) -> std::io::Result<File> {
-        Ok(self.file)
-    }
+/// A new spill file, or an error saying where it could not be made and what to do.
+fn new_spill(path: &Path) -> Result<SpillWriter, String> {
+    let file = tempfile::tempfile().map_err(|e| {
+        format!(
+            "{}: the capture is long and is measured from a temporary copy of its samples, which could not be created in {}: {e} ({SPILL_ADVICE})",
+            path.display(),
+            std::env::temp_dir().display()
+        )
+    })?;
+    Ok(SpillWriter::new(file))
 }
 
 /// Where the later passes read the samples from.
@@ -132,8 +116,8 @@ enum Source<'a> {
     /// Spill files of the voltage and (if any) current samples.
     Spilled {
         path: &'a Path,
-        v: File,
-        i: Option<File>,
+        v: SpillReader,
+        i: Option<SpillReader>,
     },
     /// The capture file itself, opened again for each pass.
     Reopened {
@@ -154,20 +138,27 @@ impl Replay for Source<'_> {
                         path.display()
                     )
                 };
-                v.seek(SeekFrom::Start(0)).map_err(fail)?;
-                if let Some(f) = i.as_mut() {
-                    f.seek(SeekFrom::Start(0)).map_err(fail)?;
+                v.rewind().map_err(fail)?;
+                if let Some(r) = i.as_mut() {
+                    r.rewind().map_err(fail)?;
                 }
                 let mut block = Samples {
-                    v: Vec::with_capacity(BLOCK),
-                    i: i.is_some().then(|| Vec::with_capacity(BLOCK)),
+                    v: Vec::with_capacity(BLOCK + RECORD_SAMPLES),
+                    i: i.is_some().then(|| Vec::with_capacity(BLOCK + RECORD_SAMPLES)),
                 };
                 read_in_turn(
                     &mut block,
                     |b: &mut &mut Samples| {
-                        let n = read_values(v, BLOCK, &mut b.v).map_err(fail)?;
-                        if let (Some(f), Some(ib), true) = (i.as_mut(), b.i.as_mut(), n > 0) {
-                            read_values(f, n, ib).map_err(fail)?;
+                        let n = v.read_into(&mut b.v, BLOCK).map_err(fail)?;
+                        if let (Some(r), Some(ib)) = (i.as_mut(), b.i.as_mut()) {
+                            // Both copies were written in the same blocks, so their
+                            // records end at the same samples.
+                            if r.read_into(ib, n).map_err(fail)? != n {
+                                return Err(fail(std::io::Error::new(
+                                    std::io::ErrorKind::InvalidData,
+                                    "the current's copy is out of step with the voltage's",
+                                )));
+                            }
                         }
                         Ok(n > 0)
                     },
@@ -221,24 +212,6 @@ fn read_in_turn<B>(
         }
     }
     Ok(true)
-}
-
-/// Fills `out` with up to `max` values read from `f`; returns how many. Whatever `out`
-/// held is overwritten: resizing zeroes only its length beyond what it held, and the
-/// vectors the scan hands back keep theirs (zeroing a block's worth before every read was
-/// 6 % of the scanning thread's profile in a long CSV's second pass).
-fn read_values(f: &mut File, max: usize, out: &mut Vec<f64>) -> std::io::Result<usize> {
-    out.resize(max, 0.0);
-    let bytes: &mut [u8] = bytemuck::cast_slice_mut(out.as_mut_slice());
-    let mut got = 0;
-    while got < bytes.len() {
-        match f.read(&mut bytes[got..])? {
-            0 => break,
-            k => got += k,
-        }
-    }
-    out.truncate(got / 8);
-    Ok(out.len())
 }
 
 /// Fits and plots made while the final pass has each window at hand.
@@ -338,9 +311,9 @@ fn measure_streaming(
     let signal_name = signal.name.clone();
     let current_name = current.as_ref().map(|c| c.name.clone());
     if spill {
-        spill_v = Some(Spill::new(path)?);
+        spill_v = Some(new_spill(path)?);
         if current.is_some() {
-            spill_i = Some(Spill::new(path)?);
+            spill_i = Some(new_spill(path)?);
         }
     }
     let mut feed = |sig: &Channel, cur: Option<&Channel>| -> Result<(), String> {
@@ -397,7 +370,7 @@ fn measure_streaming(
         Some(s) => Source::Spilled {
             path,
             v: s.finish().map_err(io)?,
-            i: spill_i.map(Spill::finish).transpose().map_err(io)?,
+            i: spill_i.map(SpillWriter::finish).transpose().map_err(io)?,
         },
         None => Source::Reopened {
             path,
@@ -479,7 +452,7 @@ mod tests {
 
     /// A spill of `n` voltages `k` and currents `-k` (k = 0, 1, ...).
     fn spilled(path: &Path, n: usize) -> Source<'_> {
-        let (mut v, mut i) = (Spill::new(path).unwrap(), Spill::new(path).unwrap());
+        let (mut v, mut i) = (new_spill(path).unwrap(), new_spill(path).unwrap());
         let all: Vec<f64> = (0..n).map(|k| k as f64).collect();
         let neg: Vec<f64> = all.iter().map(|x| -x).collect();
         for (a, b) in all.chunks(10_000).zip(neg.chunks(10_000)) {
