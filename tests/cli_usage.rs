@@ -69,7 +69,6 @@ fn from_table_refuses_options_that_act_on_samples() {
         .stderr(predicate::str::contains("--rating").count(1));
 }
 
-
 /// An option given is refused however its value is written, even when it names the
 /// default: `--settle-band 5%` (the default band, written with its percent sign) and
 /// `--polarity auto` once slipped through because they were compared with the defaults'

@@ -127,7 +127,10 @@ fn skewed_channels_stream_as_they_read_whole() {
     for (file, skew) in [
         (
             "coil-current/zener-shot-01.csv",
-            vec![("v_sw".to_string(), 1.5e-6), ("i_coil".to_string(), -2.25e-6)],
+            vec![
+                ("v_sw".to_string(), 1.5e-6),
+                ("i_coil".to_string(), -2.25e-6),
+            ],
         ),
         ("zener/shot-03.wav", vec![("v_sw".to_string(), 2.5e-6)]),
     ] {

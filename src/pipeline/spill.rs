@@ -321,7 +321,11 @@ mod tests {
     fn printed_decimals_come_back_exactly_and_small() {
         let v: Vec<f64> = (0..20_000)
             .map(|k| {
-                let x = if k == 10_000 { 251.9608 } else { (k % 50) as f64 * 0.0392 - 1.5 };
+                let x = if k == 10_000 {
+                    251.9608
+                } else {
+                    (k % 50) as f64 * 0.0392 - 1.5
+                };
                 format!("{x:.4}").parse::<f64>().unwrap()
             })
             .collect();

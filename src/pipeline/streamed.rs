@@ -144,7 +144,8 @@ impl Replay for Source<'_> {
                 }
                 let mut block = Samples {
                     v: Vec::with_capacity(BLOCK + RECORD_SAMPLES),
-                    i: i.is_some().then(|| Vec::with_capacity(BLOCK + RECORD_SAMPLES)),
+                    i: i.is_some()
+                        .then(|| Vec::with_capacity(BLOCK + RECORD_SAMPLES)),
                 };
                 read_in_turn(
                     &mut block,
