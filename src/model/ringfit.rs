@@ -257,7 +257,35 @@ fn linear_part(
     let mut trig = vec![(0.0, 0.0); t.len()];
     fill_sin_cos(t, &plan, omega, &mut trig);
     let mut decay = vec![0.0; t.len()];
-    linear_part_trig(t, y, &plan, &trig, &mut decay, alpha, c_fixed)
+    let targets = Targets::of(y, c_fixed);
+    linear_part_trig(t, &targets, &plan, &trig, &mut decay, alpha, c_fixed)
+}
+
+/// The samples a linear part is fitted to, with the sums over them alone that every
+/// [`linear_part_trig`] of a scan needs: taken once per fit rather than once per frequency
+/// and damping tried (the same additions in the same order, so the same values).
+struct Targets<'a> {
+    y: &'a [f64],
+    /// Sum of the targets (the samples less a fixed offset).
+    sum: f64,
+    /// Sum of their squares.
+    sum_sq: f64,
+    /// Their count.
+    n: f64,
+}
+
+impl Targets<'_> {
+    fn of(y: &[f64], c_fixed: Option<f64>) -> Targets<'_> {
+        let c0 = c_fixed.unwrap_or(0.0);
+        let (mut sum, mut sum_sq, mut n) = (0.0, 0.0, 0.0);
+        for &yi in y {
+            let target = if c_fixed.is_some() { yi - c0 } else { yi };
+            sum += target;
+            sum_sq += target * target;
+            n += 1.0;
+        }
+        Targets { y, sum, sum_sq, n }
+    }
 }
 
 /// [`linear_part`] with `sin_cos(omega t)` already computed for every sample, so a scan
@@ -267,18 +295,19 @@ fn linear_part(
 /// rounding it loses is far below the differences a scan compares).
 fn linear_part_trig(
     t: &[f64],
-    y: &[f64],
+    targets: &Targets,
     plan: &StepPlan,
     trig: &[(f64, f64)],
     decay: &mut [f64],
     alpha: f64,
     c_fixed: Option<f64>,
 ) -> Option<([f64; 3], f64)> {
+    let y = targets.y;
     let c0 = c_fixed.unwrap_or(0.0);
     fill_decay(t, plan, alpha, decay);
     let mut ata = [0.0f64; 9];
     let mut aty = [0.0f64; 3];
-    let mut yty = 0.0f64;
+    let yty = targets.sum_sq;
     if c_fixed.is_some() {
         // Two columns: the oscillation only.
         let (mut scc, mut scs, mut sss, mut syc, mut sys) = (0.0, 0.0, 0.0, 0.0, 0.0);
@@ -290,14 +319,13 @@ fn linear_part_trig(
             sss += es * es;
             syc += ec * target;
             sys += es * target;
-            yty += target * target;
         }
         ata[..4].copy_from_slice(&[scc, scs, scs, sss]);
         aty[0] = syc;
         aty[1] = sys;
     } else {
-        let (mut scc, mut scs, mut sss, mut sc, mut ss, mut n1) = (0.0, 0.0, 0.0, 0.0, 0.0, 0.0);
-        let (mut syc, mut sys, mut sy) = (0.0, 0.0, 0.0);
+        let (mut scc, mut scs, mut sss, mut sc, mut ss) = (0.0, 0.0, 0.0, 0.0, 0.0);
+        let (mut syc, mut sys) = (0.0, 0.0);
         for ((&e, &yi), &(s, c)) in decay.iter().zip(y).zip(trig) {
             let (ec, es) = (e * c, e * s);
             scc += ec * ec;
@@ -305,14 +333,11 @@ fn linear_part_trig(
             sss += es * es;
             sc += ec;
             ss += es;
-            n1 += 1.0;
             syc += ec * yi;
             sys += es * yi;
-            sy += yi;
-            yty += yi * yi;
         }
-        ata = [scc, scs, sc, scs, sss, ss, sc, ss, n1];
-        aty = [syc, sys, sy];
+        ata = [scc, scs, sc, scs, sss, ss, sc, ss, targets.n];
+        aty = [syc, sys, targets.sum];
     }
     let k = if c_fixed.is_some() { 2 } else { 3 };
     let mut x = aty;
@@ -375,6 +400,7 @@ pub fn fit_damped_sine(
     let ts_scan: Vec<f64> = ts.iter().step_by(scan_stride).copied().collect();
     let ys_scan: Vec<f64> = ys.iter().step_by(scan_stride).copied().collect();
     let scan_plan = StepPlan::new(&ts_scan);
+    let scan_targets = Targets::of(&ys_scan, c_fixed);
     let mut trig = vec![(0.0, 0.0); ts_scan.len()];
     let mut decay = vec![0.0; ts_scan.len()];
     for g in 0..=n_grid {
@@ -383,7 +409,13 @@ pub fn fit_damped_sine(
         for &z in &zetas {
             let a = z * w / (1.0 - z * z).sqrt();
             let linear = linear_part_trig(
-                &ts_scan, &ys_scan, &scan_plan, &trig, &mut decay, a, c_fixed,
+                &ts_scan,
+                &scan_targets,
+                &scan_plan,
+                &trig,
+                &mut decay,
+                a,
+                c_fixed,
             );
             if let Some((coef, ssr)) = linear {
                 if best.as_ref().is_none_or(|b| ssr < b.3) {
