@@ -364,6 +364,27 @@ mod tests {
             prop_assert_eq!(bits(&back), bits(&v));
         }
 
+        /// Stretches of different resolutions, jumps and values with no code, in one copy:
+        /// records change kind and places from one to the next and still come back.
+        #[test]
+        fn mixed_stretches_come_back(
+            parts in proptest::collection::vec(
+                (0usize..12, -3_000_000_000i64..3_000_000_000, 1usize..6000, any::<u64>()),
+                1..6,
+            ),
+        ) {
+            let mut v = Vec::new();
+            for (places, start, len, odd) in parts {
+                for k in 0..len as i64 {
+                    let w = start + (k * 7919) % 40_000 - 20_000;
+                    v.push(format!("{w}e-{places}").parse::<f64>().unwrap());
+                }
+                v.push(f64::from_bits(odd));
+            }
+            let (back, _) = round_trip(&v);
+            prop_assert_eq!(bits(&back), bits(&v));
+        }
+
         /// Decimal text of any resolution and size comes back as it was parsed.
         #[test]
         fn parsed_decimals_come_back(
