@@ -10,11 +10,24 @@ use std::path::{Path, PathBuf};
 use kickscan::capture::{read_capture, RawKind, ReadOptions};
 use kickscan::pipeline::{measure_file, Settings, METRICS};
 
-/// A scratch folder per process (fuzzing runs one process per job).
+/// A scratch folder per process and thread (fuzzing runs one process per job; the corpus
+/// replay may run its tests as threads of one process).
+fn scratch_path() -> PathBuf {
+    let thread = format!("{:?}", std::thread::current().id());
+    let thread: String = thread.chars().filter(char::is_ascii_digit).collect();
+    std::env::temp_dir().join(format!("kickscan-fuzz-{}-{thread}", std::process::id()))
+}
+
 fn scratch() -> PathBuf {
-    let dir = std::env::temp_dir().join(format!("kickscan-fuzz-{}", std::process::id()));
+    let dir = scratch_path();
     let _ = std::fs::create_dir_all(&dir);
     dir
+}
+
+/// Removes this thread's scratch folder (the corpus replay calls it when done, so test
+/// runs leave nothing in the temporary folder).
+pub fn remove_scratch() {
+    let _ = std::fs::remove_dir_all(scratch_path());
 }
 
 fn write(name: &str, bytes: &[u8]) -> PathBuf {

@@ -19,6 +19,7 @@ fn replay(target: &str, run: fn(&[u8])) {
         run(&bytes);
         n += 1;
     }
+    harness::remove_scratch();
     assert!(n > 0, "{}: empty corpus", dir.display());
 }
 
@@ -57,4 +58,5 @@ fn the_measure_seed_reaches_the_measurement() {
         std::fs::read(Path::new(env!("CARGO_MANIFEST_DIR")).join("fuzz/corpus/measure/two-events"))
             .unwrap();
     assert_eq!(harness::measure(&bytes), 2);
+    harness::remove_scratch();
 }
