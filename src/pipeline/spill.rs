@@ -263,10 +263,17 @@ impl SpillReader {
     /// Appends the next record's samples to `out`; false at the end of the copy.
     fn next_record(&mut self, out: &mut Vec<f64>) -> std::io::Result<bool> {
         let mut header = [0u8; HEADER_BYTES];
-        match self.file.read_exact(&mut header) {
-            Ok(()) => {}
-            Err(e) if e.kind() == std::io::ErrorKind::UnexpectedEof => return Ok(false),
-            Err(e) => return Err(e),
+        // The end of the copy is the end of a record; a header cut short is damage, not
+        // an end (the samples after it would be silently lost).
+        let mut got = 0;
+        while got < HEADER_BYTES {
+            match self.file.read(&mut header[got..]) {
+                Ok(0) if got == 0 => return Ok(false),
+                Ok(0) => return Err(std::io::ErrorKind::UnexpectedEof.into()),
+                Ok(k) => got += k,
+                Err(e) if e.kind() == std::io::ErrorKind::Interrupted => {}
+                Err(e) => return Err(e),
+            }
         }
         let bad = || std::io::Error::new(std::io::ErrorKind::InvalidData, "damaged record");
         let kind = Kind::from_byte(header[0]).ok_or_else(bad)?;
@@ -353,6 +360,22 @@ mod tests {
         ];
         let (back, _) = round_trip(&v);
         assert_eq!(bits(&back), bits(&v));
+    }
+
+    /// A copy cut inside a record's header or payload is an error, not a shorter record.
+    #[test]
+    fn a_copy_cut_short_is_an_error() {
+        let v: Vec<f64> = (0..100).map(|k| k as f64 * 0.5).collect();
+        let mut w = SpillWriter::new(tempfile::tempfile().unwrap());
+        w.write(&v).unwrap();
+        let full = w.bytes_written();
+        let mut r = w.finish().unwrap();
+        for cut in [5, HEADER_BYTES as u64 + 3] {
+            r.file.get_mut().set_len(cut.min(full - 1)).unwrap();
+            r.rewind().unwrap();
+            let mut out = Vec::new();
+            assert!(r.read_into(&mut out, 10).is_err(), "cut at {cut}");
+        }
     }
 
     proptest! {
