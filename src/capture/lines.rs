@@ -72,19 +72,26 @@ pub(crate) enum ChunkEnd {
 #[derive(Debug, Default)]
 pub(crate) struct Chunk {
     data: Vec<u8>,
+    /// Where the text starts in `data`: after the preamble of a file read whole, which is
+    /// skipped, not moved (moving the rest of a short file's text cost as much as reading
+    /// its header).
+    start: usize,
     len: usize,
 }
 
 impl Chunk {
     /// The text from byte `start` of `data` on, as a chunk (text already read whole).
-    pub(crate) fn from_text(mut data: Vec<u8>, start: usize) -> Chunk {
-        data.drain(..start.min(data.len()));
+    pub(crate) fn from_text(data: Vec<u8>, start: usize) -> Chunk {
         let len = data.len();
-        Chunk { data, len }
+        Chunk {
+            data,
+            start: start.min(len),
+            len,
+        }
     }
 
     pub(crate) fn bytes(&self) -> &[u8] {
-        self.data.get(..self.len).unwrap_or(&[])
+        self.data.get(self.start..self.len).unwrap_or(&[])
     }
 
     /// Room for `n` more bytes after the text, returned for filling.
@@ -159,6 +166,7 @@ impl<R: ReadAt> ChunkReader<R> {
     /// that many, more when a line crosses the mark, never more than one line beyond
     /// `MAX_LINE_BYTES`. An empty chunk with [`ChunkEnd::Last`] is the end of the text.
     pub(crate) fn read_chunk(&mut self, chunk: &mut Chunk) -> ChunkEnd {
+        chunk.start = 0;
         chunk.len = 0;
         if self.done {
             return ChunkEnd::Last;

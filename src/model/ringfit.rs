@@ -436,23 +436,33 @@ pub fn fit_damped_sine(
     let mut trig = vec![(0.0, 0.0); m];
     let fit = lm::minimize(&p0, m, &LmOptions::default(), |p, r, jac| {
         let c0 = if p.len() > 4 { p[4] } else { 0.0 };
-        let mut jac = jac;
         fill_decay(&ts, &plan, p[2], &mut decay);
         fill_sin_cos(&ts, &plan, p[3], &mut trig);
-        for i in 0..m {
-            let t = ts[i];
-            let e = decay[i];
-            let (s, c) = trig[i];
-            let osc = p[0] * c + p[1] * s;
-            r[i] = c0 + e * osc - ys[i];
-            if let Some(j) = jac.as_deref_mut() {
-                let row = &mut j[i * p.len()..(i + 1) * p.len()];
-                row[0] = e * c;
-                row[1] = e * s;
-                row[2] = -t * e * osc;
-                row[3] = e * t * (-p[0] * s + p[1] * c);
-                if p.len() > 4 {
-                    row[4] = 1.0;
+        let (a, b) = (p[0], p[1]);
+        let samples = ts.iter().zip(&decay).zip(&trig).zip(&ys);
+        match jac {
+            // Rows of a fixed length, walked in step with the samples: no index to check
+            // and no test of the parameter count per sample (the same operations in the
+            // same order as one row at a time by index).
+            Some(j) => {
+                let n_par = p.len();
+                for ((((&t, &e), &(s, c)), &y), (ri, row)) in
+                    samples.zip(r.iter_mut().zip(j.chunks_exact_mut(n_par)))
+                {
+                    let osc = a * c + b * s;
+                    *ri = c0 + e * osc - y;
+                    row[0] = e * c;
+                    row[1] = e * s;
+                    row[2] = -t * e * osc;
+                    row[3] = e * t * (-a * s + b * c);
+                    if let Some(last) = row.get_mut(4) {
+                        *last = 1.0;
+                    }
+                }
+            }
+            None => {
+                for ((((_, &e), &(s, c)), &y), ri) in samples.zip(r.iter_mut()) {
+                    *ri = c0 + e * (a * c + b * s) - y;
                 }
             }
         }
