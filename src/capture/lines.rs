@@ -150,9 +150,16 @@ impl<R: ReadAt> ChunkReader<R> {
         self.done = true;
     }
 
-    /// Reads on after [`ChunkReader::finish`], from where it stood.
+    /// Passes over `n` bytes without reading them (rows already read another way).
+    pub(crate) fn skip(&mut self, n: u64) {
+        self.offset += n;
+    }
+
+    /// Reads again from byte `offset`, as if just opened there.
     #[cfg(test)]
-    pub(crate) fn resume(&mut self) {
+    pub(crate) fn restart_at(&mut self, offset: u64) {
+        self.offset = offset;
+        self.carry.clear();
         self.done = false;
     }
 

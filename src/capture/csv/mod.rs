@@ -2,9 +2,13 @@
 //! header, comma, semicolon, tab or space delimiters, decimal point or comma, a time column
 //! or a stated sample interval, units in the header.
 //!
-//! Reading happens in two passes over the start of the file: [`open`] sniffs the layout
-//! from the first lines (at most `SNIFF_BYTES`), then [`CsvStream`] reads every data row
-//! from the first one on, in blocks, checking each row as it goes.
+//! [`open`] sniffs the layout from the first lines (at most `SNIFF_BYTES` and
+//! `SNIFF_LINES`) and reads the data rows among them with the stream's own fast path: their
+//! times give the sample interval, their values the first block. [`CsvStream`] hands those
+//! out (their times checked as every row's are) and reads on after them in blocks, checking
+//! each row as it goes. When the fast path cannot read every sniffed row (blank lines,
+//! quoted or padded cells, a bad row), the sniff reads only the time cells and the stream
+//! reads every data row from the first.
 
 mod layout;
 mod preamble;
@@ -233,9 +237,19 @@ pub(crate) fn open(
         ));
     }
 
+    let format = RowFormat {
+        file: path.to_path_buf(),
+        delim,
+        decimal_comma: comma,
+        n_fields,
+        roles,
+        factors,
+    };
+
     // Time base.
     let mut time_check = None;
     let mut dt_from_time = None;
+    let mut head_rows = None;
     if let Some(tc) = time_col {
         let tname = header.get(tc).map(|h| h.0.clone()).unwrap_or_default();
         let tunit = header.get(tc).and_then(|h| h.1.clone()).or_else(|| {
@@ -268,11 +282,26 @@ pub(crate) fn open(
                 }
             },
         };
-        let times = window_times(data_lines, tc, n_fields, delim, comma);
+        // The sniffed rows are read once, by the stream's own fast path, when it reads
+        // every one of them: their times give the interval, their values the first block.
+        // Otherwise (blank lines, rows the stream reads its general way or refuses) the
+        // time cells are read here and the stream reads every row itself.
+        head_rows = window_span(&head, &lines, data_idx, complete)
+            .map(|(a, b)| (b - a, format.read_head_rows(&head[a..b])))
+            .filter(|(n, rows)| rows.bytes == *n && rows.times.len() == data_lines.len())
+            .map(|(_, rows)| rows);
+        let read_here;
+        let times: &[(f64, f64, usize)] = match &head_rows {
+            Some(rows) => &rows.times,
+            None => {
+                read_here = window_times(data_lines, tc, n_fields, delim, comma);
+                &read_here
+            }
+        };
         if let Some(&(t0, _, _)) = times.first() {
             cap.t0_s = t0 * factor;
         }
-        if let Some(check) = TimeCheck::from_first_rows(&times, factor) {
+        if let Some(check) = TimeCheck::from_first_rows(times, factor) {
             let dt = check.dt_s;
             if let Some(coarsest) = check.coarse_resolution_s {
                 cap.notes.push(format!(
@@ -333,21 +362,37 @@ pub(crate) fn open(
         }
     };
 
-    // Stream from the first data row.
+    // Stream from the first data row, or from the first after the rows read above.
     let offset = lines[data_idx].offset;
-    let format = RowFormat {
-        file: path.to_path_buf(),
-        delim,
-        decimal_comma: comma,
-        n_fields,
-        roles,
-        factors,
-    };
+    let checked = time_check.is_some();
     let mut stream = CsvStream::new(format, f, offset as u64, data_line, time_check, length);
+    let mut text_from = offset;
+    if let Some(rows) = head_rows.filter(|_| checked) {
+        text_from += rows.bytes;
+        stream = stream.with_head_rows(rows);
+    }
     if complete {
-        stream = stream.with_whole_text(head, offset);
+        stream = stream.with_whole_text(head, text_from);
     }
     Ok((cap, stream, pre.record_length))
+}
+
+/// The bytes of the sniffed lines from the first data row to the last line, its line end
+/// included.
+fn window_span(
+    head: &[u8],
+    lines: &[text::SniffLine],
+    data_idx: usize,
+    complete: bool,
+) -> Option<(usize, usize)> {
+    let first = lines.get(data_idx)?.offset;
+    let last = lines.last()?.offset;
+    let end = match memchr::memchr(b'\n', head.get(last..)?) {
+        Some(k) => last + k + 1,
+        None if complete => head.len(),
+        None => return None,
+    };
+    Some((first, end))
 }
 
 /// Which column holds time and which only counts samples. A header names them; without

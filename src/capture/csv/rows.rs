@@ -14,7 +14,7 @@ use super::{cell_message, csv_err, Role};
 use crate::capture::cells::{
     bare_delimiter, parse_number, parse_time_cell, pow10, trim_cell, Cells, Delim,
 };
-use crate::capture::decimal::read_prefix;
+use crate::capture::decimal::{read_prefix, Decimal};
 use crate::capture::lines::{Chunk, ChunkEnd, ChunkReader, MAX_LINE_BYTES};
 use crate::capture::CaptureError;
 
@@ -57,6 +57,11 @@ pub(crate) struct CsvStream {
     /// Free-text lines after the last row, skipped: first line number, count, and the
     /// first of them.
     trailing: Option<(usize, usize, String)>,
+    #[cfg(test)]
+    data_start: DataStart,
+    /// Rows handed over by the sniff ([`CsvStream::with_head_rows`]).
+    #[cfg(test)]
+    head_rows_taken: usize,
 }
 
 /// Most lines of free text after the last row that are skipped (with a warning) rather
@@ -92,6 +97,24 @@ impl Piece {
     }
 }
 
+/// The first data rows, read while sniffing: their values, and their time cells (value,
+/// printed resolution, decimals) from which the sample interval is found.
+pub(super) struct HeadRows {
+    channels: Vec<Vec<f64>>,
+    pub(super) times: Vec<(f64, f64, usize)>,
+    /// Bytes of text the rows took, line ends included.
+    pub(super) bytes: usize,
+}
+
+/// Where the data rows start, to read them again from there (tests cut the text into
+/// chunks of their own after the sniff has read the first rows).
+#[cfg(test)]
+struct DataStart {
+    offset: u64,
+    line: usize,
+    time: Option<TimeCheck>,
+}
+
 impl CsvStream {
     /// `length` is the file's when it was opened, if it is a regular file (see
     /// [`ChunkReader::set_length`]).
@@ -107,6 +130,12 @@ impl CsvStream {
         if let Some(length) = length {
             source.set_length(length);
         }
+        #[cfg(test)]
+        let data_start = DataStart {
+            offset,
+            line: first_line,
+            time: time.as_ref().map(TimeCheck::fresh),
+        };
         CsvStream {
             format,
             source,
@@ -121,7 +150,30 @@ impl CsvStream {
             time,
             parallel_min_bytes: PARALLEL_MIN_BYTES,
             trailing: None,
+            #[cfg(test)]
+            data_start,
+            #[cfg(test)]
+            head_rows_taken: 0,
         }
+    }
+
+    /// Hands out the rows the sniff read (`rows`, the first of the data) before reading on
+    /// after them, their times checked as the stream checks every row: a short capture's
+    /// first rows are not read twice. Without a time check the rows are read again.
+    pub(super) fn with_head_rows(mut self, rows: HeadRows) -> Self {
+        let Some(template) = self.time.as_ref() else {
+            return self;
+        };
+        let bytes = rows.bytes;
+        #[cfg(test)]
+        {
+            self.head_rows_taken = rows.times.len();
+        }
+        let piece = self.format.head_piece(rows, template);
+        self.source.skip(bytes as u64);
+        self.pieces = vec![piece];
+        self.join_pieces();
+        self
     }
 
     /// Streams the rows from the text already read: `text` is the whole file and the
@@ -135,17 +187,31 @@ impl CsvStream {
     /// Sets the bytes read per chunk (tests cut lines at every place with tiny chunks).
     #[cfg(test)]
     pub(crate) fn set_chunk_bytes(&mut self, n: usize) {
-        // A file sniffed whole is read again, in these chunks.
-        if self.ahead.take().is_some() {
-            self.source.resume();
-        }
+        self.read_from_the_first_row();
         self.source.set_chunk_bytes(n);
     }
 
     /// Cuts every chunk into pieces, however small (tests check the joins on small files).
     #[cfg(test)]
     pub(crate) fn always_in_pieces(&mut self) {
+        self.read_from_the_first_row();
         self.parallel_min_bytes = 0;
+    }
+
+    /// Forgets the rows read so far (the sniff's, a file's text read whole) and reads
+    /// again from the first data row, in chunks.
+    #[cfg(test)]
+    fn read_from_the_first_row(&mut self) {
+        self.source.restart_at(self.data_start.offset);
+        self.ahead = None;
+        self.pieces.clear();
+        self.n_ready = 0;
+        self.cursor = (0, 0);
+        self.pending = None;
+        self.exhausted = false;
+        self.line_no = self.data_start.line;
+        self.time = self.data_start.time.as_ref().map(TimeCheck::fresh);
+        self.head_rows_taken = 0;
     }
 
     /// Appends up to `max` samples to each channel; returns how many rows were read. The
@@ -389,10 +455,9 @@ fn fast_pair(
     text: &[u8],
     d: u8,
     comma: bool,
-    want_place: bool,
     factor: f64,
     values: &mut Vec<f64>,
-) -> Option<(usize, Option<(f64, f64)>)> {
+) -> Option<(usize, Option<Decimal>)> {
     let (t, i) = read_prefix(text, comma)?;
     if *text.get(i)? != d {
         return None;
@@ -406,8 +471,7 @@ fn fast_pair(
         _ => return None,
     };
     values.push(v.value * factor);
-    let q = if want_place { pow10(t.last_place) } else { 0.0 };
-    Some((len, Some((t.value, q))))
+    Some((len, Some(t)))
 }
 
 /// The same error with its line moved from a count within a piece to the file's count.
@@ -429,6 +493,69 @@ fn at_line_offset(e: CaptureError, base: usize) -> CaptureError {
 }
 
 impl RowFormat {
+    /// Reads rows of bare numbers from the start of `text` by the fast path the stream
+    /// uses, up to the first row it cannot read (which the stream then reads, or refuses,
+    /// its own way) or the end of `text`.
+    pub(super) fn read_head_rows(&self, text: &[u8]) -> HeadRows {
+        let mut rows = HeadRows {
+            channels: vec![Vec::new(); self.factors.len()],
+            times: Vec::new(),
+            bytes: 0,
+        };
+        let Some((d, comma)) = self.fast_delimiter() else {
+            return rows;
+        };
+        let pair = self.time_and_one_value();
+        while let Some(rest) = text.get(rows.bytes..).filter(|r| !r.is_empty()) {
+            let got = match pair {
+                Some(f) => rows
+                    .channels
+                    .first_mut()
+                    .and_then(|c| fast_pair(rest, d, comma, f, c)),
+                None => self.fast_row(rest, d, comma, &mut rows.channels),
+            };
+            let Some((len, Some(t))) = got else {
+                break;
+            };
+            rows.times
+                .push((t.value, pow10(t.last_place), t.decimals as usize));
+            rows.bytes += len;
+        }
+        // A row the fast path gave up on may have left values behind.
+        for c in &mut rows.channels {
+            c.truncate(rows.times.len());
+        }
+        rows
+    }
+
+    /// The piece of the rows the sniff read, their times checked from the first as
+    /// [`RowFormat::fast_run`] checks a piece's rows (lines counted within the piece).
+    fn head_piece(&self, rows: HeadRows, template: &TimeCheck) -> Piece {
+        let mut p = Piece {
+            channels: rows.channels,
+            time: Some(template.fresh()),
+            ..Piece::default()
+        };
+        let want_place = !template.exact;
+        for (here, &(t, place, _)) in rows.times.iter().enumerate() {
+            let q = if want_place { place } else { 0.0 };
+            p.n_lines += 1;
+            if p.first_time.is_none() {
+                p.first_time = Some((t, q, here));
+            }
+            let checked = match p.time.as_mut() {
+                Some(tc) => check_time(&self.file, tc, t, q, here),
+                None => Ok(()),
+            };
+            if let Err(e) = checked {
+                p.fail(e);
+                return p;
+            }
+            p.n_rows += 1;
+        }
+        p
+    }
+
     /// Cuts a chunk into pieces at line ends and parses them, on several threads when the
     /// chunk is large.
     fn parse_chunk(
@@ -491,11 +618,11 @@ impl RowFormat {
         loop {
             if let Some((d, comma)) = fast {
                 let read_on = match pair {
-                    Some(f) => self.fast_run(text, &mut pos, p, |row, out| {
-                        fast_pair(row, d, comma, want_place, f, out.first_mut()?)
+                    Some(f) => self.fast_run(text, &mut pos, p, want_place, |row, out| {
+                        fast_pair(row, d, comma, f, out.first_mut()?)
                     }),
-                    None => self.fast_run(text, &mut pos, p, |row, out| {
-                        self.fast_row(row, d, comma, want_place, out)
+                    None => self.fast_run(text, &mut pos, p, want_place, |row, out| {
+                        self.fast_row(row, d, comma, out)
                     }),
                 };
                 if !read_on {
@@ -526,7 +653,8 @@ impl RowFormat {
         text: &[u8],
         pos: &mut usize,
         p: &mut Piece,
-        mut read: impl FnMut(&[u8], &mut [Vec<f64>]) -> Option<(usize, Option<(f64, f64)>)>,
+        want_place: bool,
+        mut read: impl FnMut(&[u8], &mut [Vec<f64>]) -> Option<(usize, Option<Decimal>)>,
     ) -> bool {
         let mut channels = std::mem::take(&mut p.channels);
         let mut time = p.time.take();
@@ -543,6 +671,7 @@ impl RowFormat {
             at += len;
             let here = n_lines;
             n_lines += 1;
+            let t = t.map(|t| (t.value, if want_place { pow10(t.last_place) } else { 0.0 }));
             if let (Some(tc), Some((t, q))) = (time.as_mut(), t) {
                 if first_time.is_none() {
                     first_time = Some((t, q, here));
@@ -593,9 +722,8 @@ impl RowFormat {
         text: &[u8],
         d: u8,
         comma: bool,
-        want_place: bool,
         out: &mut [Vec<f64>],
-    ) -> Option<(usize, Option<(f64, f64)>)> {
+    ) -> Option<(usize, Option<Decimal>)> {
         let mut i = 0;
         let mut time = None;
         let last = self.roles.len().checked_sub(1)?;
@@ -610,8 +738,7 @@ impl RowFormat {
                 }
                 Role::Time => {
                     let (t, len) = read_prefix(rest, comma)?;
-                    let q = if want_place { pow10(t.last_place) } else { 0.0 };
-                    time = Some((t.value, q));
+                    time = Some(t);
                     i += len;
                 }
                 Role::Value(c) => {
@@ -865,9 +992,9 @@ mod tests {
                     for end in ["", "\n", "\r\n", "\nnext"] {
                         let row = format!("{text}{end}");
                         let mut general = vec![Vec::new()];
-                        let want = format.fast_row(row.as_bytes(), d, comma, true, &mut general);
+                        let want = format.fast_row(row.as_bytes(), d, comma, &mut general);
                         let mut values = Vec::new();
-                        let got = fast_pair(row.as_bytes(), d, comma, true, 1e-3, &mut values);
+                        let got = fast_pair(row.as_bytes(), d, comma, 1e-3, &mut values);
                         assert_eq!(got, want, "{row:?}");
                         if want.is_some() {
                             assert_eq!(values, general[0], "{row:?}");
@@ -918,6 +1045,59 @@ mod tests {
             ] {
                 let got = read_all(f.path(), chunk, pieces, per_block);
                 proptest::prop_assert_eq!(&got, &reference, "chunk {:?} pieces {}", chunk, pieces);
+            }
+        }
+    }
+
+    /// The rows the sniff reads (the first 4000 lines) are handed to the stream instead of
+    /// read again: values, warnings and the first problem are what reading every row from
+    /// the first gives, and the problem's line is the one edited.
+    #[test]
+    fn rows_read_while_sniffing_give_what_reading_them_again_gives() {
+        let backwards = |at: usize| {
+            move |k: usize| (k == at).then(|| format!("{:.9e},1", (at as f64 - 1.0) * 1e-6))
+        };
+        let jitter =
+            |k: usize| (k % 500 == 7).then(|| format!("{:.9e},2", (k as f64 + 0.3) * 1e-6));
+        let gap = |k: usize| (k == 2_500).then(|| format!("{:.9e},3", (k as f64 + 4.0) * 1e-6));
+        type Edit = Box<dyn Fn(usize) -> Option<String>>;
+        let cases: Vec<(usize, Edit, Option<usize>)> = vec![
+            (3_000, Box::new(|_| None), None),
+            (9_000, Box::new(|_| None), None),
+            (3_000, Box::new(backwards(10)), Some(12)),
+            (9_000, Box::new(backwards(3_990)), Some(3_992)),
+            (9_000, Box::new(jitter), None),
+            (3_000, Box::new(gap), Some(2_502)),
+        ];
+        for (n, edit, bad_line) in cases {
+            let f = file_with(n, &*edit);
+            let (_, mut s, _) =
+                crate::capture::csv::open(f.path(), &ReadOptions::default()).unwrap();
+            // Every sniffed line is a row here: the header and 3999 rows.
+            assert_eq!(s.head_rows_taken, n.min(3_999), "{n} rows");
+            let mut all = vec![Vec::new()];
+            let mut got = Ok(());
+            loop {
+                match s.fill(&mut all, 1 << 12) {
+                    Ok(0) => break,
+                    Ok(_) => {}
+                    Err(e) => {
+                        got = Err(csv_error(e));
+                        break;
+                    }
+                }
+            }
+            let again = read_all(f.path(), Some(4_096), false, 1 << 12);
+            match (got, bad_line) {
+                (Ok(()), None) => {
+                    let bits: Vec<u64> = all[0].iter().map(|x| x.to_bits()).collect();
+                    assert_eq!(Ok((vec![bits], s.end_warnings())), again, "{n} rows");
+                }
+                (Err((line, _, message)), Some(want)) => {
+                    assert_eq!(line, want, "{message}");
+                    assert!(again.unwrap_err().contains(&format!("line {want},")));
+                }
+                (got, want) => panic!("{n} rows: {got:?}, expected a problem on {want:?}"),
             }
         }
     }
