@@ -141,8 +141,8 @@ pub(crate) fn open(
     if head.starts_with(UTF8_BOM) {
         cap.notes.push("UTF-8 byte-order mark skipped".to_string());
     }
-    let latin1 = check_text(path, &head, &mut cap.notes)?;
-    let lines = split_lines(path, &head, complete, latin1)?;
+    let (latin1, valid) = check_text(path, &head, &mut cap.notes)?;
+    let lines = split_lines(path, &head, valid, complete, latin1)?;
 
     let best = pick_delimiter(&lines, opts);
     let Some((delim, comma, n_fields)) = best else {

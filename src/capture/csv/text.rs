@@ -24,12 +24,14 @@ pub(super) struct SniffLine<'a> {
 }
 
 /// Refuses files that are not text: a NUL byte, control characters, or mostly invalid
-/// UTF-8 (a single Latin-1 `µ` is text, a sample dump is not).
-pub(super) fn check_text(
+/// UTF-8 (a single Latin-1 `µ` is text, a sample dump is not). Gives whether the text is
+/// read as Latin-1, and its valid UTF-8 start (all of it, nearly always), checked once
+/// here for [`split_lines`] too.
+pub(super) fn check_text<'a>(
     file: &Path,
-    head: &[u8],
+    head: &'a [u8],
     notes: &mut Vec<String>,
-) -> Result<bool, CaptureError> {
+) -> Result<(bool, &'a str), CaptureError> {
     let binary = |offset: usize, what: &str| {
         CaptureError::Binary {
         file: file.to_path_buf(),
@@ -63,34 +65,34 @@ pub(super) fn check_text(
             return Err(binary(first, "control characters"));
         }
     }
+    let valid_start =
+        |e: std::str::Utf8Error| std::str::from_utf8(head.get(..e.valid_up_to()).unwrap_or(&[]));
     match std::str::from_utf8(head) {
-        Ok(_) => Ok(false),
-        Err(e) if e.error_len().is_none() => Ok(false),
+        Ok(text) => Ok((false, text)),
+        Err(e) if e.error_len().is_none() => Ok((false, valid_start(e).unwrap_or(""))),
         Err(e) => {
             let high = head.iter().filter(|&&b| b >= 0x80).count();
             if high * 100 > head.len() {
                 Err(binary(e.valid_up_to(), "invalid UTF-8"))
             } else {
                 notes.push("text is not UTF-8; read as Latin-1".to_string());
-                Ok(true)
+                Ok((true, valid_start(e).unwrap_or("")))
             }
         }
     }
 }
 
 /// Splits the sniffed bytes into lines, dropping a last line cut off by the sniff limit.
+/// `valid` is the valid UTF-8 start of `head` ([`check_text`] gives it): its lines need no
+/// check of their own.
 pub(super) fn split_lines<'a>(
     file: &Path,
     head: &'a [u8],
+    valid: &'a str,
     complete: bool,
     latin1: bool,
 ) -> Result<Vec<SniffLine<'a>>, CaptureError> {
     let mut out = Vec::new();
-    // The valid UTF-8 at the start, checked once: its lines need no check of their own.
-    let valid = match std::str::from_utf8(head) {
-        Ok(text) => text,
-        Err(e) => std::str::from_utf8(head.get(..e.valid_up_to()).unwrap_or(&[])).unwrap_or(""),
-    };
     // A UTF-8 byte-order mark (Windows editors write one) is not part of the first cell.
     let mut start = if head.starts_with(UTF8_BOM) { 3 } else { 0 };
     let mut no = 1usize;
@@ -144,11 +146,15 @@ mod tests {
     fn text_and_binary_are_told_apart() {
         let f = Path::new("x.csv");
         let mut notes = Vec::new();
-        assert!(!check_text(f, b"t,v\n0,1\n", &mut notes).unwrap());
+        assert_eq!(
+            check_text(f, b"t,v\n0,1\n", &mut notes).unwrap(),
+            (false, "t,v\n0,1\n")
+        );
         // One Latin-1 micro sign in a header is still text.
         let mut latin = b"t [\xB5s],v\n".to_vec();
         latin.extend(std::iter::repeat_n(b'1', 200));
-        assert!(check_text(f, &latin, &mut notes).unwrap());
+        // Latin-1, its valid UTF-8 start ending before the micro sign.
+        assert_eq!(check_text(f, &latin, &mut notes).unwrap(), (true, "t ["));
         assert_eq!(notes, ["text is not UTF-8; read as Latin-1"]);
         let e = check_text(f, b"12\x00\x01", &mut notes)
             .unwrap_err()
@@ -162,14 +168,15 @@ mod tests {
     #[test]
     fn lines_keep_their_numbers_and_offsets() {
         let f = Path::new("x.csv");
-        let l = split_lines(f, b"\xEF\xBB\xBFa\r\nbb\ncc", true, false).unwrap();
+        let text = b"\xEF\xBB\xBFa\r\nbb\ncc";
+        let l = split_lines(f, text, std::str::from_utf8(text).unwrap(), true, false).unwrap();
         let got: Vec<_> = l
             .iter()
             .map(|l| (l.no, l.offset, l.text.as_ref()))
             .collect();
         assert_eq!(got, [(1, 3, "a"), (2, 6, "bb"), (3, 9, "cc")]);
         // A last line cut by the sniff limit is dropped.
-        let l = split_lines(f, b"a\nbb\ncc", false, false).unwrap();
+        let l = split_lines(f, b"a\nbb\ncc", "a\nbb\ncc", false, false).unwrap();
         assert_eq!(l.len(), 2);
     }
 }
