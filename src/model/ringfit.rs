@@ -133,11 +133,13 @@ pub fn noise_sigma(v: &[f64]) -> f64 {
     if v.len() < 3 {
         return 0.0;
     }
-    let mut d2: Vec<f64> = v
-        .windows(3)
-        .map(|w| (w[2] - 2.0 * w[1] + w[0]).abs())
-        .filter(|x| x.is_finite())
-        .collect();
+    // Room for every difference at once: a filtered collect grows by doubling and copies.
+    let mut d2: Vec<f64> = Vec::with_capacity(v.len() - 2);
+    d2.extend(
+        v.windows(3)
+            .map(|w| (w[2] - 2.0 * w[1] + w[0]).abs())
+            .filter(|x| x.is_finite()),
+    );
     if d2.is_empty() {
         return 0.0;
     }

@@ -291,7 +291,8 @@ impl TimeCheck {
         // The last printed digit bounds the rounding of a time (`%.3e`, `%.6f`, `%g`).
         // Shortest round-trip output of doubles (`3.0000000000000004e-9`) is exact: it shows
         // as a varying number of decimals, 10 or more in some cells.
-        let nonzero: Vec<_> = times.iter().filter(|t| t.0 != 0.0).collect();
+        let mut nonzero: Vec<&(f64, f64, usize)> = Vec::with_capacity(times.len());
+        nonzero.extend(times.iter().filter(|t| t.0 != 0.0));
         let same_decimals = nonzero.windows(2).all(|w| w[0].2 == w[1].2);
         let exact = !same_decimals && nonzero.iter().any(|t| t.2 >= 10);
         let q = |t: &(f64, f64, usize)| {
