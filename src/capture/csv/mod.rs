@@ -287,7 +287,7 @@ pub(crate) fn open(
         // Otherwise (blank lines, rows the stream reads its general way or refuses) the
         // time cells are read here and the stream reads every row itself.
         head_rows = window_span(&head, &lines, data_idx, complete)
-            .map(|(a, b)| (b - a, format.read_head_rows(&head[a..b])))
+            .map(|(a, b)| (b - a, format.read_head_rows(&head[a..b], data_lines.len())))
             .filter(|(n, rows)| rows.bytes == *n && rows.times.len() == data_lines.len())
             .map(|(_, rows)| rows);
         let read_here;

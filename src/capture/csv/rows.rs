@@ -495,11 +495,13 @@ fn at_line_offset(e: CaptureError, base: usize) -> CaptureError {
 impl RowFormat {
     /// Reads rows of bare numbers from the start of `text` by the fast path the stream
     /// uses, up to the first row it cannot read (which the stream then reads, or refuses,
-    /// its own way) or the end of `text`.
-    pub(super) fn read_head_rows(&self, text: &[u8]) -> HeadRows {
+    /// its own way) or the end of `text`; `lines` (the lines in `text`) sizes the storage.
+    pub(super) fn read_head_rows(&self, text: &[u8], lines: usize) -> HeadRows {
         let mut rows = HeadRows {
-            channels: vec![Vec::new(); self.factors.len()],
-            times: Vec::new(),
+            channels: (0..self.factors.len())
+                .map(|_| Vec::with_capacity(lines))
+                .collect(),
+            times: Vec::with_capacity(lines),
             bytes: 0,
         };
         let Some((d, comma)) = self.fast_delimiter() else {
