@@ -530,8 +530,9 @@ impl RowFormat {
         rows
     }
 
-    /// The piece of the rows the sniff read, their times checked from the first as
-    /// [`RowFormat::fast_run`] checks a piece's rows (lines counted within the piece).
+    /// The piece of the rows the sniff read, each counted and its time checked by
+    /// [`RowFormat::row_read`], as the stream's general path counts a row (lines counted
+    /// within the piece).
     fn head_piece(&self, rows: HeadRows, template: &TimeCheck) -> Piece {
         let mut p = Piece {
             channels: rows.channels,
@@ -539,21 +540,11 @@ impl RowFormat {
             ..Piece::default()
         };
         let want_place = !template.exact;
-        for (here, &(t, place, _)) in rows.times.iter().enumerate() {
+        for &(t, place, _) in &rows.times {
             let q = if want_place { place } else { 0.0 };
-            p.n_lines += 1;
-            if p.first_time.is_none() {
-                p.first_time = Some((t, q, here));
+            if !self.row_read(&mut p, Ok(Some((t, q)))) {
+                break;
             }
-            let checked = match p.time.as_mut() {
-                Some(tc) => check_time(&self.file, tc, t, q, here),
-                None => Ok(()),
-            };
-            if let Err(e) = checked {
-                p.fail(e);
-                return p;
-            }
-            p.n_rows += 1;
         }
         p
     }
