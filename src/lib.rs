@@ -10,6 +10,7 @@
 //! stages together for the commands; `document` holds the serialisable results that form
 //! the JSON contract.
 
+mod avx2;
 pub mod capture;
 pub mod compare;
 pub mod demo;

@@ -191,31 +191,22 @@ fn normal_equations(jac: &[f64], r: &[f64], m: usize, n: usize, jtj: &mut [f64],
     }
 }
 
-/// [`normal_equations_n`] for five parameters (the damped sine with an offset, the fit run
-/// on every event), its sums taken two at a time: the row and its residual as three pairs
-/// `(j0, j1), (j2, j3), (j4, r)`, each sum a lane of a pair multiplied by one broadcast
-/// Jacobian entry, which the compiler turns into two-wide vector operations. Every sum
-/// still adds its products row by row in order, so the result is the same to the bit.
-///
-/// Compiled a second time for AVX2 and run that way where the CPU has it (as the ring
-/// fit's start scan is): the same operations in the same order, no fused multiply-add, so
-/// the same bits on any x86-64, in a third fewer instructions.
-fn normal_equations_5(jac: &[f64], r: &[f64], m: usize, jtj: &mut [f64], jtr: &mut [f64]) {
-    #[cfg(target_arch = "x86_64")]
-    if std::arch::is_x86_feature_detected!("avx2") {
-        // SAFETY: the CPU has AVX2, checked just above, the only feature the function
-        // is compiled for beyond the baseline.
-        unsafe { normal_equations_5_avx2(jac, r, m, jtj, jtr) };
-        return;
-    }
-    normal_equations_5_sums(jac, r, m, jtj, jtr);
-}
-
-#[cfg(target_arch = "x86_64")]
-#[target_feature(enable = "avx2")]
-fn normal_equations_5_avx2(jac: &[f64], r: &[f64], m: usize, jtj: &mut [f64], jtr: &mut [f64]) {
-    normal_equations_5_sums(jac, r, m, jtj, jtr);
-}
+crate::avx2::twice_compiled!(
+    /// [`normal_equations_n`] for five parameters (the damped sine with an offset, the fit
+    /// run on every event), its sums taken two at a time: the row and its residual as three
+    /// pairs `(j0, j1), (j2, j3), (j4, r)`, each sum a lane of a pair multiplied by one
+    /// broadcast Jacobian entry, which the compiler turns into two-wide vector operations.
+    /// Every sum still adds its products row by row in order, so the result is the same to
+    /// the bit. Compiled for AVX2 too (as the ring fit's start scan is): the same bits, a
+    /// third fewer instructions.
+    fn normal_equations_5(
+        jac: &[f64],
+        r: &[f64],
+        m: usize,
+        jtj: &mut [f64],
+        jtr: &mut [f64],
+    ) => normal_equations_5_sums;
+);
 
 #[inline(always)]
 fn normal_equations_5_sums(jac: &[f64], r: &[f64], m: usize, jtj: &mut [f64], jtr: &mut [f64]) {

@@ -365,26 +365,13 @@ struct StartGrid<'a> {
     c_fixed: Option<f64>,
 }
 
-/// Best point of the start scan: (rate, frequency, linear coefficients, SSR). Compiled a
-/// second time for AVX2 and run that way where the CPU has it: the sums over the samples
-/// are independent of each other, so the wider registers take four at once, each sum
-/// still added in sample order (no fused multiply-add is enabled), so the result is the
-/// same to the bit on any x86-64 (a third fewer instructions for the scan).
-fn scan_start(grid: &StartGrid) -> Option<(f64, f64, [f64; 3], f64)> {
-    #[cfg(target_arch = "x86_64")]
-    if std::arch::is_x86_feature_detected!("avx2") {
-        // SAFETY: the CPU has AVX2, checked just above, the only feature the function
-        // is compiled for beyond the baseline.
-        return unsafe { scan_start_avx2(grid) };
-    }
-    scan_start_on(grid)
-}
-
-#[cfg(target_arch = "x86_64")]
-#[target_feature(enable = "avx2")]
-fn scan_start_avx2(grid: &StartGrid) -> Option<(f64, f64, [f64; 3], f64)> {
-    scan_start_on(grid)
-}
+crate::avx2::twice_compiled!(
+    /// Best point of the start scan: (rate, frequency, linear coefficients, SSR). Compiled
+    /// for AVX2 too: the sums over the samples are independent of each other, so the wider
+    /// registers take four at once, each still added in sample order (a third fewer
+    /// instructions for the scan, the same bits).
+    fn scan_start(grid: &StartGrid) -> Option<(f64, f64, [f64; 3], f64)> => scan_start_on;
+);
 
 #[inline(always)]
 fn scan_start_on(grid: &StartGrid) -> Option<(f64, f64, [f64; 3], f64)> {

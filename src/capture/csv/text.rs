@@ -32,25 +32,12 @@ fn is_control(b: u8) -> bool {
     ((b < 0x20) & !allowed) | (b == 0x7f)
 }
 
-/// Whether `text` holds no control character: tested 64 bytes at a time without stopping
-/// inside them, so clean stretches pass before any is located; compiled a second time
-/// for AVX2 and run that way where the CPU has it (a short capture's whole text is
-/// checked: 2 % of a folder's instructions).
-fn no_control_bytes(text: &[u8]) -> bool {
-    #[cfg(target_arch = "x86_64")]
-    if std::arch::is_x86_feature_detected!("avx2") {
-        // SAFETY: the CPU has AVX2, checked just above, the only feature the function
-        // is compiled for beyond the baseline.
-        return unsafe { no_control_bytes_avx2(text) };
-    }
-    no_control_bytes_on(text)
-}
-
-#[cfg(target_arch = "x86_64")]
-#[target_feature(enable = "avx2")]
-fn no_control_bytes_avx2(text: &[u8]) -> bool {
-    no_control_bytes_on(text)
-}
+crate::avx2::twice_compiled!(
+    /// Whether `text` holds no control character: tested 64 bytes at a time without
+    /// stopping inside them, so clean stretches pass before any is located; compiled for
+    /// AVX2 too (a short capture's whole text is checked: 2 % of a folder's instructions).
+    fn no_control_bytes(text: &[u8]) -> bool => no_control_bytes_on;
+);
 
 #[inline(always)]
 fn no_control_bytes_on(text: &[u8]) -> bool {
