@@ -14,7 +14,7 @@ use super::{cell_message, csv_err, Role};
 use crate::capture::cells::{
     bare_delimiter, parse_number, parse_time_cell, pow10, trim_cell, Cells, Delim,
 };
-use crate::capture::decimal::{read_prefix, Decimal};
+use crate::capture::decimal::{read_prefix, Decimal, SciShape};
 use crate::capture::lines::{Chunk, ChunkEnd, ChunkReader, MAX_LINE_BYTES};
 use crate::capture::CaptureError;
 
@@ -455,10 +455,11 @@ fn fast_pair(
     text: &[u8],
     d: u8,
     comma: bool,
+    shape: Option<SciShape>,
     factor: f64,
     values: &mut Vec<f64>,
 ) -> Option<(usize, Option<Decimal>)> {
-    let (t, i) = read_prefix(text, comma)?;
+    let (t, i) = read_time(shape, text, comma)?;
     if *text.get(i)? != d {
         return None;
     }
@@ -472,6 +473,16 @@ fn fast_pair(
     };
     values.push(v.value * factor);
     Some((len, Some(t)))
+}
+
+/// The time cell at the start of `text`: by its fixed layout when the column has one and
+/// this cell keeps to it, else by the general fast path (the same number either way).
+#[inline(always)]
+fn read_time(shape: Option<SciShape>, text: &[u8], comma: bool) -> Option<(Decimal, usize)> {
+    if let Some(r) = shape.and_then(|s| s.read(text)) {
+        return Some(r);
+    }
+    read_prefix(text, comma)
 }
 
 /// The same error with its line moved from a count within a piece to the file's count.
@@ -508,13 +519,14 @@ impl RowFormat {
             return rows;
         };
         let pair = self.time_and_one_value();
+        let shape = self.time_shape(text, d);
         while let Some(rest) = text.get(rows.bytes..).filter(|r| !r.is_empty()) {
             let got = match pair {
                 Some(f) => rows
                     .channels
                     .first_mut()
-                    .and_then(|c| fast_pair(rest, d, comma, f, c)),
-                None => self.fast_row(rest, d, comma, &mut rows.channels),
+                    .and_then(|c| fast_pair(rest, d, comma, shape, f, c)),
+                None => self.fast_row(rest, d, comma, shape, &mut rows.channels),
             };
             let Some((len, Some(t))) = got else {
                 break;
@@ -607,15 +619,16 @@ impl RowFormat {
         let want_place = time.is_some_and(|tc| !tc.exact);
         let fast = self.fast_delimiter();
         let pair = self.time_and_one_value();
+        let shape = fast.and_then(|(d, _)| self.time_shape(text, d));
         let mut pos = 0;
         loop {
             if let Some((d, comma)) = fast {
                 let read_on = match pair {
                     Some(f) => self.fast_run(text, &mut pos, p, want_place, |row, out| {
-                        fast_pair(row, d, comma, f, out.first_mut()?)
+                        fast_pair(row, d, comma, shape, f, out.first_mut()?)
                     }),
                     None => self.fast_run(text, &mut pos, p, want_place, |row, out| {
-                        self.fast_row(row, d, comma, out)
+                        self.fast_row(row, d, comma, shape, out)
                     }),
                 };
                 if !read_on {
@@ -689,6 +702,15 @@ impl RowFormat {
         }
     }
 
+    /// The fixed layout of the time cells ([`SciShape`]), judged on the first line of
+    /// `text` (cells split by `d`), when the time column has one.
+    fn time_shape(&self, text: &[u8], d: u8) -> Option<SciShape> {
+        let k = self.roles.iter().position(|r| *r == Role::Time)?;
+        let line = text.split(|&b| b == b'\n').next()?;
+        let line = line.strip_suffix(b"\r").unwrap_or(line);
+        SciShape::of(line.split(|&b| b == d).nth(k)?)
+    }
+
     /// The delimiter byte and decimal comma for [`RowFormat::fast_row`] (see
     /// [`bare_delimiter`]).
     fn fast_delimiter(&self) -> Option<(u8, bool)> {
@@ -715,6 +737,7 @@ impl RowFormat {
         text: &[u8],
         d: u8,
         comma: bool,
+        shape: Option<SciShape>,
         out: &mut [Vec<f64>],
     ) -> Option<(usize, Option<Decimal>)> {
         let mut i = 0;
@@ -730,7 +753,7 @@ impl RowFormat {
                         .unwrap_or(rest.len());
                 }
                 Role::Time => {
-                    let (t, len) = read_prefix(rest, comma)?;
+                    let (t, len) = read_time(shape, rest, comma)?;
                     time = Some(t);
                     i += len;
                 }
@@ -940,21 +963,30 @@ mod tests {
     /// of the ways files are.
     fn line(kind: u8, k: usize, v: f64) -> String {
         let t = k as f64 * 1e-6;
+        // Times as C's `%.9e` prints them (a signed two-digit exponent, the layout the
+        // fixed-layout reader takes), and one kind as Rust prints them (`1e-6`).
+        let c = |t: f64| {
+            let s = format!("{t:.9e}");
+            let (m, e) = s.split_once('e').unwrap_or((&s, "0"));
+            let e: i32 = e.parse().unwrap_or(0);
+            format!("{m}e{}{:02}", if e < 0 { '-' } else { '+' }, e.abs())
+        };
         match kind {
-            0 => format!("{t:.9e},{v:.4}"),
-            1 => format!("{t:.9e},{v:.4}\r"),
+            0 => format!("{},{v:.4}", c(t)),
+            1 => format!("{},{v:.4}\r", c(t)),
             2 => String::new(),
             3 => "  \r".to_string(),
-            4 => format!(" {t:.9e} , \"{v:.4}\" "),
-            5 => format!("{t:.9e},{v:.4},"),
-            6 => format!("{t:.9e},abc"),
-            7 => format!("{t:.9e},{v:.4},1"),
-            8 => format!("{:.9e},{v:.4}", t + 0.3e-6),
-            9 => format!("{:.9e},{v:.4}", t - 1e-6),
-            10 => format!("{t:.9e}"),
-            11 => format!("{t:.9e},NaN"),
+            4 => format!(" {} , \"{v:.4}\" ", c(t)),
+            5 => format!("{},{v:.4},", c(t)),
+            6 => format!("{},abc", c(t)),
+            7 => format!("{},{v:.4},1", c(t)),
+            8 => format!("{},{v:.4}", c(t + 0.3e-6)),
+            9 => format!("{},{v:.4}", c(t - 1e-6)),
+            10 => c(t),
+            11 => format!("{},NaN", c(t)),
             12 => format!("{t},{v}"),
-            13 => format!("{:.9e},{v:.4}", t + 3e-6),
+            13 => format!("{},{v:.4}", c(t + 3e-6)),
+            14 => format!("{t:.9e},{v:.4}"),
             _ => "note".to_string(),
         }
     }
@@ -966,6 +998,7 @@ mod tests {
     fn time_and_value_rows_read_the_same_by_the_short_cut() {
         use super::{fast_pair, Role, RowFormat};
         use crate::capture::cells::Delim;
+        use crate::capture::decimal::SciShape;
         for (d, comma) in [(b',', false), (b';', true)] {
             let format = RowFormat {
                 file: "x.csv".into(),
@@ -976,7 +1009,7 @@ mod tests {
                 factors: vec![1e-3],
             };
             assert_eq!(format.time_and_one_value(), Some(1e-3));
-            for kind in 0..14u8 {
+            for kind in 0..16u8 {
                 for (k, v) in [(0usize, 0.0), (7, -12.5), (123_456, 4.25e-3)] {
                     let mut text = line(kind, k, v);
                     if d == b';' {
@@ -985,12 +1018,22 @@ mod tests {
                     for end in ["", "\n", "\r\n", "\nnext"] {
                         let row = format!("{text}{end}");
                         let mut general = vec![Vec::new()];
-                        let want = format.fast_row(row.as_bytes(), d, comma, &mut general);
-                        let mut values = Vec::new();
-                        let got = fast_pair(row.as_bytes(), d, comma, 1e-3, &mut values);
-                        assert_eq!(got, want, "{row:?}");
-                        if want.is_some() {
-                            assert_eq!(values, general[0], "{row:?}");
+                        let want = format.fast_row(row.as_bytes(), d, comma, None, &mut general);
+                        // With and without the time column's fixed layout, judged on this
+                        // row (the `%.9e` kinds have one) and on another layout's row.
+                        let own = format.time_shape(row.as_bytes(), d);
+                        assert!(own.is_some() || kind != 0 || comma, "{row:?}");
+                        let other = SciShape::of(b"1.5e+00");
+                        for shape in [None, own, other] {
+                            let mut values = Vec::new();
+                            let got = fast_pair(row.as_bytes(), d, comma, shape, 1e-3, &mut values);
+                            assert_eq!(got, want, "{row:?} {shape:?}");
+                            if want.is_some() {
+                                assert_eq!(values, general[0], "{row:?}");
+                            }
+                            let mut by_row = vec![Vec::new()];
+                            let got = format.fast_row(row.as_bytes(), d, comma, shape, &mut by_row);
+                            assert_eq!(got, want, "{row:?} {shape:?}");
                         }
                     }
                 }
@@ -1008,7 +1051,7 @@ mod tests {
             kinds in proptest::collection::vec(
                 proptest::prop_oneof![
                     30 => proptest::strategy::Just(0u8),
-                    20 => 1u8..15,
+                    20 => 1u8..16,
                 ],
                 0..120,
             ),
