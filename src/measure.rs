@@ -279,8 +279,7 @@ pub fn measure_trace(
                 continue;
             }
         }
-        let longest_runs = [v_on, v_off]
-            .map(|level| levels::longest_run_near(v, level, 2.0 * survey.resolution_v));
+        let longest_runs = stream::longest_runs_near(v, [v_on, v_off], 2.0 * survey.resolution_v);
         let windows = windows.iter().map(|&(a, b, _)| (a, b)).collect();
         return Ok(conclude(
             found,

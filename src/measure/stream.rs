@@ -580,6 +580,20 @@ struct ClosedWindow {
     samples: Stretch,
 }
 
+/// The longest stretch of `v` held within `half_width_v` of each of two levels, what
+/// [`levels::longest_run_near`] gives for each, in one pass counted on bit masks
+/// ([`RunNear::push_both`]): a tenth of the instructions.
+pub(crate) fn longest_runs_near(v: &[f64], levels: [f64; 2], half_width_v: f64) -> [usize; 2] {
+    let mut runs = levels.map(|level_v| RunNear {
+        level_v,
+        half_width_v,
+        run: 0,
+        best: 0,
+    });
+    RunNear::push_both(&mut runs, v);
+    runs.map(|r| r.best)
+}
+
 /// Longest stretch held within a band around a level, fed block by block (as
 /// [`levels::longest_run_near`]).
 #[derive(Debug, Clone, Copy)]
@@ -1023,6 +1037,12 @@ mod tests {
         let want = [plain(1.0), plain(5.0)];
         // 200 samples at 0.99 and the first 37 of the alternating stretch at 1.0.
         assert_eq!(want[0].1, 237);
+        let best = want.map(|w| w.1);
+        assert_eq!(
+            [1.0, 5.0].map(|l| levels::longest_run_near(&v, l, 0.05)),
+            best
+        );
+        assert_eq!(longest_runs_near(&v, [1.0, 5.0], 0.05), best);
         for size in [1, 5, 63, 64, 65, 129, v.len()] {
             let mut runs = [1.0, 5.0].map(|level_v| RunNear {
                 level_v,

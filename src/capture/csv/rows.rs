@@ -608,8 +608,12 @@ impl RowFormat {
     fn parse_piece(&self, text: &[u8], time: Option<&TimeCheck>, p: &mut Piece) {
         let n_channels = self.factors.len();
         p.channels.resize_with(n_channels, Vec::new);
+        // Room for a value per line end (a vectorised count): a short capture's vectors
+        // were otherwise grown, and copied, a dozen times.
+        let rows = memchr::memchr_iter(b'\n', text).count() + 1;
         for c in &mut p.channels {
             c.clear();
+            c.reserve(rows);
         }
         p.n_rows = 0;
         p.n_lines = 0;
