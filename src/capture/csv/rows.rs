@@ -608,9 +608,14 @@ impl RowFormat {
     fn parse_piece(&self, text: &[u8], time: Option<&TimeCheck>, p: &mut Piece) {
         let n_channels = self.factors.len();
         p.channels.resize_with(n_channels, Vec::new);
-        // Room for a value per line end (a vectorised count): a short capture's vectors
-        // were otherwise grown, and copied, a dozen times.
-        let rows = memchr::memchr_iter(b'\n', text).count() + 1;
+        // Room for the rows the piece holds if they are about as long as its first, and
+        // an eighth more: a short capture's vectors were otherwise grown, and copied, a
+        // dozen times. (Counting the line ends instead was a pass over the text, 1.3 % of
+        // a long file's time, where the vectors kept their room from the last chunk.)
+        let first = memchr::memchr(b'\n', text)
+            .map_or(text.len(), |k| k + 1)
+            .max(1);
+        let rows = text.len() / first + text.len() / first / 8 + 16;
         for c in &mut p.channels {
             c.clear();
             c.reserve(rows);
