@@ -612,9 +612,11 @@ impl RowFormat {
         // an eighth more: a short capture's vectors were otherwise grown, and copied, a
         // dozen times. (Counting the line ends instead was a pass over the text, 1.3 % of
         // a long file's time, where the vectors kept their room from the last chunk.)
+        // (A first line of under eight bytes, blank say, is no guide: taken as eight, the
+        // room stays near the size of the text itself.)
         let first = memchr::memchr(b'\n', text)
             .map_or(text.len(), |k| k + 1)
-            .max(1);
+            .max(8);
         let rows = text.len() / first + text.len() / first / 8 + 16;
         for c in &mut p.channels {
             c.clear();
