@@ -52,20 +52,46 @@ pub fn overshoot_pct(base_v: f64, top_v: f64, peak_v: f64) -> Option<f64> {
     (amp > 0.0).then(|| (peak_v - top_v).abs() / amp * 100.0)
 }
 
-/// Median of a buffer, reordering it. `None` when empty or when it holds a NaN.
+/// Median of a buffer (the element of rank n / 2 in `f64::total_cmp` order). `None` when
+/// empty or when it holds a NaN.
 pub fn median_in_place(buf: &mut [f64]) -> Option<f64> {
-    if buf.is_empty() || buf.iter().any(|x| x.is_nan()) {
-        return None;
-    }
-    let mid = buf.len() / 2;
-    let (_, m, _) = buf.select_nth_unstable_by(mid, f64::total_cmp);
-    Some(*m)
+    median(buf)
 }
 
-/// Median of a slice (copies it).
+/// Median of a slice, as [`median_in_place`] (selected on a copy of its keys).
 pub fn median(v: &[f64]) -> Option<f64> {
-    let mut buf = v.to_vec();
-    median_in_place(&mut buf)
+    if v.iter().any(|x| x.is_nan()) {
+        return None;
+    }
+    let mut keys: Vec<i64> = v.iter().map(|&x| total_order_key(x)).collect();
+    median_of_keys(&mut keys)
+}
+
+/// The integer whose order is `f64::total_cmp`'s (the very transformation `total_cmp`
+/// makes before it compares): one to one, so the value of a rank comes back to the bit.
+/// Selecting among integers, whose comparisons the standard library's partition does
+/// without branches, took a quarter to a third less time than with the `total_cmp`
+/// closure on 5000 digitised samples, the copy of the keys included.
+#[inline]
+pub(crate) fn total_order_key(x: f64) -> i64 {
+    let b = x.to_bits() as i64;
+    b ^ ((((b >> 63) as u64) >> 1) as i64)
+}
+
+/// The value of a [`total_order_key`].
+#[inline]
+fn from_total_order_key(k: i64) -> f64 {
+    f64::from_bits((k ^ ((((k >> 63) as u64) >> 1) as i64)) as u64)
+}
+
+/// The value of rank n / 2 among the keys of [`total_order_key`] (reordering them);
+/// `None` when there are none.
+pub(crate) fn median_of_keys(keys: &mut [i64]) -> Option<f64> {
+    if keys.is_empty() {
+        return None;
+    }
+    let mid = keys.len() / 2;
+    Some(from_total_order_key(*keys.select_nth_unstable(mid).1))
 }
 
 /// Noise standard deviation from first differences: `MAD(diff) * 1.4826 / sqrt(2)`.
@@ -97,18 +123,18 @@ pub fn noise_sigma_where(v: &[f64], keep: impl Fn(f64, f64) -> bool) -> Option<f
 pub fn noise_sigma_of_pairs(pairs: impl Iterator<Item = (f64, f64)>) -> Option<f64> {
     // Room for every pair at once (see `median_near`).
     let (least, most) = pairs.size_hint();
-    let mut d: Vec<f64> = Vec::with_capacity(most.unwrap_or(least));
+    let mut d: Vec<i64> = Vec::with_capacity(most.unwrap_or(least));
     d.extend(
         pairs
             .filter(|(a, b)| a.is_finite() && b.is_finite())
-            .map(|(a, b)| (b - a).abs()),
+            .map(|(a, b)| total_order_key((b - a).abs())),
     );
     if d.len() < 8 {
         return None;
     }
     // The differences are absolute values of a zero-centred quantity, so their median is
     // the MAD of the differences.
-    median_in_place(&mut d).map(|m| m * MAD_TO_SIGMA / std::f64::consts::SQRT_2)
+    median_of_keys(&mut d).map(|m| m * MAD_TO_SIGMA / std::f64::consts::SQRT_2)
 }
 
 /// Noise standard deviation over the whole record (see [`noise_sigma_where`]).
@@ -176,10 +202,16 @@ pub fn median_near(v: &[f64], c: f64, w: f64) -> Option<(f64, usize)> {
     if v.len() <= SHORT_RECORD {
         // Room for every value at once: a filtered collect grows by doubling and copies,
         // which cost half as much as the selection.
-        let mut near: Vec<f64> = Vec::with_capacity(v.len());
-        near.extend(v.iter().copied().filter(|x| (x - c).abs() <= w));
+        // (NaN is never near, so the keys hold none.)
+        let mut near: Vec<i64> = Vec::with_capacity(v.len());
+        near.extend(
+            v.iter()
+                .copied()
+                .filter(|x| (x - c).abs() <= w)
+                .map(total_order_key),
+        );
         let n = near.len();
-        return median_in_place(&mut near).map(|m| (m, n));
+        return median_of_keys(&mut near).map(|m| (m, n));
     }
     const BINS: usize = 4096;
     // Long records are counted in parallel pieces; the tallies add up in any order.
@@ -589,6 +621,49 @@ mod tests {
     /// The bounded-memory median equals the plain one (copy and select, the reference) on
     /// continuous values, on values repeated on a code grid, and at the window's edges; the
     /// records are longer than `SHORT_RECORD`, so the tally answers, not the copy.
+    /// The median selected on integer keys is the element `select_nth_unstable_by` with
+    /// `f64::total_cmp` gives (the definition the keys stand in for), to the bit: signed
+    /// zeros, infinities, subnormals, repeated codes, odd and even counts.
+    #[test]
+    fn the_median_on_keys_is_the_total_order_median() {
+        let by_cmp = |v: &[f64]| {
+            let mut b = v.to_vec();
+            let mid = b.len() / 2;
+            b.select_nth_unstable_by(mid, f64::total_cmp).1.to_bits()
+        };
+        let specials = [
+            0.0,
+            -0.0,
+            f64::INFINITY,
+            f64::NEG_INFINITY,
+            f64::MIN_POSITIVE / 4.0,
+            -f64::MIN_POSITIVE / 4.0,
+            1.5,
+            -1.5,
+            24.3137,
+            -0.3922,
+        ];
+        let mut g = 7u64;
+        for n in 1..60 {
+            let v: Vec<f64> = (0..n)
+                .map(|_| {
+                    g = g
+                        .wrapping_mul(6364136223846793005)
+                        .wrapping_add(1442695040888963407);
+                    specials[(g >> 33) as usize % specials.len()]
+                })
+                .collect();
+            assert_eq!(median(&v).map(f64::to_bits), Some(by_cmp(&v)), "{v:?}");
+            let x = v[0];
+            assert_eq!(
+                from_total_order_key(total_order_key(x)).to_bits(),
+                x.to_bits()
+            );
+        }
+        assert_eq!(median(&[1.0, f64::NAN]), None);
+        assert_eq!(median(&[]), None);
+    }
+
     #[test]
     fn median_near_equals_the_plain_median() {
         let mut g = 12345u64;

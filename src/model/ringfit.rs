@@ -134,18 +134,17 @@ pub fn noise_sigma(v: &[f64]) -> f64 {
         return 0.0;
     }
     // Room for every difference at once: a filtered collect grows by doubling and copies.
-    let mut d2: Vec<f64> = Vec::with_capacity(v.len() - 2);
+    let mut d2: Vec<i64> = Vec::with_capacity(v.len() - 2);
     d2.extend(
         v.windows(3)
             .map(|w| (w[2] - 2.0 * w[1] + w[0]).abs())
-            .filter(|x| x.is_finite()),
+            .filter(|x| x.is_finite())
+            .map(crate::levels::total_order_key),
     );
-    if d2.is_empty() {
+    let Some(med) = crate::levels::median_of_keys(&mut d2) else {
         return 0.0;
-    }
-    let mid = d2.len() / 2;
-    let (_, med, _) = d2.select_nth_unstable_by(mid, f64::total_cmp);
-    1.4826 * *med / 6f64.sqrt()
+    };
+    1.4826 * med / 6f64.sqrt()
 }
 
 /// Counts crossings of `u` (the signal minus its final level) through zero with a
