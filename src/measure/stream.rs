@@ -585,12 +585,7 @@ struct ClosedWindow {
 /// ([`RunNear::push_both`]): about a fifth of the instructions (9 a sample and level
 /// one by one, under 2 on masks compiled for AVX2).
 pub(crate) fn longest_runs_near(v: &[f64], levels: [f64; 2], half_width_v: f64) -> [usize; 2] {
-    let mut runs = levels.map(|level_v| RunNear {
-        level_v,
-        half_width_v,
-        run: 0,
-        best: 0,
-    });
+    let mut runs = RunNear::both(levels, half_width_v);
     RunNear::push_both(&mut runs, v);
     runs.map(|r| r.best)
 }
@@ -606,6 +601,16 @@ struct RunNear {
 }
 
 impl RunNear {
+    /// Counters for two levels, nothing seen yet.
+    fn both(levels: [f64; 2], half_width_v: f64) -> [RunNear; 2] {
+        levels.map(|level_v| RunNear {
+            level_v,
+            half_width_v,
+            run: 0,
+            best: 0,
+        })
+    }
+
     crate::avx2::twice_compiled!(
         /// Feeds a block to both levels' counters. Sixty-four samples at a time become a
         /// bit mask (comparisons that vectorise), and the runs are counted on the mask: a
@@ -679,13 +684,7 @@ impl Scan<'_> {
         let mut memory_cuts = 0usize;
         let mut index = 0usize;
         let mut last_len = 0usize;
-        let half_width = 2.0 * self.resolution_v;
-        let mut runs = [self.cx.v_on, self.cx.v_off].map(|level_v| RunNear {
-            level_v,
-            half_width_v: half_width,
-            run: 0,
-            best: 0,
-        });
+        let mut runs = RunNear::both([self.cx.v_on, self.cx.v_off], 2.0 * self.resolution_v);
         // History kept beyond what the next edge can ask for: the edge is reported once
         // the signal has risen past the hysteresis band, a little after the crossing.
         let keep = self.history() + (1 << 16);
@@ -1046,12 +1045,7 @@ mod tests {
         );
         assert_eq!(longest_runs_near(&v, [1.0, 5.0], 0.05), best);
         for size in [1, 5, 63, 64, 65, 129, v.len()] {
-            let mut runs = [1.0, 5.0].map(|level_v| RunNear {
-                level_v,
-                half_width_v: 0.05,
-                run: 0,
-                best: 0,
-            });
+            let mut runs = RunNear::both([1.0, 5.0], 0.05);
             // The baseline build too (the AVX2 one runs above where the CPU has it).
             let mut baseline = runs;
             for block in v.chunks(size) {
