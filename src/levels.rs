@@ -52,46 +52,48 @@ pub fn overshoot_pct(base_v: f64, top_v: f64, peak_v: f64) -> Option<f64> {
     (amp > 0.0).then(|| (peak_v - top_v).abs() / amp * 100.0)
 }
 
-/// Median of a buffer (the element of rank n / 2 in `f64::total_cmp` order). `None` when
+/// Median of a slice: the element of rank n / 2 in `f64::total_cmp` order. `None` when
 /// empty or when it holds a NaN.
-pub fn median_in_place(buf: &mut [f64]) -> Option<f64> {
-    median(buf)
-}
-
-/// Median of a slice, as [`median_in_place`] (selected on a copy of its keys).
 pub fn median(v: &[f64]) -> Option<f64> {
     if v.iter().any(|x| x.is_nan()) {
         return None;
     }
-    let mut keys: Vec<i64> = v.iter().map(|&x| total_order_key(x)).collect();
-    median_of_keys(&mut keys)
+    median_of(v.iter().copied(), v.len()).map(|(m, _)| m)
 }
 
-/// The integer whose order is `f64::total_cmp`'s (the very transformation `total_cmp`
-/// makes before it compares): one to one, so the value of a rank comes back to the bit.
-/// Selecting among integers, whose comparisons the standard library's partition does
-/// without branches, took a quarter to a third less time than with the `total_cmp`
-/// closure on 5000 digitised samples, the copy of the keys included.
+/// The median (rank n / 2 in `f64::total_cmp` order, NaN included in that order) of the
+/// values `values` gives, and their count n; `None` when there are none. `room` sizes the
+/// buffer at once (a filtered collect grows by doubling and copies, which cost half as
+/// much as the selection).
+///
+/// The values are selected as integer keys in the same order (the very transformation
+/// `total_cmp` makes before it compares; one to one, so the value of the rank comes back
+/// to the bit): the standard library partitions integers without branches, a quarter to a
+/// third less time than with the `total_cmp` closure on 5000 digitised samples, the copy
+/// of the keys included.
+pub(crate) fn median_of(values: impl Iterator<Item = f64>, room: usize) -> Option<(f64, usize)> {
+    let mut keys: Vec<i64> = Vec::with_capacity(room);
+    keys.extend(values.map(total_order_key));
+    let n = keys.len();
+    if n == 0 {
+        return None;
+    }
+    let k = *keys.select_nth_unstable(n / 2).1;
+    Some((from_total_order_key(k), n))
+}
+
+/// `x`'s place in `f64::total_cmp`'s order as an integer (the transform that method
+/// compares): the sign bit set flips every other bit, so negative values count down.
 #[inline]
 pub(crate) fn total_order_key(x: f64) -> i64 {
     let b = x.to_bits() as i64;
     b ^ ((((b >> 63) as u64) >> 1) as i64)
 }
 
-/// The value of a [`total_order_key`].
+/// The value of a [`total_order_key`] (the transform undoes itself).
 #[inline]
-fn from_total_order_key(k: i64) -> f64 {
+pub(crate) fn from_total_order_key(k: i64) -> f64 {
     f64::from_bits((k ^ ((((k >> 63) as u64) >> 1) as i64)) as u64)
-}
-
-/// The value of rank n / 2 among the keys of [`total_order_key`] (reordering them);
-/// `None` when there are none.
-pub(crate) fn median_of_keys(keys: &mut [i64]) -> Option<f64> {
-    if keys.is_empty() {
-        return None;
-    }
-    let mid = keys.len() / 2;
-    Some(from_total_order_key(*keys.select_nth_unstable(mid).1))
 }
 
 /// Noise standard deviation from first differences: `MAD(diff) * 1.4826 / sqrt(2)`.
@@ -104,7 +106,8 @@ pub fn noise_sigma_where(v: &[f64], keep: impl Fn(f64, f64) -> bool) -> Option<f
     if stride == 1 {
         // Every pair (a record up to MAX_NOISE_SAMPLES long): neighbouring windows, without
         // the index arithmetic and bounds checks of the strided walk (which was 1.4 % of a
-        // folder of short captures' instructions; this takes about half of that).
+        // folder of short captures' instructions; this takes about half of that, and
+        // `windows(2).step_by(1)` for both cases 0.9 % more than this).
         return noise_sigma_of_pairs(
             v.windows(2)
                 .map(|w| (w[0], w[1]))
@@ -121,20 +124,14 @@ pub fn noise_sigma_where(v: &[f64], keep: impl Fn(f64, f64) -> bool) -> Option<f
 /// Noise standard deviation from pairs of neighbouring samples, as [`noise_sigma_where`]
 /// computes it; the pairs of a long record can be gathered while streaming it.
 pub fn noise_sigma_of_pairs(pairs: impl Iterator<Item = (f64, f64)>) -> Option<f64> {
-    // Room for every pair at once (see `median_near`).
     let (least, most) = pairs.size_hint();
-    let mut d: Vec<i64> = Vec::with_capacity(most.unwrap_or(least));
-    d.extend(
-        pairs
-            .filter(|(a, b)| a.is_finite() && b.is_finite())
-            .map(|(a, b)| total_order_key((b - a).abs())),
-    );
-    if d.len() < 8 {
-        return None;
-    }
+    let d = pairs
+        .filter(|(a, b)| a.is_finite() && b.is_finite())
+        .map(|(a, b)| (b - a).abs());
     // The differences are absolute values of a zero-centred quantity, so their median is
     // the MAD of the differences.
-    median_of_keys(&mut d).map(|m| m * MAD_TO_SIGMA / std::f64::consts::SQRT_2)
+    let (mad, n) = median_of(d, most.unwrap_or(least))?;
+    (n >= 8).then(|| mad * MAD_TO_SIGMA / std::f64::consts::SQRT_2)
 }
 
 /// Noise standard deviation over the whole record (see [`noise_sigma_where`]).
@@ -189,7 +186,7 @@ pub fn level_near(v: &[f64], target_v: f64, half_width_v: f64) -> Option<f64> {
     (n >= 16).then_some(m)
 }
 
-/// The median (the element of rank n / 2 in total order, as [`median_in_place`]) of the n
+/// The median (the element of rank n / 2 in total order, as [`median`]) of the n
 /// samples within `w` of `c`, and n, in memory that does not grow with the record: a
 /// counting pass over fine sub-bins of `[c - w, c + w]` finds the sub-bin holding that
 /// rank (the bin index rises with the value, so ranks stay in bin order), and a second pass
@@ -200,18 +197,8 @@ pub fn median_near(v: &[f64], c: f64, w: f64) -> Option<(f64, usize)> {
     // A short record is copied and selected in: less work than the tally's bins, and the
     // same answer by definition.
     if v.len() <= SHORT_RECORD {
-        // Room for every value at once: a filtered collect grows by doubling and copies,
-        // which cost half as much as the selection.
-        // (NaN is never near, so the keys hold none.)
-        let mut near: Vec<i64> = Vec::with_capacity(v.len());
-        near.extend(
-            v.iter()
-                .copied()
-                .filter(|x| (x - c).abs() <= w)
-                .map(total_order_key),
-        );
-        let n = near.len();
-        return median_of_keys(&mut near).map(|m| (m, n));
+        // (NaN is never near, so none is selected.)
+        return median_of(v.iter().copied().filter(|x| (x - c).abs() <= w), v.len());
     }
     const BINS: usize = 4096;
     // Long records are counted in parallel pieces; the tallies add up in any order.
@@ -685,9 +672,9 @@ mod tests {
             (&coded, 1.0, 0.5),
             (&coded, 0.5, 2.0),
         ] {
-            let mut near: Vec<f64> = v.iter().copied().filter(|x| (x - c).abs() <= w).collect();
+            let near: Vec<f64> = v.iter().copied().filter(|x| (x - c).abs() <= w).collect();
             let n = near.len();
-            let plain = median_in_place(&mut near).unwrap();
+            let plain = median(&near).unwrap();
             assert_eq!(median_near(v, c, w), Some((plain, n)), "c {c} w {w}");
         }
         assert_eq!(median_near(&smooth, 100.0, 1.0), None);
@@ -696,13 +683,13 @@ mod tests {
         let long: Vec<f64> = (0..700_001)
             .map(|k| if k % 3 == 0 { 2.5 } else { 2.0 + next() })
             .collect();
-        let mut near: Vec<f64> = long
+        let near: Vec<f64> = long
             .iter()
             .copied()
             .filter(|x| (x - 2.5).abs() <= 0.3)
             .collect();
         let n = near.len();
-        let plain = median_in_place(&mut near).unwrap();
+        let plain = median(&near).unwrap();
         assert_eq!(median_near(&long, 2.5, 0.3), Some((plain, n)));
     }
 

@@ -6,6 +6,7 @@
 //! gap between distinct values when every gap is a whole multiple of it.
 
 use super::AdcRange;
+use crate::levels::{from_total_order_key, total_order_key};
 
 /// Samples at exactly the extreme value needed to call it a rail.
 const MIN_RAIL_HITS: u64 = 3;
@@ -198,18 +199,6 @@ pub(crate) fn code_step(values: &[f64]) -> Option<f64> {
         })
         .count();
     (on_grid as f64 >= GRID_SHARE * gaps.len() as f64).then_some(step)
-}
-
-/// `x`'s place in `f64::total_cmp`'s order (the transform that method compares): the
-/// sign bit set flips every other bit, so negative values count down.
-fn total_order_key(x: f64) -> i64 {
-    let b = x.to_bits() as i64;
-    b ^ ((((b >> 63) as u64) >> 1) as i64)
-}
-
-/// The value of a [`total_order_key`] (the transform undoes itself).
-fn from_total_order_key(k: i64) -> f64 {
-    f64::from_bits((k ^ ((((k >> 63) as u64) >> 1) as i64)) as u64)
 }
 
 #[cfg(test)]

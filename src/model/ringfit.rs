@@ -133,15 +133,11 @@ pub fn noise_sigma(v: &[f64]) -> f64 {
     if v.len() < 3 {
         return 0.0;
     }
-    // Room for every difference at once: a filtered collect grows by doubling and copies.
-    let mut d2: Vec<i64> = Vec::with_capacity(v.len() - 2);
-    d2.extend(
-        v.windows(3)
-            .map(|w| (w[2] - 2.0 * w[1] + w[0]).abs())
-            .filter(|x| x.is_finite())
-            .map(crate::levels::total_order_key),
-    );
-    let Some(med) = crate::levels::median_of_keys(&mut d2) else {
+    let d2 = v
+        .windows(3)
+        .map(|w| (w[2] - 2.0 * w[1] + w[0]).abs())
+        .filter(|x| x.is_finite());
+    let Some((med, _)) = crate::levels::median_of(d2, v.len() - 2) else {
         return 0.0;
     };
     1.4826 * med / 6f64.sqrt()

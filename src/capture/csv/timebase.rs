@@ -132,13 +132,8 @@ fn bare_time_cell(
 }
 
 fn median(v: &[f64]) -> Option<f64> {
-    // Equal keys under total_cmp are equal bits: selecting gives what sorting gave (here
-    // on integer keys, which select faster, see `levels::total_order_key`).
-    let mut keys: Vec<i64> = v
-        .iter()
-        .map(|&x| crate::levels::total_order_key(x))
-        .collect();
-    crate::levels::median_of_keys(&mut keys)
+    // Equal keys under total_cmp are equal bits: selecting gives what sorting gave.
+    crate::levels::median_of(v.iter().copied(), v.len()).map(|(m, _)| m)
 }
 
 /// Whether times rise in equal steps (a time column without a header says so).
