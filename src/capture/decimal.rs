@@ -187,10 +187,17 @@ impl SciShape {
         Some((decimal_of(w, exp, self.decimals as u32, negative)?, end))
     }
 
+    /// The number [`SciShape::parts`] found (`None` beyond the fast path's exact cases),
+    /// exactly what [`SciShape::read`] gives for the same text.
+    #[inline(always)]
+    pub(crate) fn decimal(self, w: u64, exp: i32, negative: bool) -> Option<Decimal> {
+        decimal_of(w, exp, self.decimals as u32, negative)
+    }
+
     /// The mantissa's digits as an integer, the exponent, the sign and the length of the
     /// number at the start of `text`, when it has this layout.
     #[inline(always)]
-    fn parts(self, text: &[u8]) -> Option<(u64, i32, bool, usize)> {
+    pub(crate) fn parts(self, text: &[u8]) -> Option<(u64, i32, bool, usize)> {
         let (negative, at) = match text.first() {
             Some(b'-') => (true, 1),
             Some(b'+') => (false, 1),

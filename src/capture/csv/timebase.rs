@@ -222,6 +222,32 @@ pub(super) fn check_time(
     Ok(())
 }
 
+/// Whether [`check_time`] passes by its short cut every row whose time is printed with
+/// the place `q_file` (in the column's unit) and lies `units` of that place after the
+/// previous row's time, printed with the same place, when both times are smaller than
+/// `max_file`: so a run of such rows can be counted from the printed digits alone (see
+/// `RowFormat::sci_pair_run`), without forming the times, and the check ends the same.
+///
+/// Both rows' `rounding` is then `q + q` and the allowance is fixed, computed here as the
+/// check computes them. Only `dev` depends on the two times, through rounding errors: each
+/// time carries two roundings (the number read, the unit factor), each within 2^-53 of
+/// it, so within 2^-51 of `max_file * factor` together; the step and `dev` add one rounding
+/// each. The step estimated here (`units * q`) carries a few more, `q` included (the
+/// powers of ten come from `powi`). A slack of 2^-45 of the magnitudes involved bounds
+/// all of these with a margin of sixteen, so the computed `dev` is below the allowance for
+/// every such pair whenever the estimate plus the slack is.
+pub(super) fn step_always_passes(tc: &TimeCheck, units: i64, q_file: f64, max_file: f64) -> bool {
+    if tc.exact || units <= 0 {
+        return false;
+    }
+    let q = q_file * tc.factor;
+    let rounding = q + q;
+    let allowance = JITTER_FRACTION * tc.dt_s + rounding;
+    let step = units as f64 * q;
+    let slack = ((max_file * tc.factor).abs() + step + tc.dt_s) * (1.0 / (1u64 << 45) as f64);
+    rounding < 0.25 * tc.dt_s && (step - tc.dt_s).abs() + slack <= allowance
+}
+
 #[cold]
 fn backwards(file: &Path, line: usize, t: f64, prev: f64) -> CaptureError {
     csv_err(
@@ -424,6 +450,31 @@ mod tests {
         let c = TimeCheck::from_first_rows(&t, 1.0).unwrap();
         assert_eq!(c.dt_s, 1.0);
         assert_eq!(c.dt_from, "median step");
+    }
+
+    /// Steps counted on printed digits: 20 ns samples printed as `%.9e` at the exponent
+    /// -2 (`1.999996000e-02`) have a last place of 1e-11 s, so a step of 2000 counts is the
+    /// interval. The check allows 1 % of it plus both times' rounding (2e-11 s): 2001
+    /// counts (0.05 % off) always pass, 2300 (15 % off, jitter the check counts) do not,
+    /// nor do steps back, nor any step where the place is as coarse as the interval.
+    #[test]
+    fn steps_that_always_pass_the_short_cut() {
+        let t = fixed(&[0.0, 2e-8, 4e-8, 6e-8, 8e-8], 1e-17);
+        let c = TimeCheck::from_first_rows(&t, 1.0).unwrap();
+        assert!(!c.exact);
+        let always = |units: i64, place: f64| step_always_passes(&c, units, place, 0.1);
+        assert!(always(2000, 1e-11));
+        assert!(always(2001, 1e-11));
+        assert!(always(1999, 1e-11));
+        assert!(!always(2300, 1e-11));
+        assert!(!always(-2000, 1e-11));
+        assert!(!always(0, 1e-11));
+        // A place of 1e-8 s: rounding (2e-8 s) is not below a quarter step.
+        assert!(!always(2, 1e-8));
+        // A unit factor (ms) scales the place and the largest time alike.
+        let ms = TimeCheck::from_first_rows(&fixed(&[0.0, 2e-5, 4e-5, 6e-5], 1e-14), 1e-3).unwrap();
+        assert!(step_always_passes(&ms, 2000, 1e-8, 100.0));
+        assert!(!step_always_passes(&ms, 2300, 1e-8, 100.0));
     }
 
     /// A column printed more coarsely than it steps that comes back to its first value
