@@ -326,24 +326,32 @@ pub fn measure_event(cx: &Context, w: &Window) -> (Event, LocalLevels) {
         _ => (None, None),
     };
 
-    let volt_seconds = (e + 1..ae).map(|k| v[k] - cx.v_off).sum::<f64>() * cx.dt_s;
+    let after = v.get(e + 1..ae).unwrap_or(&[]);
+    let volt_seconds = series::lane_sum(after, after, |x, _| x - cx.v_off) * cx.dt_s;
 
     // Current: I0 just before the edge, energies per where the probe sits.
     let i_slice = cx.i.filter(|i| i.len() == n);
     let pre_from = k10.saturating_sub(32).max(w.start);
     let i0_signed = i_slice.and_then(|i| median(i.get(pre_from..k10.max(pre_from + 1))?));
     let i0_a = i0_signed.map(f64::abs).or(cx.opts.coil_current_a);
-    let integral = |from: usize, to: usize, f: &dyn Fn(usize) -> f64| -> f64 {
-        (from..to.min(n)).map(f).sum::<f64>() * cx.dt_s
-    };
     let (mut energy_j, mut clamp_energy_j, mut energy_to_peak_j) = (None, None, None);
     if let Some(i) = i_slice {
-        let across_switch = |k: usize| s * (v[k] - rail_v) * i[k];
-        energy_to_peak_j = Some(integral(e + 1, p + 1, &across_switch));
+        // The voltage and current samples `from..to`, cut to the window.
+        let span = |from: usize, to: usize| {
+            let r = from..to.min(n);
+            (v.get(r.clone()).unwrap_or(&[]), i.get(r).unwrap_or(&[]))
+        };
+        let across_switch = |x: f64, i: f64| s * (x - rail_v) * i;
+        let (vs, is) = span(e + 1, p + 1);
+        energy_to_peak_j = Some(series::lane_sum(vs, is, across_switch) * cx.dt_s);
+        let (vs, is) = span(e + 1, ae);
         match cx.opts.current_through {
-            CurrentThrough::Switch => energy_j = Some(integral(e + 1, ae, &across_switch)),
+            CurrentThrough::Switch => {
+                energy_j = Some(series::lane_sum(vs, is, across_switch) * cx.dt_s)
+            }
             CurrentThrough::Coil => {
-                clamp_energy_j = Some(integral(e + 1, ae, &|k| s * (v[k] - cx.v_off) * i[k]))
+                let across_clamp = |x: f64, i: f64| s * (x - cx.v_off) * i;
+                clamp_energy_j = Some(series::lane_sum(vs, is, across_clamp) * cx.dt_s)
             }
         }
     }
