@@ -396,15 +396,15 @@ pub fn fft_peak_hz(y: &[f64], dt_s: f64) -> Option<f64> {
         let buf = &mut work.buf;
         buf.clear();
         buf.resize(half, Complex::new(0.0, 0.0));
-        for (k, &x) in y.iter().enumerate() {
-            let w = 0.5 - 0.5 * (2.0 * std::f64::consts::PI * k as f64 / (n - 1) as f64).cos();
-            let v = (x - mean) * w;
+        // Hann window 0.5 - 0.5 cos(2 pi k / (n - 1)), its cosines from phasors.
+        phasors(2.0 * std::f64::consts::PI / (n - 1) as f64, n, |k, p| {
+            let v = (y[k] - mean) * (0.5 - 0.5 * p.re);
             if k % 2 == 0 {
                 buf[k / 2].re = v;
             } else {
                 buf[k / 2].im = v;
             }
-        }
+        });
         let fft = work.planner.plan_fft_forward(half);
         work.scratch
             .resize(fft.get_inplace_scratch_len(), Complex::new(0.0, 0.0));
@@ -434,17 +434,8 @@ fn real_spectrum_sq(z: &[Complex<f64>], out: &mut Vec<f64>) {
     if m == 0 {
         return;
     }
-    let theta = -std::f64::consts::PI / m as f64;
-    let (s1, c1) = theta.sin_cos();
-    let step = Complex::new(c1, s1);
-    let mut w = Complex::new(1.0, 0.0);
     out.reserve(m);
-    for k in 0..m {
-        // The twiddle by rotation, set afresh every 64 bins so rounding cannot build up.
-        if k % 64 == 0 {
-            let (s, c) = (theta * k as f64).sin_cos();
-            w = Complex::new(c, s);
-        }
+    phasors(-std::f64::consts::PI / m as f64, m, |k, w| {
         let a = z[k];
         // (Bin 0 pairs with itself; a remainder here, an integer division a bin, was a
         // third of the ring analysis' time.)
@@ -452,7 +443,33 @@ fn real_spectrum_sq(z: &[Complex<f64>], out: &mut Vec<f64>) {
         let even = (a + b) * 0.5;
         let odd = (a - b) * Complex::new(0.0, -0.5);
         out.push((even + w * odd).norm_sqr());
-        w *= step;
+    });
+}
+
+/// Bins of a phasor table: [`phasors`] multiplies a coarse phasor every this many.
+const PHASOR_BLOCK: usize = 64;
+
+/// `exp(i theta k)` for `k` in `0..count`, handed to `each` in order. Each is the product
+/// of a coarse phasor (every [`PHASOR_BLOCK`]th, from `sin_cos`) and a fine one (`k` modulo
+/// the block, from a table made once per call): no phasor waits for the one before, where
+/// rotating one phasor bin by bin made every bin wait for the last complex product (and
+/// carried up to 63 roundings; here each carries the two `sin_cos` and one product's).
+/// A cosine per sample (the Hann window) cost more still.
+fn phasors(theta: f64, count: usize, mut each: impl FnMut(usize, Complex<f64>)) {
+    let fine: [Complex<f64>; PHASOR_BLOCK] = std::array::from_fn(|j| {
+        let (s, c) = if j < count {
+            (theta * j as f64).sin_cos()
+        } else {
+            (0.0, 1.0)
+        };
+        Complex::new(c, s)
+    });
+    for k0 in (0..count).step_by(PHASOR_BLOCK) {
+        let (s, c) = (theta * k0 as f64).sin_cos();
+        let coarse = Complex::new(c, s);
+        for (j, f) in fine.iter().enumerate().take(count - k0) {
+            each(k0 + j, coarse * f);
+        }
     }
 }
 
@@ -501,6 +518,30 @@ fn peak_of_spectrum(mags: &[f64], n: usize, nfft: usize, dt_s: f64) -> Option<f6
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// Phasors from the coarse-times-fine table agree with `sin_cos` of each angle to a few
+    /// units in the last place, in order and one per index, for counts around the block.
+    #[test]
+    fn phasors_match_sin_cos() {
+        for count in [0usize, 1, 2, 63, 64, 65, 1000] {
+            for theta in [
+                -std::f64::consts::PI / 4096.0,
+                2.0 * std::f64::consts::PI / 999.0,
+            ] {
+                let mut next = 0;
+                phasors(theta, count, |k, p| {
+                    assert_eq!(k, next);
+                    next += 1;
+                    let (s, c) = (theta * k as f64).sin_cos();
+                    assert!(
+                        (p.re - c).abs() < 1e-15 && (p.im - s).abs() < 1e-15,
+                        "{k} {p}"
+                    );
+                });
+                assert_eq!(next, count);
+            }
+        }
+    }
     use std::f64::consts::PI;
 
     fn damped(zeta: f64, f_hz: f64, dt: f64, n: usize) -> Vec<f64> {
