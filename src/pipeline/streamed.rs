@@ -14,7 +14,9 @@ use std::path::Path;
 
 use super::spill::{SpillReader, SpillWriter, RECORD_SAMPLES};
 use super::{capture_doc, fit_plot, model_context, pick_channels, Settings, SKETCH_POINTS};
-use crate::capture::{self, AdcRange, Block, BlockReader, Capture, Channel, Format};
+use crate::capture::{
+    self, AdcRange, Block, BlockReader, Capture, Channel, Format, DEFAULT_BLOCK_LEN,
+};
 use crate::document::CaptureDoc;
 use crate::measure::stream::{
     measure_stream, BlockSink, Observer, Replay, Samples, StreamInfo, StreamLimits, Surveyor,
@@ -59,7 +61,19 @@ pub fn load(path: &Path, settings: &Settings, sketch: bool) -> Result<Loaded, St
     let mut channels: Vec<Vec<f64>> = vec![Vec::new(); reader.header().channels.len()];
     let mut block = Block::default();
     let mut held = 0usize;
+    let limit = settings.stream_above.unwrap_or(IN_MEMORY_SAMPLES);
     while next_block(path, &mut reader, &mut block, settings)? {
+        if held == 0 && block.len() >= DEFAULT_BLOCK_LEN {
+            // A capture of more than one block: room for as much as is ever held, made
+            // once. Grown by doubling, the vectors were copied a dozen times and their
+            // pages faulted in twice, with the parsing threads waiting meanwhile (a
+            // tenth of a 10 M-sample CSV's first million samples). Pages never written
+            // are never resident.
+            let room = limit.min(IN_MEMORY_SAMPLES) + block.len();
+            for all in &mut channels {
+                all.reserve_exact(room);
+            }
+        }
         held += block.len();
         for (all, part) in channels.iter_mut().zip(&block.channels) {
             all.extend_from_slice(part);
