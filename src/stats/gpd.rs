@@ -61,8 +61,10 @@ pub(crate) fn nll(y: &[f64], sigma: f64, xi: f64) -> f64 {
         s += y.iter().sum::<f64>() / sigma;
     } else {
         let a = 1.0 + 1.0 / xi;
+        // A product, not a division a point (see `gev::nll`).
+        let xi_over_sigma = xi / sigma;
         for &v in y {
-            let arg = xi * v / sigma;
+            let arg = xi_over_sigma * v;
             if !above(arg, -1.0) {
                 return f64::INFINITY;
             }

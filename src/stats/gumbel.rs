@@ -37,8 +37,10 @@ pub(crate) fn nll(x: &[f64], mu: f64, beta: f64) -> f64 {
         return f64::INFINITY;
     }
     let mut s = x.len() as f64 * beta.ln();
+    // A product with the reciprocal, not a division a point (see `gev::nll`).
+    let inv_beta = 1.0 / beta;
     for &v in x {
-        let y = (v - mu) / beta;
+        let y = (v - mu) * inv_beta;
         s += y + (-y).exp();
     }
     if s.is_nan() {
