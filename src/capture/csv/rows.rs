@@ -770,8 +770,13 @@ impl RowFormat {
         };
         let mut at = *pos;
         let mut problem = None;
+        let short = shape.short();
         while let Some(rest) = text.get(at..).filter(|r| !r.is_empty()) {
-            let Some((w, exp, negative, t_len)) = shape.parts(rest) else {
+            let parts = match short {
+                Some(s) => s.parts(rest).or_else(|| shape.parts(rest)),
+                None => shape.parts(rest),
+            };
+            let Some((w, exp, negative, t_len)) = parts else {
                 break;
             };
             if rest.get(t_len) != Some(&d) {
