@@ -332,14 +332,25 @@ fn measure_streaming(
         }
     }
     let mut feed = |sig: &Channel, cur: Option<&Channel>| -> Result<(), String> {
-        survey.push(&sig.samples);
-        if let Some(s) = spill_v.as_mut() {
-            s.write(&sig.samples).map_err(io)?;
+        let (spill_v, spill_i) = (&mut spill_v, &mut spill_i);
+        let mut spill = move || -> Result<(), String> {
+            if let Some(s) = spill_v.as_mut() {
+                s.write(&sig.samples).map_err(io)?;
+            }
+            if let (Some(s), Some(c)) = (spill_i.as_mut(), cur) {
+                s.write(&c.samples).map_err(io)?;
+            }
+            Ok(())
+        };
+        if sig.samples.len() > DEFAULT_BLOCK_LEN {
+            // The samples held before the stream began (a million or so): surveyed and
+            // spilled side by side, where one core did both while the other read a
+            // single block and waited (a tenth of a 10 M-sample CSV's wall time).
+            rayon::join(|| survey.push(&sig.samples), spill).1
+        } else {
+            survey.push(&sig.samples);
+            spill()
         }
-        if let (Some(s), Some(c)) = (spill_i.as_mut(), cur) {
-            s.write(&c.samples).map_err(io)?;
-        }
-        Ok(())
     };
     // Delimited text: each block is surveyed and spilled while the next one is read and
     // parsed, so the two halves keep both cores busy instead of taking turns. Binary
