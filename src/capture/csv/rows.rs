@@ -738,6 +738,7 @@ impl RowFormat {
     /// took a division) or the check's arithmetic: a fifth of a long file's rows' cost.
     /// The previous time, which the check keeps, is formed again from its digits when a
     /// row needs it (the same number: the same digits go through the same arithmetic).
+    #[inline(never)]
     fn sci_pair_run(
         &self,
         text: &[u8],
