@@ -85,13 +85,16 @@ crate::avx2::twice_compiled!(
 
 #[inline(always)]
 fn codes_at_on(v: &[f64], places: usize, codes: &mut Vec<i32>) -> bool {
+    // Written in place by index, not by `extend`: that is a function of the standard
+    // library's of its own, compiled without AVX2 and one value at a time.
     codes.clear();
+    codes.resize(v.len(), 0);
     let mut all = true;
-    codes.extend(v.iter().map(|&x| {
-        let (c, ok) = code_of(x, places);
+    for (c, &x) in codes.iter_mut().zip(v) {
+        let (code, ok) = code_of(x, places);
+        *c = code;
         all &= ok;
-        c
-    }));
+    }
     all
 }
 
@@ -199,7 +202,12 @@ crate::avx2::twice_compiled!(
 
 #[inline(always)]
 fn decode_codes_on(codes: &[i32], places: usize, out: &mut Vec<f64>) {
-    out.extend(codes.iter().map(|&c| decode(c, places)));
+    // By index into room made first (see `codes_at_on`).
+    let from = out.len();
+    out.resize(from + codes.len(), 0.0);
+    for (o, &c) in out[from..].iter_mut().zip(codes) {
+        *o = decode(c, places);
+    }
 }
 
 fn payload_bytes(kind: Kind, n: usize) -> usize {
