@@ -624,8 +624,11 @@ impl RowFormat {
         let n_pieces = if chunk.len() < min_bytes.max(1) {
             1
         } else {
-            // Twice the threads, so a thread busy reading ahead does not hold the others up.
-            (2 * rayon::current_num_threads()).clamp(2, 16)
+            // Four times the threads, so a thread busy reading ahead or surveying the last
+            // block does not hold the others up: the pieces left when it comes back are
+            // short (twice the threads: 10 M CSV median 0.265 s against 0.246 s, 15 runs in
+            // turn on 2 cores).
+            (4 * rayon::current_num_threads()).clamp(2, 16)
         };
         let mut bounds = Vec::with_capacity(n_pieces + 1);
         bounds.push(0);
