@@ -460,19 +460,28 @@ fn fast_pair(
     values: &mut Vec<f64>,
 ) -> Option<(usize, Option<Decimal>)> {
     let (t, i) = read_time(shape, text, comma)?;
-    if *text.get(i)? != d {
+    let (v, len) = value_to_line_end(text, i, d, comma)?;
+    values.push(v.value * factor);
+    Some((len, Some(t)))
+}
+
+/// What follows a time cell of `t_len` bytes at the start of `row` in a row of a time and
+/// one value: the delimiter `d`, a number [`read_prefix`] reads and the line's end. The
+/// value and the row's length with its line end, or `None` for any other row.
+#[inline(always)]
+fn value_to_line_end(row: &[u8], t_len: usize, d: u8, comma: bool) -> Option<(Decimal, usize)> {
+    if *row.get(t_len)? != d {
         return None;
     }
-    let (v, j) = read_prefix(text.get(i + 1..)?, comma)?;
-    let end = i + 1 + j;
-    let len = match text.get(end) {
+    let (v, j) = read_prefix(row.get(t_len + 1..)?, comma)?;
+    let end = t_len + 1 + j;
+    let len = match row.get(end) {
         Some(b'\n') => end + 1,
-        Some(b'\r') if text.get(end + 1) == Some(&b'\n') => end + 2,
+        Some(b'\r') if row.get(end + 1) == Some(&b'\n') => end + 2,
         None => end,
         _ => return None,
     };
-    values.push(v.value * factor);
-    Some((len, Some(t)))
+    Some((v, len))
 }
 
 /// The rows of a short fixed-layout time (`short`) and one value from `*at` on, for as long
@@ -503,18 +512,11 @@ fn quick_rows(
         };
         // (w < 10^10: nine decimals at most.)
         let count = if negative { -(w as i64) } else { w as i64 };
-        if e != exp || count - prev != step || rest.get(t_len) != Some(&d) {
+        if e != exp || count - prev != step {
             break;
         }
-        let Some((v, j)) = rest.get(t_len + 1..).and_then(|r| read_prefix(r, comma)) else {
+        let Some((v, len)) = value_to_line_end(rest, t_len, d, comma) else {
             break;
-        };
-        let end = t_len + 1 + j;
-        let len = match rest.get(end) {
-            Some(b'\n') => end + 1,
-            Some(b'\r') if rest.get(end + 1) == Some(&b'\n') => end + 2,
-            None => end,
-            _ => break,
         };
         values.push(v.value * factor);
         (prev, prev_negative) = (count, negative);
@@ -860,18 +862,8 @@ impl RowFormat {
             let Some((w, exp, negative, t_len)) = parts else {
                 break;
             };
-            if rest.get(t_len) != Some(&d) {
+            let Some((v, len)) = value_to_line_end(rest, t_len, d, comma) else {
                 break;
-            }
-            let Some((v, j)) = rest.get(t_len + 1..).and_then(|r| read_prefix(r, comma)) else {
-                break;
-            };
-            let end = t_len + 1 + j;
-            let len = match rest.get(end) {
-                Some(b'\n') => end + 1,
-                Some(b'\r') if rest.get(end + 1) == Some(&b'\n') => end + 2,
-                None => end,
-                _ => break,
             };
             // (w < 10^15: the layout takes at most 14 decimals.)
             let count = if negative { -(w as i64) } else { w as i64 };
