@@ -87,6 +87,23 @@ struct Piece {
 }
 
 impl Piece {
+    /// Takes back the counts a run of rows kept in locals (lines, rows, first time) and
+    /// its problem, if any; `false` at a problem, as the runs return.
+    fn end_run(
+        &mut self,
+        (n_lines, n_rows, first_time): (usize, usize, Option<(f64, f64, usize)>),
+        problem: Option<CaptureError>,
+    ) -> bool {
+        (self.n_lines, self.n_rows, self.first_time) = (n_lines, n_rows, first_time);
+        match problem {
+            Some(e) => {
+                self.fail(e);
+                false
+            }
+            None => true,
+        }
+    }
+
     /// Keeps the piece's first problem and drops what the bad row left in the channels.
     #[cold]
     fn fail(&mut self, e: CaptureError) {
@@ -773,15 +790,8 @@ impl RowFormat {
         }
         p.channels = channels;
         p.time = time;
-        (p.n_lines, p.n_rows, p.first_time) = (n_lines, n_rows, first_time);
         *pos = at;
-        match problem {
-            Some(e) => {
-                p.fail(e);
-                false
-            }
-            None => true,
-        }
+        p.end_run((n_lines, n_rows, first_time), problem)
     }
 
     /// [`RowFormat::fast_run`] with [`fast_pair`] for the commonest layout of all: a time
@@ -913,15 +923,8 @@ impl RowFormat {
             *c = values;
         }
         p.time = Some(tc);
-        (p.n_lines, p.n_rows, p.first_time) = (n_lines, n_rows, first_time);
         *pos = at;
-        match problem {
-            Some(e) => {
-                p.fail(e);
-                false
-            }
-            None => true,
-        }
+        p.end_run((n_lines, n_rows, first_time), problem)
     }
 
     /// The fixed layout of the time cells ([`SciShape`]), judged on the first line of
