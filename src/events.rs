@@ -516,7 +516,8 @@ mod tests {
 
     /// The quiet-run short cut against the sample-by-sample state machine: long on and off
     /// stretches (taken 64 at a time), noise straddling the band edges, a dwell reached in
-    /// the middle of a run, NaN samples, and blocks of every awkward size.
+    /// the middle of a run, NaN and infinite samples, steps up and down, and blocks of
+    /// every awkward size.
     #[test]
     fn quiet_runs_give_the_same_marks_as_sample_by_sample() {
         let mut v = Vec::new();
@@ -539,20 +540,31 @@ mod tests {
                 v.extend(std::iter::repeat_n(f64::NAN, 70));
             }
         }
-        for dwell in [1, 60, 150, 400] {
-            let mut want = Vec::new();
-            let mut one = EdgeDetector::new(params(dwell));
-            for x in &v {
-                one.push_each(std::slice::from_ref(x), &mut want);
-            }
-            assert!(want.len() > 4, "dwell {dwell}: {want:?}");
-            for size in [1, 7, 63, 64, 65, 100, 1000, v.len()] {
-                let mut got = Vec::new();
-                let mut det = EdgeDetector::new(params(dwell));
-                for block in v.chunks(size) {
-                    det.push(block, &mut got);
+        v.extend(std::iter::repeat_n(f64::INFINITY, 3));
+        v.extend(std::iter::repeat_n(10.0, 100));
+        // The same record upside down: a step down, where the quiet tests' sign is minus
+        // one.
+        let flipped: Vec<f64> = v.iter().map(|x| -x).collect();
+        for (v, sign) in [(&v, 1.0), (&flipped, -1.0)] {
+            for dwell in [1, 60, 150, 400] {
+                let p = EdgeParams {
+                    v_off: 10.0 * sign,
+                    ..params(dwell)
+                };
+                let mut want = Vec::new();
+                let mut one = EdgeDetector::new(p);
+                for x in v {
+                    one.push_each(std::slice::from_ref(x), &mut want);
                 }
-                assert_eq!(got, want, "dwell {dwell}, blocks of {size}");
+                assert!(want.len() > 4, "dwell {dwell}: {want:?}");
+                for size in [1, 7, 63, 64, 65, 100, 1000, v.len()] {
+                    let mut got = Vec::new();
+                    let mut det = EdgeDetector::new(p);
+                    for block in v.chunks(size) {
+                        det.push(block, &mut got);
+                    }
+                    assert_eq!(got, want, "sign {sign}, dwell {dwell}, blocks of {size}");
+                }
             }
         }
     }

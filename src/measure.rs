@@ -540,9 +540,14 @@ fn cross_check(
     })
 }
 
+/// A state holds for at least this many consecutive samples: a level the signal never
+/// holds near for as long is warned about.
+pub(crate) const MIN_STATE_RUN: usize = 32;
+
 /// The measurement of a capture from its final pass: notes counted, level and capture
 /// warnings added. `longest_runs` are the longest stretches held near the on and the off
-/// level (see [`levels::longest_run_near`]).
+/// level (see [`levels::longest_run_near`]); only whether each reaches [`MIN_STATE_RUN`]
+/// matters, so a count may stop there.
 fn conclude(
     found: Found,
     windows: Vec<(usize, usize)>,
@@ -551,8 +556,6 @@ fn conclude(
     mut warnings: Vec<String>,
     opts: &MeasureOptions,
 ) -> CaptureMeasurement {
-    // A state holds for at least this many consecutive samples.
-    const MIN_STATE_RUN: usize = 32;
     let Found { events, notes, .. } = found;
     // A note that holds for many events is said a few times, then counted.
     let n_notes = notes.len();

@@ -28,7 +28,7 @@
 
 use super::{
     check_length_and_interval, choose_levels, conclude, cross_check, event, hysteresis_of, near_on,
-    CaptureMeasurement, Event, Found, MeasureError, MeasureOptions, Survey, Trace,
+    CaptureMeasurement, Event, Found, MeasureError, MeasureOptions, Survey, Trace, MIN_STATE_RUN,
 };
 use crate::capture::AdcRange;
 use crate::{events, levels};
@@ -115,6 +115,17 @@ impl Replay for SliceReplay<'_> {
     }
 }
 
+/// Keeps `v[from]`, `v[from + 2]`, ... at the front of `v` and drops the rest, in place: a
+/// new vector for each halving of the survey's copies was pages faulted in afresh each time
+/// (the copies are megabytes).
+fn keep_every_other<T: Copy>(v: &mut Vec<T>, from: usize) {
+    let kept = v.len().saturating_sub(from).div_ceil(2);
+    for j in 0..kept {
+        v[j] = v[from + 2 * j];
+    }
+    v.truncate(kept);
+}
+
 /// What is kept of the record while it is read the first time (step 1 of the module
 /// notes). Thinning doubles the stride whenever the copy fills, so the kept samples are
 /// always every `stride`-th one, whatever the length turns out to be.
@@ -159,34 +170,52 @@ impl Surveyor {
             self.lo = self.lo.min(lo);
             self.hi = self.hi.max(hi);
         }
+        // Taken a run at a time, as many as the copy has room for: one sample pushed per
+        // turn of the loop (with its test for room) was most of the survey's cost while
+        // the stride is still short, over the first few million samples.
         while self.next_thin < end {
-            if self.thin.len() >= self.limits.thin_samples.max(2) {
-                self.thin = self.thin.iter().copied().step_by(2).collect();
+            let room = self
+                .limits
+                .thin_samples
+                .max(2)
+                .saturating_sub(self.thin.len());
+            if room == 0 {
+                keep_every_other(&mut self.thin, 0);
                 self.thin_stride *= 2;
                 self.next_thin = self.next_thin.next_multiple_of(self.thin_stride);
                 continue;
             }
-            self.thin.push(block[self.next_thin - base]);
-            self.next_thin += self.thin_stride;
+            let from = self.next_thin - base;
+            let before = self.thin.len();
+            self.thin
+                .extend(block[from..].iter().step_by(self.thin_stride).take(room));
+            self.next_thin += (self.thin.len() - before) * self.thin_stride;
         }
         while self.next_pair < end {
-            if self.pairs.len() >= self.limits.pairs.max(16) {
+            let room = self.limits.pairs.max(16).saturating_sub(self.pairs.len());
+            if room == 0 {
                 // Pair k sits at position k / stride - 1 (pairs start at sample 1), so the
                 // pairs of the doubled stride are those at the odd positions.
-                self.pairs = self.pairs.iter().copied().skip(1).step_by(2).collect();
+                keep_every_other(&mut self.pairs, 1);
                 self.pair_stride *= 2;
                 self.next_pair = self.next_pair.next_multiple_of(self.pair_stride);
                 continue;
             }
             let k = self.next_pair - base;
-            let prev = match k.checked_sub(1) {
-                Some(j) => block.get(j).copied(),
-                None => self.last,
+            let Some(j) = k.checked_sub(1) else {
+                // The pair's first sample ended the block before.
+                if let (Some(a), Some(&b)) = (self.last, block.first()) {
+                    self.pairs.push((a, b));
+                }
+                self.next_pair += self.pair_stride;
+                continue;
             };
-            if let (Some(a), Some(&b)) = (prev, block.get(k)) {
-                self.pairs.push((a, b));
-            }
-            self.next_pair += self.pair_stride;
+            let before = self.pairs.len();
+            let firsts = block[j..].iter().step_by(self.pair_stride);
+            let seconds = block[k..].iter().step_by(self.pair_stride);
+            self.pairs
+                .extend(firsts.zip(seconds).map(|(&a, &b)| (a, b)).take(room));
+            self.next_pair += (self.pairs.len() - before) * self.pair_stride;
         }
         self.last = block.last().copied().or(self.last);
         self.n = end;
@@ -714,8 +743,14 @@ impl Scan<'_> {
                 let mut busy = in_flight.load(Ordering::Acquire);
                 if busy > 0 && busy + size > budget && 2 * size > budget {
                     while in_flight.load(Ordering::Acquire) > 0 {
-                        if !matches!(rayon::yield_now(), Some(rayon::Yield::Executed)) {
-                            std::thread::yield_now();
+                        match rayon::yield_now() {
+                            Some(rayon::Yield::Executed) => {}
+                            Some(rayon::Yield::Idle) => std::thread::yield_now(),
+                            // Outside the pool this thread can run none of the windows:
+                            // it gives its core to the threads measuring them rather than
+                            // asking the kernel for it back thousands of times a second
+                            // (a twelfth of a long WAV's CPU time went to that).
+                            None => std::thread::sleep(std::time::Duration::from_micros(100)),
                         }
                     }
                     busy = 0;
@@ -734,7 +769,12 @@ impl Scan<'_> {
                 recent.push(block);
                 let v = recent.last();
                 shared.block(v);
-                RunNear::push_both(&mut runs, v);
+                // Only whether each level held for MIN_STATE_RUN samples is asked (see
+                // `conclude`): once both have, the counting stops, a fifth of this
+                // thread's work on a long capture.
+                if runs.iter().any(|r| r.best < MIN_STATE_RUN) {
+                    RunNear::push_both(&mut runs, v);
+                }
                 let here = recent.end();
                 if let Some(w) = open.as_mut() {
                     let cap_end = w.edge + self.window_limit + 1;
@@ -1023,6 +1063,14 @@ mod tests {
         v.push(f64::NAN);
         v.extend(std::iter::repeat_n(0.99, 200));
         v.extend((0..500).map(|k| if (k / 37) % 2 == 0 { 1.0 } else { -3.0 }));
+        // Samples at the band's edges, where the rounded `x - level` decides: 1.05 - 1.0
+        // and 0.95 - 1.0 round to just beyond 0.05, 1.04 and 0.96 stay within it; an
+        // infinity among near samples.
+        v.extend((0..300).map(|k| [1.05, 1.04, 0.96, 0.95][(k / 50) % 4]));
+        v.extend((0..200).map(|k| if k % 64 == 5 { 1.05 } else { 1.0 }));
+        v.extend(std::iter::repeat_n(1.0, 100));
+        v.push(f64::INFINITY);
+        v.extend(std::iter::repeat_n(1.0, 100));
         let plain = |level: f64| {
             let (mut run, mut best) = (0usize, 0usize);
             for &x in &v {
@@ -1140,6 +1188,71 @@ mod tests {
             .enumerate()
             .all(|(k, &(a, b))| b == ((k + 1) * 16) as f64 && a == b - 1.0));
         assert_eq!(s.len(), 1000);
+    }
+
+    /// The survey sample by sample, as it was first written: the reference the runs taken
+    /// at a time must match.
+    fn survey_one_by_one(s: &mut Surveyor, block: &[f64]) {
+        let (base, end) = (s.n, s.n + block.len());
+        if let Some((lo, hi)) = levels::finite_extremes(block) {
+            s.lo = s.lo.min(lo);
+            s.hi = s.hi.max(hi);
+        }
+        while s.next_thin < end {
+            if s.thin.len() >= s.limits.thin_samples.max(2) {
+                s.thin = s.thin.iter().copied().step_by(2).collect();
+                s.thin_stride *= 2;
+                s.next_thin = s.next_thin.next_multiple_of(s.thin_stride);
+                continue;
+            }
+            s.thin.push(block[s.next_thin - base]);
+            s.next_thin += s.thin_stride;
+        }
+        while s.next_pair < end {
+            if s.pairs.len() >= s.limits.pairs.max(16) {
+                s.pairs = s.pairs.iter().copied().skip(1).step_by(2).collect();
+                s.pair_stride *= 2;
+                s.next_pair = s.next_pair.next_multiple_of(s.pair_stride);
+                continue;
+            }
+            let k = s.next_pair - base;
+            let prev = match k.checked_sub(1) {
+                Some(j) => block.get(j).copied(),
+                None => s.last,
+            };
+            if let (Some(a), Some(&b)) = (prev, block.get(k)) {
+                s.pairs.push((a, b));
+            }
+            s.next_pair += s.pair_stride;
+        }
+        s.last = block.last().copied().or(s.last);
+        s.n = end;
+    }
+
+    #[test]
+    fn the_survey_taken_in_runs_keeps_what_a_sample_by_sample_survey_keeps() {
+        // Block lengths that put pairs across block ends at every stride, limits that
+        // double the strides several times (the copy's length even and odd).
+        let v: Vec<f64> = (0..20_000).map(|k| ((k * 7919) % 1013) as f64).collect();
+        for (thin, pairs) in [(100, 64), (101, 17), (2, 16), (4096, 4096)] {
+            for len in [1, 2, 3, 7, 33, 64, 1000, 20_000] {
+                let limits = StreamLimits {
+                    thin_samples: thin,
+                    pairs,
+                    ..StreamLimits::default()
+                };
+                let (mut a, mut b) = (Surveyor::new(limits), Surveyor::new(limits));
+                for block in v.chunks(len) {
+                    a.push(block);
+                    survey_one_by_one(&mut b, block);
+                }
+                assert_eq!(a.thin, b.thin, "thin {thin} pairs {pairs} block {len}");
+                assert_eq!(a.thin_stride, b.thin_stride);
+                assert_eq!(a.pairs, b.pairs, "thin {thin} pairs {pairs} block {len}");
+                assert_eq!(a.pair_stride, b.pair_stride);
+                assert_eq!((a.n, a.lo, a.hi), (b.n, b.lo, b.hi));
+            }
+        }
     }
 
     #[test]
