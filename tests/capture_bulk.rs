@@ -259,3 +259,100 @@ fn jitter_across_pieces_is_counted_once_and_first_seen_first() {
         "{w}"
     );
 }
+
+/// What [`BlockReader::next_coded`] hands over: every value, and each run's extremes beside
+/// the smallest and largest of its values worked out here.
+#[derive(Default)]
+struct Coded {
+    values: Vec<f64>,
+    runs: usize,
+}
+
+impl kickscan::capture::TakeValues for Coded {
+    fn take_values(
+        &mut self,
+        len: usize,
+        extremes: Option<(f64, f64)>,
+        value: impl Fn(usize) -> f64,
+    ) {
+        let run: Vec<f64> = (0..len).map(value).collect();
+        let lo = run.iter().copied().reduce(f64::min);
+        let hi = run.iter().copied().reduce(f64::max);
+        assert_eq!(extremes, lo.zip(hi), "run {}", self.runs);
+        self.values.extend(run);
+        self.runs += 1;
+    }
+}
+
+/// Every integer layout read as stored codes (the survey of a long binary capture's first
+/// read) gives, channel by channel, what `hound` reads times the `--scale` factor, in
+/// blocks of 777 frames that end anywhere; the reader then says the capture has ended.
+#[test]
+fn every_integer_layout_read_as_codes_gives_what_hound_reads() {
+    let dir = tempfile::tempdir().unwrap();
+    for (bits, bytes, nch) in [(8, 1, 1), (16, 2, 2), (24, 3, 3), (24, 4, 2), (32, 4, 1)] {
+        let frames = 70_001;
+        let wav = int_wav(
+            spec(nch, bits, false),
+            bytes,
+            &codes(frames * nch as usize, bits),
+        );
+        let p = write(dir.path(), &format!("c{bits}_{bytes}_{nch}.wav"), &wav);
+        let want = hound_fractions(&wav);
+        for ch in 0..usize::from(nch) {
+            let factor = -2.5;
+            let opts = ReadOptions {
+                scale: vec![(format!("CH{}", ch + 1), factor)],
+                ..Default::default()
+            };
+            let mut r = open_blocks(&p, &opts).unwrap();
+            r.set_block_len(777);
+            let mut got = Coded::default();
+            let mut look = |c: &kickscan::capture::CodedChannel| c.hand_to(&mut got);
+            while r.next_coded(ch, &mut look).unwrap() != Some(0) {}
+            assert_eq!(r.samples_read(), frames as u64);
+            let want: Vec<u64> = want[ch].iter().map(|x| (x * factor).to_bits()).collect();
+            let bits_got: Vec<u64> = got.values.iter().map(|x| x.to_bits()).collect();
+            assert!(
+                bits_got == want,
+                "{bits}-bit in {bytes} bytes, channel {ch}"
+            );
+            assert_eq!(got.runs, frames.div_ceil(777));
+        }
+    }
+}
+
+/// Float samples are not read as codes (their order is not kept by a comparison of
+/// integers, and a NaN must be refused); a file cut short gives the error a block would.
+#[test]
+fn codes_are_refused_for_floats_and_a_cut_file_ends_as_blocks_do() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut cur = Cursor::new(Vec::new());
+    let mut w = hound::WavWriter::new(&mut cur, spec(1, 32, true)).unwrap();
+    for k in 0..100 {
+        w.write_sample(k as f32).unwrap();
+    }
+    w.finalize().unwrap();
+    let p = write(dir.path(), "f32.wav", &cur.into_inner());
+    let mut r = open_blocks(&p, &ReadOptions::default()).unwrap();
+    assert!(r.next_coded(0, &mut |_| {}).unwrap().is_none());
+
+    let mut wav = int_wav(spec(3, 16, false), 2, &codes(3 * 100_000, 16));
+    wav.truncate(data_start(&wav) + 70_001 * 6 + 2);
+    let p = write(dir.path(), "cut.wav", &wav);
+    let mut r = open_blocks(&p, &ReadOptions::default()).unwrap();
+    let e = loop {
+        match r.next_coded(1, &mut |_| {}) {
+            Ok(Some(n)) => assert!(n > 0, "ended without an error"),
+            Ok(None) => panic!("16-bit codes refused"),
+            Err(e) => break e.to_string(),
+        }
+    };
+    assert!(
+        e.contains(&format!(
+            "byte {}: the file ends inside the sample data: the header promises 100000 frames, only 70001 are complete",
+            wav.len()
+        )),
+        "{e}"
+    );
+}

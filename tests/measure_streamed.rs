@@ -230,3 +230,66 @@ fn several_streamed_captures_at_once_do_not_wait_on_each_other() {
         close(a, b, &f.display().to_string());
     }
 }
+
+/// The rest of a long binary capture's first read is surveyed from its stored codes (the
+/// range from the smallest and largest code, only the samples kept converted). A
+/// two-channel WAV whose voltage is the second channel, stored with a negative full scale
+/// and multiplied by a negative `--scale`, and a raw dump of 32-bit codes give what they
+/// give whole. The codes are those of the bundled `zener/run-22.wav`, moved about.
+#[test]
+fn binary_captures_surveyed_from_their_codes_match_the_whole_capture() {
+    let mut r = hound::WavReader::open(sample("zener/run-22.wav")).unwrap();
+    // Three times over, so most samples come after the first block (held and decoded).
+    let codes: Vec<i16> = r
+        .samples::<i16>()
+        .map(Result::unwrap)
+        .collect::<Vec<_>>()
+        .repeat(3);
+    let dir = tempfile::tempdir().unwrap();
+
+    let wav = dir.path().join("two.wav");
+    let spec = hound::WavSpec {
+        channels: 2,
+        sample_rate: 250_000,
+        bits_per_sample: 16,
+        sample_format: hound::SampleFormat::Int,
+    };
+    let mut w = hound::WavWriter::create(&wav, spec).unwrap();
+    for &c in &codes {
+        w.write_sample(c / 4).unwrap();
+        w.write_sample(c).unwrap();
+    }
+    w.finalize().unwrap();
+    std::fs::write(
+        wav.with_extension("json"),
+        r#"{"sample_rate_hz": 250000.0, "channels": [
+            {"name": "i_coil", "unit": "A", "volts_per_full_scale": 2.0},
+            {"name": "v_sw", "unit": "V", "volts_per_full_scale": -50.0, "offset_v": 45.0}]}"#,
+    )
+    .unwrap();
+    let read = kickscan::capture::ReadOptions {
+        scale: vec![("v_sw".to_string(), -2.0)],
+        ..Default::default()
+    };
+    both(
+        &wav,
+        Settings {
+            read,
+            ..Settings::default()
+        },
+    );
+
+    let raw = dir.path().join("dump.bin");
+    let bytes: Vec<u8> = codes
+        .iter()
+        .flat_map(|&c| (i32::from(c) * 65_536 + 12_345).to_le_bytes())
+        .collect();
+    std::fs::write(&raw, bytes).unwrap();
+    std::fs::write(
+        raw.with_extension("json"),
+        r#"{"sample_type": "i32", "sample_rate_hz": 250000.0, "channels": [
+            {"name": "v_sw", "unit": "V", "volts_per_full_scale": 50.0, "offset_v": 45.0}]}"#,
+    )
+    .unwrap();
+    both(&raw, Settings::default());
+}

@@ -5,6 +5,7 @@ use std::path::Path;
 
 use super::adc::RailWatch;
 use super::csv::CsvStream;
+use super::frames::CodedChannel;
 use super::raw::RawStream;
 use super::skew::{skews_of, Skew};
 use super::wav::WavStream;
@@ -215,6 +216,42 @@ impl BlockReader {
         self.done = got == 0;
         self.next_sample += got as u64;
         Ok(got > 0)
+    }
+
+    /// Hands channel `ch`'s next samples (up to a block) to `look` as stored codes, with
+    /// `--scale` applied as a block would have it: for a look at every sample that needs
+    /// only a few of them as numbers (the survey of a long capture's first read). How
+    /// many, 0 at the end; `None` when this capture cannot be read so (text, float
+    /// samples, `--skew`), and [`BlockReader::next_block_into`] reads it instead.
+    pub fn next_coded(
+        &mut self,
+        ch: usize,
+        look: &mut (dyn FnMut(&CodedChannel) + Send),
+    ) -> Result<Option<usize>, CaptureError> {
+        if self.skew.is_some() {
+            return Ok(None);
+        }
+        if self.done {
+            return Ok(Some(0));
+        }
+        let factor = self.factors.get(ch).copied().unwrap_or(1.0);
+        let r = match &mut self.source {
+            Source::Csv(_) => return Ok(None),
+            Source::Wav(s) => s.fill_coded(ch, factor, self.block_len, look),
+            Source::Raw(s) => s.fill_coded(ch, factor, self.block_len, look),
+        };
+        match r {
+            Err(e) => {
+                self.done = true;
+                Err(e)
+            }
+            Ok(Some(n)) => {
+                self.done = n == 0;
+                self.next_sample += n as u64;
+                Ok(Some(n))
+            }
+            Ok(None) => Ok(None),
+        }
     }
 
     /// Reads the next samples as the file holds them, `--scale` applied and rails watched,

@@ -55,17 +55,12 @@ fn decode_frames_on(
     out: &mut [Vec<f64>],
 ) -> Result<(), (usize, f64)> {
     match enc {
-        Encoding::U8 => decode::<1>(bytes, scalings, out, |b| f64::from(i16::from(b[0]) - 128)),
-        Encoding::I8 => decode::<1>(bytes, scalings, out, |b| f64::from(b[0] as i8)),
-        Encoding::I16 => decode::<2>(bytes, scalings, out, |b| f64::from(i16::from_le_bytes(b))),
-        // Sign-extended from bit 23: the top byte shifted out, then shifted back in.
-        Encoding::I24 => decode::<3>(bytes, scalings, out, |b| {
-            f64::from(i32::from_le_bytes([0, b[0], b[1], b[2]]) >> 8)
-        }),
-        Encoding::I24In4 => decode::<4>(bytes, scalings, out, |b| {
-            f64::from(i32::from_le_bytes([0, b[0], b[1], b[2]]) >> 8)
-        }),
-        Encoding::I32 => decode::<4>(bytes, scalings, out, |b| f64::from(i32::from_le_bytes(b))),
+        Encoding::U8 => decode::<1>(bytes, scalings, out, |b| f64::from(code_u8(b))),
+        Encoding::I8 => decode::<1>(bytes, scalings, out, |b| f64::from(code_i8(b))),
+        Encoding::I16 => decode::<2>(bytes, scalings, out, |b| f64::from(code_i16(b))),
+        Encoding::I24 => decode::<3>(bytes, scalings, out, |b| f64::from(code_i24(b))),
+        Encoding::I24In4 => decode::<4>(bytes, scalings, out, |b| f64::from(code_i24in4(b))),
+        Encoding::I32 => decode::<4>(bytes, scalings, out, |b| f64::from(code_i32(b))),
         Encoding::F32 => {
             let value = |b| f64::from(f32::from_le_bytes(b));
             if let Some(bad) = first_not_finite::<4>(bytes, value) {
@@ -81,6 +76,34 @@ fn decode_frames_on(
         }
     }
     Ok(())
+}
+
+// The stored integer of each integer encoding, one place for the byte layouts.
+#[inline(always)]
+fn code_u8(b: [u8; 1]) -> i32 {
+    i32::from(b[0]) - 128
+}
+#[inline(always)]
+fn code_i8(b: [u8; 1]) -> i32 {
+    i32::from(b[0] as i8)
+}
+#[inline(always)]
+fn code_i16(b: [u8; 2]) -> i32 {
+    i32::from(i16::from_le_bytes(b))
+}
+/// Sign-extended from bit 23: the top byte shifted out, then shifted back in.
+#[inline(always)]
+fn code_i24([b0, b1, b2]: [u8; 3]) -> i32 {
+    i32::from_le_bytes([0, b0, b1, b2]) >> 8
+}
+/// The top byte of the container is ignored, set or not.
+#[inline(always)]
+fn code_i24in4([b0, b1, b2, _]: [u8; 4]) -> i32 {
+    code_i24([b0, b1, b2])
+}
+#[inline(always)]
+fn code_i32(b: [u8; 4]) -> i32 {
+    i32::from_le_bytes(b)
 }
 
 #[inline(always)]
@@ -139,6 +162,211 @@ fn first_not_finite<const N: usize>(
         .map(|c| value(array(c)))
         .enumerate()
         .find(|(_, x)| !x.is_finite())
+}
+
+/// How a channel's stored integers become the values [`super::BlockReader`] hands out:
+/// `(code * gain + offset) * factor`, the factor being `--scale`'s (left out when one, as
+/// the reader leaves it out).
+#[derive(Debug, Clone, Copy)]
+pub(crate) struct CodeMap {
+    gain: f64,
+    offset: f64,
+    factor: f64,
+}
+
+impl CodeMap {
+    /// The map of an integer encoding whose every code gives a finite value (so the
+    /// smallest and largest values are those of the smallest and largest codes, see
+    /// [`CodedChannel::extremes`]); `None` for floats or a scaling that overflows.
+    pub(crate) fn new(enc: Encoding, s: Scaling, factor: f64) -> Option<Self> {
+        let (lo, hi) = code_range(enc)?;
+        let map = CodeMap {
+            gain: s.gain,
+            offset: s.offset,
+            factor,
+        };
+        // A zero gain or factor would make values of both signs of zero, whose order the
+        // codes do not give.
+        let nonzero = s.gain != 0.0 && factor != 0.0;
+        (nonzero && map.value(lo).is_finite() && map.value(hi).is_finite()).then_some(map)
+    }
+
+    #[inline(always)]
+    fn value(&self, code: i32) -> f64 {
+        // The same operations, in the same order, as `decode` and the reader's `--scale`.
+        let x = f64::from(code) * self.gain + self.offset;
+        if self.factor != 1.0 {
+            x * self.factor
+        } else {
+            x
+        }
+    }
+}
+
+/// The smallest and largest code of an integer encoding.
+fn code_range(enc: Encoding) -> Option<(i32, i32)> {
+    match enc {
+        Encoding::U8 | Encoding::I8 => Some((-128, 127)),
+        Encoding::I16 => Some((i16::MIN.into(), i16::MAX.into())),
+        Encoding::I24 | Encoding::I24In4 => Some((-(1 << 23), (1 << 23) - 1)),
+        Encoding::I32 => Some((i32::MIN, i32::MAX)),
+        Encoding::F32 | Encoding::F64 => None,
+    }
+}
+
+/// What takes the samples of a [`CodedChannel`]: `len` samples, their smallest and largest
+/// value, and `value(j)` for any `j < len` it wants.
+pub trait TakeValues {
+    fn take_values(
+        &mut self,
+        len: usize,
+        extremes: Option<(f64, f64)>,
+        value: impl Fn(usize) -> f64,
+    );
+}
+
+/// One channel of a run of whole frames of integer samples, left as stored. The first
+/// read of a long binary capture wants only the range of its samples and every
+/// `stride`-th of them: taken from the codes, that is a pass of integer comparisons
+/// instead of converting every sample of every channel to a float (what a block costs).
+pub struct CodedChannel<'a> {
+    bytes: &'a [u8],
+    enc: Encoding,
+    /// Bytes per frame, and the offset of this channel's sample in a frame.
+    frame: usize,
+    at: usize,
+    map: CodeMap,
+}
+
+impl<'a> CodedChannel<'a> {
+    /// Channel `ch` of the whole frames in `bytes`, or `None` for a float encoding.
+    pub(crate) fn new(
+        bytes: &'a [u8],
+        enc: Encoding,
+        n_channels: usize,
+        ch: usize,
+        map: CodeMap,
+    ) -> Option<Self> {
+        code_range(enc)?;
+        let frame = enc.bytes() * n_channels.max(1);
+        Some(CodedChannel {
+            bytes: &bytes[..bytes.len() / frame * frame],
+            enc,
+            frame,
+            at: enc.bytes() * ch.min(n_channels.saturating_sub(1)),
+            map,
+        })
+    }
+
+    /// Samples (frames) in the run.
+    pub fn len(&self) -> usize {
+        self.bytes.len() / self.frame
+    }
+
+    pub fn is_empty(&self) -> bool {
+        self.bytes.is_empty()
+    }
+
+    /// Hands the run to `sink`: its length, its extremes and the value of each sample asked
+    /// for, exactly what a block would hold. The encoding is matched once here, so each
+    /// sample asked for is a few instructions (matched per sample, and called, the
+    /// survey's samples cost a quarter of the first read).
+    pub fn hand_to(&self, sink: &mut impl TakeValues) {
+        let (b, frame, at, map) = (self.bytes, self.frame, self.at, self.map);
+        let extremes = self.extremes();
+        let len = self.len();
+        let byte = |j: usize, k: usize| b[j * frame + at + k];
+        match self.enc {
+            Encoding::U8 => sink.take_values(len, extremes, |j| map.value(code_u8([byte(j, 0)]))),
+            Encoding::I8 => sink.take_values(len, extremes, |j| map.value(code_i8([byte(j, 0)]))),
+            Encoding::I16 => sink.take_values(len, extremes, |j| {
+                map.value(code_i16([byte(j, 0), byte(j, 1)]))
+            }),
+            Encoding::I24 => sink.take_values(len, extremes, |j| {
+                map.value(code_i24([byte(j, 0), byte(j, 1), byte(j, 2)]))
+            }),
+            Encoding::I24In4 => sink.take_values(len, extremes, |j| {
+                map.value(code_i24in4([
+                    byte(j, 0),
+                    byte(j, 1),
+                    byte(j, 2),
+                    byte(j, 3),
+                ]))
+            }),
+            Encoding::I32 => sink.take_values(len, extremes, |j| {
+                map.value(code_i32([byte(j, 0), byte(j, 1), byte(j, 2), byte(j, 3)]))
+            }),
+            Encoding::F32 | Encoding::F64 => {}
+        }
+    }
+
+    /// The smallest and largest value, `None` when the run is empty. Taken from the
+    /// smallest and largest code: `code * gain + offset` (then times the factor) rounds
+    /// monotonically, so the order of the codes is kept (reversed by a negative gain or
+    /// factor), and every value is finite ([`CodeMap::new`]), which is what
+    /// `levels::finite_extremes` of the block would give.
+    pub fn extremes(&self) -> Option<(f64, f64)> {
+        let (lo, hi) = code_extremes(self.enc, self.bytes, self.frame, self.at)?;
+        let (a, b) = (self.map.value(lo), self.map.value(hi));
+        Some((a.min(b), a.max(b)))
+    }
+}
+
+crate::avx2::twice_compiled!(
+    /// The smallest and largest code of the channel at byte `at` of each `frame`-byte
+    /// frame of `bytes`. Compiled for AVX2 too: sixteen 16-bit codes a comparison.
+    fn code_extremes(enc: Encoding, bytes: &[u8], frame: usize, at: usize) -> Option<(i32, i32)>
+        => code_extremes_on;
+);
+
+#[inline(always)]
+fn code_extremes_on(enc: Encoding, bytes: &[u8], frame: usize, at: usize) -> Option<(i32, i32)> {
+    if bytes.len() < frame || frame == 0 {
+        return None;
+    }
+    match enc {
+        Encoding::U8 => extremes_of::<1>(bytes, frame, at, code_u8),
+        Encoding::I8 => extremes_of::<1>(bytes, frame, at, code_i8),
+        Encoding::I16 if frame == 2 => {
+            // One channel of 16-bit codes, the common long capture: compared as 16-bit
+            // integers, twice as many to a register as when widened first.
+            let (lo, hi) = bytes
+                .chunks_exact(2)
+                .fold((i16::MAX, i16::MIN), |(lo, hi), c| {
+                    let x = i16::from_le_bytes([c[0], c[1]]);
+                    (lo.min(x), hi.max(x))
+                });
+            Some((lo.into(), hi.into()))
+        }
+        Encoding::I16 => extremes_of::<2>(bytes, frame, at, code_i16),
+        Encoding::I24 => extremes_of::<3>(bytes, frame, at, code_i24),
+        Encoding::I24In4 => extremes_of::<4>(bytes, frame, at, code_i24in4),
+        Encoding::I32 => extremes_of::<4>(bytes, frame, at, code_i32),
+        Encoding::F32 | Encoding::F64 => None,
+    }
+}
+
+#[inline(always)]
+fn extremes_of<const N: usize>(
+    bytes: &[u8],
+    frame: usize,
+    at: usize,
+    code: impl Fn([u8; N]) -> i32,
+) -> Option<(i32, i32)> {
+    let fold = |(lo, hi): (i32, i32), x: i32| (lo.min(x), hi.max(x));
+    let start = (i32::MAX, i32::MIN);
+    let (lo, hi) = if frame == N {
+        bytes
+            .chunks_exact(N)
+            .map(|c| code(array(c)))
+            .fold(start, fold)
+    } else {
+        bytes
+            .chunks_exact(frame)
+            .map(|f| code(f.get(at..at + N).map_or([0u8; N], array)))
+            .fold(start, fold)
+    };
+    (lo <= hi).then_some((lo, hi))
 }
 
 #[cfg(test)]
@@ -283,6 +511,94 @@ mod tests {
                 }
             }
         }
+    }
+
+    /// What a [`CodedChannel`] hands over, every sample asked for.
+    #[derive(Default)]
+    struct Taken {
+        values: Vec<f64>,
+        extremes: Option<(f64, f64)>,
+    }
+
+    impl TakeValues for Taken {
+        fn take_values(
+            &mut self,
+            len: usize,
+            extremes: Option<(f64, f64)>,
+            value: impl Fn(usize) -> f64,
+        ) {
+            self.values.extend((0..len).map(value));
+            self.extremes = extremes;
+        }
+    }
+
+    /// A channel taken from its codes gives, bit for bit, what decoding the frames and
+    /// applying the `--scale` factor gives (the reader's two steps, done here one sample
+    /// at a time), and the extremes the decoded block has (`levels::finite_extremes`):
+    /// every integer encoding, one channel and three, gains and factors of both signs.
+    #[test]
+    fn a_coded_channel_gives_the_decoded_values_and_their_extremes() {
+        let bytes: Vec<u8> = (0..601u32).map(|k| (k * 157 + 11) as u8).collect();
+        let gains = [(0.0153, -50.0), (-3.0e-4, 0.25), (7.5, 0.0)];
+        for enc in [
+            Encoding::U8,
+            Encoding::I8,
+            Encoding::I16,
+            Encoding::I24,
+            Encoding::I24In4,
+            Encoding::I32,
+        ] {
+            for n_ch in [1, 3] {
+                let frame = enc.bytes() * n_ch;
+                let b = &bytes[..bytes.len() / frame * frame];
+                let scalings: Vec<Scaling> = gains[..n_ch]
+                    .iter()
+                    .map(|&(gain, offset)| Scaling { gain, offset })
+                    .collect();
+                let mut decoded = vec![Vec::new(); n_ch];
+                decode_frames_on(enc, b, &scalings, &mut decoded).unwrap();
+                for ch in 0..n_ch {
+                    for factor in [1.0, -2.5, 1e-3] {
+                        let want: Vec<f64> = decoded[ch]
+                            .iter()
+                            .map(|&x| if factor != 1.0 { x * factor } else { x })
+                            .collect();
+                        let map = CodeMap::new(enc, scalings[ch], factor).unwrap();
+                        let c = CodedChannel::new(b, enc, n_ch, ch, map).unwrap();
+                        let mut got = Taken::default();
+                        c.hand_to(&mut got);
+                        let bits = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
+                        let at = format!("{enc:?} x{n_ch} channel {ch} factor {factor}");
+                        assert_eq!(bits(&got.values), bits(&want), "{at}");
+                        assert_eq!(got.extremes, crate::levels::finite_extremes(&want), "{at}");
+                        // A run cut short, down to no frame at all.
+                        for len in [0, 1, 17] {
+                            let c = CodedChannel::new(&b[..len * frame], enc, n_ch, ch, map);
+                            let mut got = Taken::default();
+                            c.unwrap().hand_to(&mut got);
+                            assert_eq!(bits(&got.values), bits(&want[..len]), "{at}, {len}");
+                            let e = crate::levels::finite_extremes(&want[..len]);
+                            assert_eq!(got.extremes, e, "{at}, {len}");
+                        }
+                    }
+                }
+            }
+        }
+    }
+
+    /// Floats, a zero gain or factor (signed zeros the codes cannot order) and a scaling
+    /// that overflows are left to the decoder.
+    #[test]
+    fn codes_are_not_used_where_their_order_is_not_the_values_order() {
+        let s = |gain, offset| Scaling { gain, offset };
+        assert!(CodeMap::new(Encoding::F32, s(1.0, 0.0), 1.0).is_none());
+        assert!(CodeMap::new(Encoding::F64, s(1.0, 0.0), 1.0).is_none());
+        assert!(CodeMap::new(Encoding::I16, s(0.0, 1.0), 1.0).is_none());
+        assert!(CodeMap::new(Encoding::I16, s(1.0, 0.0), 0.0).is_none());
+        assert!(CodeMap::new(Encoding::I32, s(1e300, 0.0), 1e10).is_none());
+        assert!(CodeMap::new(Encoding::I16, s(1.0, f64::NAN), 1.0).is_none());
+        assert!(CodeMap::new(Encoding::I16, s(1.0, 0.0), f64::INFINITY).is_none());
+        assert!(CodeMap::new(Encoding::I16, s(-1.0, 3.0), -2.0).is_some());
     }
 
     #[test]

@@ -39,6 +39,7 @@ mod wav;
 
 pub use blocks::{open_blocks, Block, BlockReader, DEFAULT_BLOCK_LEN};
 pub use channel::select_channel;
+pub use frames::{CodedChannel, TakeValues};
 pub use sidecar::{Sidecar, SidecarChannel};
 
 /// File formats kickscan reads.

@@ -10,7 +10,7 @@ use std::fs::File;
 use std::io::{BufReader, Seek, SeekFrom};
 use std::path::{Path, PathBuf};
 
-use super::frames::{decode_frames, Encoding};
+use super::frames::{decode_frames, CodeMap, CodedChannel, Encoding};
 use super::runs::{Ended, FrameRuns};
 use super::sidecar::read_sidecar;
 use super::wav::{describe_channels, Scaling};
@@ -195,6 +195,41 @@ pub(crate) fn open(path: &Path, opts: &ReadOptions) -> Result<(Capture, RawStrea
 impl RawStream {
     /// Appends up to `max` frames; returns how many were read.
     pub(crate) fn fill(&mut self, out: &mut [Vec<f64>], max: usize) -> Result<usize, CaptureError> {
+        self.frames(max, |enc, b, scalings| decode_frames(enc, b, scalings, out))
+    }
+
+    /// Hands up to `max` frames of channel `ch` to `look` as stored codes (as
+    /// [`super::wav::WavStream::fill_coded`]).
+    pub(crate) fn fill_coded(
+        &mut self,
+        ch: usize,
+        factor: f64,
+        max: usize,
+        look: &mut (dyn FnMut(&CodedChannel) + Send),
+    ) -> Result<Option<usize>, CaptureError> {
+        let enc = self.kind.encoding();
+        let Some(map) = self
+            .scalings
+            .get(ch)
+            .and_then(|&s| CodeMap::new(enc, s, factor))
+        else {
+            return Ok(None);
+        };
+        self.frames(max, |enc, b, scalings| {
+            if let Some(c) = CodedChannel::new(b, enc, scalings.len(), ch, map) {
+                look(&c);
+            }
+            Ok(())
+        })
+        .map(Some)
+    }
+
+    /// Hands up to `max` whole frames to `handle` (as [`super::wav::WavStream`]'s).
+    fn frames(
+        &mut self,
+        max: usize,
+        mut handle: impl FnMut(Encoding, &[u8], &[Scaling]) -> Result<(), (usize, f64)> + Send,
+    ) -> Result<usize, CaptureError> {
         let sb = self.kind.bytes();
         let frame_bytes = (sb * self.scalings.len()) as u64;
         let want = (max as u64).min(self.frames_total - self.frames_read) as usize;
@@ -203,10 +238,10 @@ impl RawStream {
         while done < want {
             let start = self.data_offset + (self.frames_read + done as u64) * frame_bytes;
             let scalings = &self.scalings;
-            let sink = &mut *out;
+            let handle = &mut handle;
             let step = self
                 .runs
-                .with_frames(want - done, |b| decode_frames(enc, b, scalings, sink));
+                .with_frames(want - done, |b| handle(enc, b, scalings));
             let cannot_read = |why: String| CaptureError::Binary {
                 file: self.file.clone(),
                 offset: start,

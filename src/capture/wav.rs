@@ -7,7 +7,7 @@ use std::fs::File;
 use std::io::{BufReader, Read, Seek, SeekFrom};
 use std::path::{Path, PathBuf};
 
-use super::frames::{decode_frames, Encoding};
+use super::frames::{decode_frames, CodeMap, CodedChannel, Encoding};
 use super::runs::{Ended, FrameRuns};
 use super::sidecar::{read_sidecar, Sidecar};
 use super::{AdcRange, Capture, CaptureError, Channel, Format, ReadOptions};
@@ -326,6 +326,44 @@ fn encoding_of(spec: hound::WavSpec, data_len: u64, n_stored: u64) -> Option<Enc
 impl WavStream {
     /// Appends up to `max` frames; returns how many were read.
     pub(crate) fn fill(&mut self, out: &mut [Vec<f64>], max: usize) -> Result<usize, CaptureError> {
+        self.frames(max, |enc, b, scalings| decode_frames(enc, b, scalings, out))
+    }
+
+    /// Hands up to `max` frames of channel `ch` to `look` as stored codes (see
+    /// [`CodedChannel`]), `--scale`'s `factor` included; returns how many, or `None` when
+    /// the samples are floats or the scaling would overflow (then [`WavStream::fill`]
+    /// reads them).
+    pub(crate) fn fill_coded(
+        &mut self,
+        ch: usize,
+        factor: f64,
+        max: usize,
+        look: &mut (dyn FnMut(&CodedChannel) + Send),
+    ) -> Result<Option<usize>, CaptureError> {
+        let Some(map) = self
+            .encoding
+            .zip(self.scalings.get(ch))
+            .and_then(|(enc, &s)| CodeMap::new(enc, s, factor))
+        else {
+            return Ok(None);
+        };
+        self.frames(max, |enc, b, scalings| {
+            if let Some(c) = CodedChannel::new(b, enc, scalings.len(), ch, map) {
+                look(&c);
+            }
+            Ok(())
+        })
+        .map(Some)
+    }
+
+    /// Hands up to `max` whole frames to `handle`, with the encoding and the channels'
+    /// scalings; returns how many. `handle` may refuse a sample (its index in the bytes,
+    /// counted in samples, and value): the error then names its place in the file.
+    fn frames(
+        &mut self,
+        max: usize,
+        mut handle: impl FnMut(Encoding, &[u8], &[Scaling]) -> Result<(), (usize, f64)> + Send,
+    ) -> Result<usize, CaptureError> {
         let want = (max as u64).min(self.frames_declared.saturating_sub(self.frames_read)) as usize;
         if want == 0 {
             return Ok(0);
@@ -341,10 +379,10 @@ impl WavStream {
         let mut done = 0usize;
         while done < want {
             let scalings = &self.scalings;
-            let sink = &mut *out;
+            let handle = &mut handle;
             let step = self
                 .runs
-                .with_frames(want - done, |b| decode_frames(enc, b, scalings, sink));
+                .with_frames(want - done, |b| handle(enc, b, scalings));
             match step {
                 Ok(Some((n, Ok(())))) => done += n,
                 Ok(Some((_, Err((k, x))))) => {

@@ -164,9 +164,22 @@ impl Surveyor {
 
     /// Takes the next block of voltage samples.
     pub fn push(&mut self, block: &[f64]) {
+        self.push_values(block.len(), levels::finite_extremes(block), |j| block[j]);
+    }
+
+    /// Takes the next `len` voltage samples, given by their smallest and largest finite
+    /// value and by `value(j)` for each `j < len` (asked only of the samples kept: a
+    /// source that must convert its samples converts only those).
+    #[inline]
+    pub fn push_values(
+        &mut self,
+        len: usize,
+        extremes: Option<(f64, f64)>,
+        value: impl Fn(usize) -> f64,
+    ) {
         let base = self.n;
-        let end = base + block.len();
-        if let Some((lo, hi)) = levels::finite_extremes(block) {
+        let end = base + len;
+        if let Some((lo, hi)) = extremes {
             self.lo = self.lo.min(lo);
             self.hi = self.hi.max(hi);
         }
@@ -188,7 +201,7 @@ impl Surveyor {
             let from = self.next_thin - base;
             let before = self.thin.len();
             self.thin
-                .extend(block[from..].iter().step_by(self.thin_stride).take(room));
+                .extend((from..len).step_by(self.thin_stride).take(room).map(&value));
             self.next_thin += (self.thin.len() - before) * self.thin_stride;
         }
         while self.next_pair < end {
@@ -202,22 +215,26 @@ impl Surveyor {
                 continue;
             }
             let k = self.next_pair - base;
-            let Some(j) = k.checked_sub(1) else {
+            if k == 0 {
                 // The pair's first sample ended the block before.
-                if let (Some(a), Some(&b)) = (self.last, block.first()) {
-                    self.pairs.push((a, b));
+                if let (Some(a), true) = (self.last, len > 0) {
+                    self.pairs.push((a, value(0)));
                 }
                 self.next_pair += self.pair_stride;
                 continue;
-            };
+            }
             let before = self.pairs.len();
-            let firsts = block[j..].iter().step_by(self.pair_stride);
-            let seconds = block[k..].iter().step_by(self.pair_stride);
-            self.pairs
-                .extend(firsts.zip(seconds).map(|(&a, &b)| (a, b)).take(room));
+            self.pairs.extend(
+                (k..len)
+                    .step_by(self.pair_stride)
+                    .take(room)
+                    .map(|k| (value(k - 1), value(k))),
+            );
             self.next_pair += (self.pairs.len() - before) * self.pair_stride;
         }
-        self.last = block.last().copied().or(self.last);
+        if len > 0 {
+            self.last = Some(value(len - 1));
+        }
         self.n = end;
     }
 
@@ -228,6 +245,17 @@ impl Surveyor {
 
     pub fn is_empty(&self) -> bool {
         self.n == 0
+    }
+}
+
+impl crate::capture::TakeValues for Surveyor {
+    fn take_values(
+        &mut self,
+        len: usize,
+        extremes: Option<(f64, f64)>,
+        value: impl Fn(usize) -> f64,
+    ) {
+        self.push_values(len, extremes, value);
     }
 }
 

@@ -15,7 +15,7 @@ use std::path::Path;
 use super::spill::{SpillReader, SpillWriter, RECORD_SAMPLES};
 use super::{capture_doc, fit_plot, model_context, pick_channels, Settings, SKETCH_POINTS};
 use crate::capture::{
-    self, AdcRange, Block, BlockReader, Capture, Channel, Format, DEFAULT_BLOCK_LEN,
+    self, AdcRange, Block, BlockReader, Capture, Channel, CodedChannel, Format, DEFAULT_BLOCK_LEN,
 };
 use crate::document::CaptureDoc;
 use crate::measure::stream::{
@@ -53,6 +53,34 @@ fn next_block(
         return Err(interrupted(path));
     }
     reader.next_block_into(block).map_err(|e| e.to_string())
+}
+
+/// The next samples of channel `ch` as stored codes, unless the run was asked to stop (see
+/// [`BlockReader::next_coded`]).
+fn next_coded(
+    path: &Path,
+    reader: &mut BlockReader,
+    ch: usize,
+    look: &mut (dyn FnMut(&CodedChannel) + Send),
+    settings: &Settings,
+) -> Result<Option<usize>, String> {
+    if settings.stopped() {
+        return Err(interrupted(path));
+    }
+    reader.next_coded(ch, look).map_err(|e| e.to_string())
+}
+
+/// The index of the one channel of the capture called `name`.
+fn only_channel_named(header: &Capture, name: &str) -> Option<usize> {
+    let mut named = header
+        .channels
+        .iter()
+        .enumerate()
+        .filter(|(_, c)| c.name == name);
+    match (named.next(), named.next()) {
+        (Some((k, _)), None) => Some(k),
+        _ => None,
+    }
 }
 
 /// Reads `path`; a long capture is measured on the way (see the module notes).
@@ -331,27 +359,28 @@ fn measure_streaming(
             spill_i = Some(new_spill(path)?);
         }
     }
-    let mut feed = |sig: &Channel, cur: Option<&Channel>| -> Result<(), String> {
-        let (spill_v, spill_i) = (&mut spill_v, &mut spill_i);
-        let mut spill = move || -> Result<(), String> {
-            if let Some(s) = spill_v.as_mut() {
-                s.write(&sig.samples).map_err(io)?;
+    let mut feed =
+        |survey: &mut Surveyor, sig: &Channel, cur: Option<&Channel>| -> Result<(), String> {
+            let (spill_v, spill_i) = (&mut spill_v, &mut spill_i);
+            let mut spill = move || -> Result<(), String> {
+                if let Some(s) = spill_v.as_mut() {
+                    s.write(&sig.samples).map_err(io)?;
+                }
+                if let (Some(s), Some(c)) = (spill_i.as_mut(), cur) {
+                    s.write(&c.samples).map_err(io)?;
+                }
+                Ok(())
+            };
+            if sig.samples.len() > DEFAULT_BLOCK_LEN {
+                // The samples held before the stream began (a million or so): surveyed and
+                // spilled side by side, where one core did both while the other read a
+                // single block and waited (a tenth of a 10 M-sample CSV's wall time).
+                rayon::join(|| survey.push(&sig.samples), spill).1
+            } else {
+                survey.push(&sig.samples);
+                spill()
             }
-            if let (Some(s), Some(c)) = (spill_i.as_mut(), cur) {
-                s.write(&c.samples).map_err(io)?;
-            }
-            Ok(())
         };
-        if sig.samples.len() > DEFAULT_BLOCK_LEN {
-            // The samples held before the stream began (a million or so): surveyed and
-            // spilled side by side, where one core did both while the other read a
-            // single block and waited (a tenth of a 10 M-sample CSV's wall time).
-            rayon::join(|| survey.push(&sig.samples), spill).1
-        } else {
-            survey.push(&sig.samples);
-            spill()
-        }
-    };
     // Delimited text: each block is surveyed and spilled while the next one is read and
     // parsed, so the two halves keep both cores busy instead of taking turns. Binary
     // samples decode faster than a block can be handed to another core: surveyed in turn
@@ -360,24 +389,44 @@ fn measure_streaming(
     // 8 % slower in turn).
     let mut fed = Some((signal, current));
     let mut block = Block::default();
-    loop {
+    // Binary samples read again from the file: the rest of this read only surveys the
+    // signal, and takes it from the stored codes (the range from the smallest and largest
+    // code, and only the samples kept converted). Decoding every sample of every channel
+    // was two thirds of the first read of a long 16-bit WAV.
+    let coded = (!spill)
+        .then(|| only_channel_named(&header, &signal_name))
+        .flatten();
+    let mut read_all = false;
+    if let Some(ch) = coded {
+        if let Some((sig, cur)) = fed.take() {
+            feed(&mut survey, &sig, cur.as_ref())?;
+        }
+        let mut look = |c: &CodedChannel| c.hand_to(&mut survey);
+        while let Some(n) = next_coded(path, &mut reader, ch, &mut look, settings)? {
+            if n == 0 {
+                read_all = true;
+                break;
+            }
+        }
+    }
+    while !read_all {
         let mut read = || next_block(path, &mut reader, &mut block, settings);
-        let mut survey = || match fed.take() {
-            Some((sig, cur)) => feed(&sig, cur.as_ref()),
+        let mut take = || match fed.take() {
+            Some((sig, cur)) => feed(&mut survey, &sig, cur.as_ref()),
             None => Ok(()),
         };
         let (more, done) = if spill {
-            rayon::join(read, survey)
+            rayon::join(read, take)
         } else {
-            let done = survey();
+            let done = take();
             (read(), done)
         };
         done?;
-        if !more? {
-            break;
+        read_all = !more?;
+        if !read_all {
+            let channels = std::mem::take(&mut block.channels);
+            fed = Some(pick_block(&header, channels, settings)?);
         }
-        let channels = std::mem::take(&mut block.channels);
-        fed = Some(pick_block(&header, channels, settings)?);
     }
     let finished = reader.finish();
     let n = survey.len();
