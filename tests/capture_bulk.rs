@@ -87,24 +87,34 @@ fn spec(channels: u16, bits: u16, float: bool) -> hound::WavSpec {
     }
 }
 
+/// (bits, bytes per stored sample, channels): 8-bit unsigned, 16, 24 in 3 and in 4 bytes
+/// (WAVE_FORMAT_EXTENSIBLE), 32.
+const INTEGER_LAYOUTS: [(u16, u16, u16); 5] =
+    [(8, 1, 1), (16, 2, 2), (24, 3, 3), (24, 4, 2), (32, 4, 1)];
+
+/// Frames in each layout's test file: past one block of 65 536.
+const LAYOUT_FRAMES: usize = 70_001;
+
+/// A WAV of the test pattern in one layout, written to `dir`: its path and bytes.
+fn layout_wav(dir: &Path, (bits, bytes, nch): (u16, u16, u16)) -> (PathBuf, Vec<u8>) {
+    let wav = int_wav(
+        spec(nch, bits, false),
+        bytes,
+        &codes(LAYOUT_FRAMES * nch as usize, bits),
+    );
+    (write(dir, &format!("i{bits}_{bytes}_{nch}.wav"), &wav), wav)
+}
+
 #[test]
 fn every_integer_layout_reads_as_hound_reads_it() {
     let dir = tempfile::tempdir().unwrap();
-    // (bits, bytes per stored sample, channels): 8-bit unsigned, 16, 24 in 3 and in 4
-    // bytes (WAVE_FORMAT_EXTENSIBLE), 32; frames past one block of 65 536.
-    for (bits, bytes, nch) in [(8, 1, 1), (16, 2, 2), (24, 3, 3), (24, 4, 2), (32, 4, 1)] {
-        let frames = 70_001;
-        let wav = int_wav(
-            spec(nch, bits, false),
-            bytes,
-            &codes(frames * nch as usize, bits),
-        );
-        let p = write(dir.path(), &format!("i{bits}_{bytes}_{nch}.wav"), &wav);
+    for (bits, bytes, nch) in INTEGER_LAYOUTS {
+        let (p, wav) = layout_wav(dir.path(), (bits, bytes, nch));
         let cap = read_capture(&p, &ReadOptions::default()).unwrap();
         let want = hound_fractions(&wav);
         assert_eq!(cap.channels.len(), usize::from(nch));
         for (ch, w) in cap.channels.iter().zip(&want) {
-            assert_eq!(ch.samples.len(), frames);
+            assert_eq!(ch.samples.len(), LAYOUT_FRAMES);
             assert!(
                 ch.samples
                     .iter()
@@ -290,14 +300,8 @@ impl kickscan::capture::TakeValues for Coded {
 #[test]
 fn every_integer_layout_read_as_codes_gives_what_hound_reads() {
     let dir = tempfile::tempdir().unwrap();
-    for (bits, bytes, nch) in [(8, 1, 1), (16, 2, 2), (24, 3, 3), (24, 4, 2), (32, 4, 1)] {
-        let frames = 70_001;
-        let wav = int_wav(
-            spec(nch, bits, false),
-            bytes,
-            &codes(frames * nch as usize, bits),
-        );
-        let p = write(dir.path(), &format!("c{bits}_{bytes}_{nch}.wav"), &wav);
+    for (bits, bytes, nch) in INTEGER_LAYOUTS {
+        let (p, wav) = layout_wav(dir.path(), (bits, bytes, nch));
         let want = hound_fractions(&wav);
         for ch in 0..usize::from(nch) {
             let factor = -2.5;
@@ -310,14 +314,14 @@ fn every_integer_layout_read_as_codes_gives_what_hound_reads() {
             let mut got = Coded::default();
             let mut look = |c: &kickscan::capture::CodedChannel| c.hand_to(&mut got);
             while r.next_coded(ch, &mut look).unwrap() != Some(0) {}
-            assert_eq!(r.samples_read(), frames as u64);
+            assert_eq!(r.samples_read(), LAYOUT_FRAMES as u64);
             let want: Vec<u64> = want[ch].iter().map(|x| (x * factor).to_bits()).collect();
             let bits_got: Vec<u64> = got.values.iter().map(|x| x.to_bits()).collect();
             assert!(
                 bits_got == want,
                 "{bits}-bit in {bytes} bytes, channel {ch}"
             );
-            assert_eq!(got.runs, frames.div_ceil(777));
+            assert_eq!(got.runs, LAYOUT_FRAMES.div_ceil(777));
         }
     }
 }

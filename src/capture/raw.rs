@@ -10,7 +10,7 @@ use std::fs::File;
 use std::io::{BufReader, Seek, SeekFrom};
 use std::path::{Path, PathBuf};
 
-use super::frames::{decode_frames, CodeMap, CodedChannel, Encoding};
+use super::frames::{decode_frames, hand_channel, CodeMap, CodedChannel, Encoding};
 use super::runs::{Ended, FrameRuns};
 use super::sidecar::read_sidecar;
 use super::wav::{describe_channels, Scaling};
@@ -215,13 +215,7 @@ impl RawStream {
         else {
             return Ok(None);
         };
-        self.frames(max, |enc, b, scalings| {
-            if let Some(c) = CodedChannel::new(b, enc, scalings.len(), ch, map) {
-                look(&c);
-            }
-            Ok(())
-        })
-        .map(Some)
+        self.frames(max, hand_channel(ch, map, look)).map(Some)
     }
 
     /// Hands up to `max` whole frames to `handle` (as [`super::wav::WavStream`]'s).

@@ -7,7 +7,7 @@ use std::fs::File;
 use std::io::{BufReader, Read, Seek, SeekFrom};
 use std::path::{Path, PathBuf};
 
-use super::frames::{decode_frames, CodeMap, CodedChannel, Encoding};
+use super::frames::{decode_frames, hand_channel, CodeMap, CodedChannel, Encoding};
 use super::runs::{Ended, FrameRuns};
 use super::sidecar::{read_sidecar, Sidecar};
 use super::{AdcRange, Capture, CaptureError, Channel, Format, ReadOptions};
@@ -347,13 +347,7 @@ impl WavStream {
         else {
             return Ok(None);
         };
-        self.frames(max, |enc, b, scalings| {
-            if let Some(c) = CodedChannel::new(b, enc, scalings.len(), ch, map) {
-                look(&c);
-            }
-            Ok(())
-        })
-        .map(Some)
+        self.frames(max, hand_channel(ch, map, look)).map(Some)
     }
 
     /// Hands up to `max` whole frames to `handle`, with the encoding and the channels'

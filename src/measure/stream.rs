@@ -30,7 +30,7 @@ use super::{
     check_length_and_interval, choose_levels, conclude, cross_check, event, hysteresis_of, near_on,
     CaptureMeasurement, Event, Found, MeasureError, MeasureOptions, Survey, Trace, MIN_STATE_RUN,
 };
-use crate::capture::AdcRange;
+use crate::capture::{AdcRange, TakeValues};
 use crate::{events, levels};
 
 /// Memory bounds of the streaming measurement, in samples.
@@ -164,14 +164,25 @@ impl Surveyor {
 
     /// Takes the next block of voltage samples.
     pub fn push(&mut self, block: &[f64]) {
-        self.push_values(block.len(), levels::finite_extremes(block), |j| block[j]);
+        self.take_values(block.len(), levels::finite_extremes(block), |j| block[j]);
     }
 
+    /// Samples taken so far.
+    pub fn len(&self) -> usize {
+        self.n
+    }
+
+    pub fn is_empty(&self) -> bool {
+        self.n == 0
+    }
+}
+
+impl TakeValues for Surveyor {
     /// Takes the next `len` voltage samples, given by their smallest and largest finite
     /// value and by `value(j)` for each `j < len` (asked only of the samples kept: a
-    /// source that must convert its samples converts only those).
+    /// source that must convert its samples, a run of stored codes, converts only those).
     #[inline]
-    pub fn push_values(
+    fn take_values(
         &mut self,
         len: usize,
         extremes: Option<(f64, f64)>,
@@ -236,26 +247,6 @@ impl Surveyor {
             self.last = Some(value(len - 1));
         }
         self.n = end;
-    }
-
-    /// Samples taken so far.
-    pub fn len(&self) -> usize {
-        self.n
-    }
-
-    pub fn is_empty(&self) -> bool {
-        self.n == 0
-    }
-}
-
-impl crate::capture::TakeValues for Surveyor {
-    fn take_values(
-        &mut self,
-        len: usize,
-        extremes: Option<(f64, f64)>,
-        value: impl Fn(usize) -> f64,
-    ) {
-        self.push_values(len, extremes, value);
     }
 }
 
