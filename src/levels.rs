@@ -649,6 +649,13 @@ mod tests {
         }
         assert_eq!(median(&[1.0, f64::NAN]), None);
         assert_eq!(median(&[]), None);
+        // A NaN anywhere gives none.
+        for at in [0, 1023, 1024, 2500, 2999] {
+            let mut v: Vec<f64> = (0..3000).map(|k| k as f64).collect();
+            assert_eq!(median(&v), Some(1500.0));
+            v[at] = -f64::NAN;
+            assert_eq!(median(&v), None, "NaN at {at}");
+        }
     }
 
     #[test]

@@ -168,7 +168,7 @@ pub fn measure_event(cx: &Context, w: &Window) -> (Event, LocalLevels) {
     let smoothed = |j: usize, w: usize| if w > 1 { sums().average(j, w) } else { ys[j] };
     let sm = |j: usize| smoothed(j, smooth_w);
     let ps = if smooth_w > 1 {
-        sums().first_max_index(&ys, smooth_w, p - e)
+        sums().first_max_index(smooth_w, p - e)
     } else {
         series::first_max_index(&ys)
     }
@@ -443,7 +443,7 @@ pub fn measure_event(cx: &Context, w: &Window) -> (Event, LocalLevels) {
 /// finds the release on the raw samples).
 fn plateau_through_dips<'a>(
     ys: &[f64],
-    sums: &dyn Fn() -> &'a RunningSums,
+    sums: &dyn Fn() -> &'a RunningSums<'a>,
     start: usize,
     first_dip: usize,
     band: f64,

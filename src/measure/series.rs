@@ -9,6 +9,8 @@
 //! (unit tests below compare them); samples are finite, which the readers guarantee. The
 //! one exception is [`lane_sum`]: a sum over eight lanes is another order of additions.
 
+use std::cell::{Ref, RefCell};
+
 /// The largest value of `y` (minus infinity for none).
 fn max_value(y: &[f64]) -> f64 {
     let mut lanes = [f64::NEG_INFINITY; 8];
@@ -26,6 +28,24 @@ fn max_value(y: &[f64]) -> f64 {
         .chain(rest)
         .copied()
         .fold(f64::NEG_INFINITY, |m, x| if x > m { x } else { m })
+}
+
+/// The largest `|y[k]|` (zero for none).
+#[inline(always)]
+fn max_abs(y: &[f64]) -> f64 {
+    let mut lanes = [0.0f64; 8];
+    let chunks = y.chunks_exact(8);
+    let rest = chunks.remainder();
+    for c in chunks {
+        for j in 0..8 {
+            let a = c[j].abs();
+            lanes[j] = if a > lanes[j] { a } else { lanes[j] };
+        }
+    }
+    lanes
+        .iter()
+        .chain(rest)
+        .fold(0.0f64, |m, x| if x.abs() > m { x.abs() } else { m })
 }
 
 /// Index of the first largest value of `y`.
@@ -72,73 +92,124 @@ pub fn lane_sum(x: &[f64], y: &[f64], f: impl Fn(f64, f64) -> f64) -> f64 {
     (((l0 + l1) + (l2 + l3)) + ((l4 + l5) + (l6 + l7))) + tail
 }
 
-/// Running sums of a window, `P[j] = y[0] + ... + y[j-1]` added up in order once, from
-/// which centred moving averages of any width are read: the average at `k` over `w`
-/// samples is `(P[b] - P[a]) / (b - a)` over `a = k - w/2 .. b = k + w - w/2`, cut to the
-/// window (shorter at the ends). One set of sums serves every width a measurement asks
-/// for, so the sequential additions are made once.
-pub struct RunningSums {
-    p: Vec<f64>,
-    /// The largest `|P[j]|`, which bounds the rounding of every average.
-    p_max: f64,
+/// Running sums of a window, `P[j] = y[0] + ... + y[j-1]` added up in order, from which
+/// centred moving averages of any width are read: the average at `k` over `w` samples is
+/// `(P[b] - P[a]) / (b - a)` over `a = k - w/2 .. b = k + w - w/2`, cut to the window
+/// (shorter at the ends). One set of sums serves every width a measurement asks for.
+///
+/// The sums are made only as far as a question needs them (each waits for the one before:
+/// four cycles a sample, a fifth of the measuring thread's time on a long capture when
+/// they were made over the whole window at once). On a window cut at the memory bound the
+/// event has settled after a few percent of it, and [`RunningSums::last_beyond`] proves the
+/// settled rest inside the band without them (see [`window_sums_bound`]), so the sums, and
+/// their memory, stop near the end of the ring.
+pub struct RunningSums<'a> {
+    y: &'a [f64],
+    /// `P[0..=m]`, as far as made so far.
+    p: RefCell<Vec<f64>>,
+    /// At least every `|P[j]|`, made or not: the sum of `|y|`, rounded up.
+    p_bound: f64,
+    /// The largest `|y[k]|`.
+    y_max: f64,
 }
 
 /// Averages worked out together when only some are wanted (a search from the end).
 const BLOCK: usize = 4096;
 
-impl RunningSums {
-    pub fn of(y: &[f64]) -> Self {
-        let mut p = Vec::with_capacity(y.len() + 1);
-        p.push(0.0);
-        let mut sum = 0.0f64;
-        p.extend(y.iter().map(|&x| {
-            sum += x;
-            sum
-        }));
-        // The largest magnitude afterwards, over eight lanes: kept alongside the sums it
-        // was a second chain of dependent operations (`max` waits for the last `max`),
-        // slower than the additions. The largest of a set is the same in any order.
-        let mut lanes = [0.0f64; 8];
-        let chunks = p.chunks_exact(8);
+impl<'a> RunningSums<'a> {
+    pub fn of(y: &'a [f64]) -> Self {
+        // Both over eight lanes of independent operations, so no chain of additions.
+        let (mut sum_l, mut max_l) = ([0.0f64; 8], [0.0f64; 8]);
+        let chunks = y.chunks_exact(8);
         let rest = chunks.remainder();
         for c in chunks {
             for j in 0..8 {
-                lanes[j] = lanes[j].max(c[j].abs());
+                let a = c[j].abs();
+                sum_l[j] += a;
+                max_l[j] = if a > max_l[j] { a } else { max_l[j] };
             }
         }
-        let p_max = lanes
-            .iter()
-            .chain(rest)
-            .fold(0.0f64, |m, &x| m.max(x.abs()));
-        RunningSums { p, p_max }
+        let (sum, y_max) = rest.iter().fold(
+            (
+                sum_l.iter().sum::<f64>(),
+                max_l.iter().fold(0.0f64, |m, &x| m.max(x)),
+            ),
+            |(s, m), x| (s + x.abs(), m.max(x.abs())),
+        );
+        // A sum of n terms in any order is within (n - 1) u of the exact one, relative to
+        // the sum of magnitudes (Higham, "Accuracy and Stability of Numerical Algorithms",
+        // 2nd ed., ch. 4, from memory): so each made |P[j]| is at most the exact sum of
+        // |y| times (1 + n u), and the lanes' sum at least that sum times (1 - n u). A
+        // NaN or infinity in `y` makes the bound so, and then nothing is passed over.
+        let n = y.len() as f64 + 8.0;
+        let p_bound = sum * (1.0 + 4.0 * n * f64::EPSILON);
+        let mut p = Vec::with_capacity(BLOCK + 1);
+        p.push(0.0);
+        RunningSums {
+            y,
+            p: RefCell::new(p),
+            p_bound,
+            y_max,
+        }
     }
 
     /// Samples in the window.
     pub fn len(&self) -> usize {
-        self.p.len() - 1
+        self.y.len()
+    }
+
+    /// Sums made so far (for tests).
+    #[cfg(test)]
+    fn made(&self) -> usize {
+        self.p.borrow().len() - 1
+    }
+
+    /// The sums `P[0..=j]` (at least), made in order as far as needed, a block at a time.
+    fn made_to(&self, j: usize) -> Ref<'_, Vec<f64>> {
+        if self.p.borrow().len() <= j {
+            let mut p = self.p.borrow_mut();
+            let from = p.len() - 1;
+            let to = j.max(from + BLOCK).min(self.y.len());
+            let mut sum = p[from];
+            p.extend(self.y[from..to].iter().map(|&x| {
+                sum += x;
+                sum
+            }));
+        }
+        self.p.borrow()
     }
 
     /// The average at `k` over `w >= 2` samples.
     pub fn average(&self, k: usize, w: usize) -> f64 {
         let (a, b) = (k.saturating_sub(w / 2), (k + w - w / 2).min(self.len()));
-        (self.p[b] - self.p[a]) / (b - a) as f64
+        let p = self.made_to(b);
+        (p[b] - p[a]) / (b - a) as f64
+    }
+
+    /// The averages at `k0..k1` that span fewer than `w` samples (cut by the window's
+    /// ends) come first and last; those between span exactly `w`: `k` in `inner`.
+    fn inner(&self, w: usize, k0: usize, k1: usize) -> std::ops::Range<usize> {
+        let (n, h) = (self.len(), w / 2);
+        let inner0 = k0.max(h);
+        let inner1 = k1.min((n + h + 1).saturating_sub(w)).max(inner0);
+        inner0..inner1
     }
 
     /// Appends the averages over `w >= 2` samples at `k0..k1` to `out`.
     fn fill(&self, w: usize, k0: usize, k1: usize, out: &mut Vec<f64>) {
-        let (n, h) = (self.len(), w / 2);
+        let h = w / 2;
         // Away from the ends every average spans exactly `w` samples: one subtraction and
         // one division per sample over two shifted views of the sums (the same operations
         // as at the ends, so the same values).
-        let inner0 = k0.max(h);
-        let inner1 = k1.min((n + h + 1).saturating_sub(w)).max(inner0);
-        for k in k0..inner0.min(k1) {
+        let inner = self.inner(w, k0, k1);
+        for k in k0..inner.start.min(k1) {
             out.push(self.average(k, w));
         }
-        let m = inner1 - inner0;
+        let m = inner.len();
         if m > 0 {
-            let (a0, b0) = (inner0 - h, inner0 + w - h);
-            let (b, a) = (&self.p[b0..b0 + m], &self.p[a0..a0 + m]);
+            let (a0, b0) = (inner.start - h, inner.start + w - h);
+            let p = self.made_to(b0 + m - 1);
+            let (b, a) = (&p[b0..b0 + m], &p[a0..a0 + m]);
             if w.is_power_of_two() {
                 // Dividing by a power of two and multiplying by its inverse scale by the
                 // same exact factor, so give the same value; the product is several
@@ -150,11 +221,61 @@ impl RunningSums {
                 out.extend(b.iter().zip(a).map(|(b, a)| (b - a) / width));
             }
         }
-        for k in inner1.max(inner0.min(k1))..k1 {
+        for k in inner.end.max(inner.start.min(k1))..k1 {
             out.push(self.average(k, w));
         }
     }
 
+    /// How far an average read from the sums may lie from the exact mean of its samples:
+    /// each of the `b - a` sums between P[a] and P[b] was rounded by at most u p_max
+    /// (u = 2^-53), so their share of the average is at most u p_max; the difference and
+    /// the division add u each of a value at most 2 p_max (a sample is the difference of
+    /// two sums). 5 u p_max in all; 2^-48 of the bound (32 u) leaves room to spare.
+    fn rounding(&self) -> f64 {
+        self.p_bound * f64::EPSILON * 16.0
+    }
+
+    /// Whether every average over `w >= 2` samples at `k0..k1` is sure to lie within
+    /// `band` of zero, judged without the running sums: first by the samples themselves
+    /// (an average lies within their range), else by sums of each `w` samples made in
+    /// a tree ([`window_sums_bound`]), whose rounding, with that of the averages from the
+    /// running sums, is covered by a margin. `false` means only "not sure".
+    fn surely_within(
+        &self,
+        w: usize,
+        k0: usize,
+        k1: usize,
+        band: f64,
+        tree: &mut TreeRoom,
+    ) -> bool {
+        let (n, h) = (self.len(), w / 2);
+        // Sums of `w` samples in a tree: at most five levels of additions, each within u
+        // of its magnitude, at most `w` y_max; the caller's average from the running sums
+        // adds [`RunningSums::rounding`]; the division here, u of the band.
+        let margin = self.rounding() + 16.0 * f64::EPSILON * (self.y_max + band.abs());
+        let limit = band - margin;
+        let span = &self.y[k0.saturating_sub(h)..(k1 - 1 + w - h).min(n)];
+        if max_abs(span) <= limit {
+            return true;
+        }
+        let inner = self.inner(w, k0, k1);
+        let mut edges = (k0..inner.start.min(k1)).chain(inner.end.max(inner.start.min(k1))..k1);
+        let edge_within = |k: usize| {
+            let (a, b) = (k.saturating_sub(h), (k + w - h).min(n));
+            let s: f64 = self.y[a..b].iter().sum();
+            s.abs() / (b - a) as f64 <= limit
+        };
+        if !edges.all(edge_within) {
+            return false;
+        }
+        let m = inner.len();
+        if m == 0 {
+            return true;
+        }
+        let a0 = inner.start - h;
+        let largest = window_sums_bound(&self.y[a0..a0 + m + w - 1], w, m, tree);
+        largest / w as f64 <= limit
+    }
     /// Index of the first largest average over `w >= 2` samples of `y` (the samples these
     /// sums were made of), worked out a block at a time (no copy of the window's length).
     /// A block whose samples all lie below a value some average reaches cannot hold the
@@ -162,17 +283,12 @@ impl RunningSums {
     /// averaged, not the settled rest of a long window. The average at `near` is that
     /// value: any index gives the same result, one at (or by) the largest sample, which
     /// the caller has found already, lets the most be passed over.
-    pub fn first_max_index(&self, y: &[f64], w: usize, near: usize) -> Option<usize> {
-        debug_assert_eq!(y.len(), self.len());
-        let (n, h) = (self.len(), w / 2);
+    pub fn first_max_index(&self, w: usize, near: usize) -> Option<usize> {
+        let (y, n, h) = (self.y, self.len(), w / 2);
         // Any one average bounds the largest from below.
         let floor = (n > 0).then(|| self.average(near.min(n - 1), w));
-        // A computed average exceeds its largest sample by its rounding at most: each of
-        // the `b - a` sums between P[a] and P[b] was rounded by at most u p_max (u = 2^-53),
-        // so their share of the average is at most u p_max; the difference and the
-        // division add u each of a value at most 2 p_max (a sample is the difference of
-        // two sums). 5 u p_max in all; 2^-48 p_max (32 u) leaves room to spare.
-        let margin = self.p_max * f64::EPSILON * 16.0;
+        // A computed average exceeds its largest sample by its rounding at most.
+        let margin = self.rounding();
         let mut buf = Vec::with_capacity(BLOCK);
         let mut best: Option<(usize, f64)> = None;
         let mut k0 = 0;
@@ -198,12 +314,19 @@ impl RunningSums {
 
     /// Index of the last average over `w >= 2` samples beyond `band` either side of zero,
     /// worked out a block at a time from the end (a settled window's search stops long
-    /// before its start, and no copy of the window's length is made).
+    /// before its start, and no copy of the window's length is made). A block proved
+    /// inside the band without the running sums is passed over, so they are made only up
+    /// to the block where the answer lies.
     pub fn last_beyond(&self, w: usize, band: f64) -> Option<usize> {
         let mut buf = Vec::with_capacity(BLOCK);
+        let mut tree = TreeRoom::default();
         let mut k1 = self.len();
         while k1 > 0 {
             let k0 = k1.saturating_sub(BLOCK);
+            if self.surely_within(w, k0, k1, band, &mut tree) {
+                k1 = k0;
+                continue;
+            }
             buf.clear();
             self.fill(w, k0, k1, &mut buf);
             if let Some(j) = last_beyond(&buf, band) {
@@ -215,23 +338,187 @@ impl RunningSums {
     }
 }
 
+/// Room for [`window_sums_bound`]'s levels, kept from block to block.
+#[derive(Default)]
+struct TreeRoom {
+    level: Vec<f64>,
+    next: Vec<f64>,
+    sums: Vec<f64>,
+}
+
+crate::avx2::twice_compiled!(
+    /// The largest `|s_t|` over the sums `s_t` of `span[t..t + w]`, `t < m` (`span` holds
+    /// `m + w - 1` samples). Each sum is made in a tree: level `j` holds the sums of `2^j`
+    /// neighbours, each the sum of two of the level below, and `s_t` adds up one entry of
+    /// each level in `w`'s binary digits. That is about one addition a sample a level, all
+    /// independent (a sum in order over each window would take `w` a sample, and running
+    /// sums wait for each other); at most five levels up to `w = 16`, the widest the
+    /// settling search smooths with, so the rounding stays within a few u of `w` times the
+    /// largest sample. A bound, not an average: only to prove a block inside a band.
+    fn window_sums_bound(span: &[f64], w: usize, m: usize, room: &mut TreeRoom) -> f64
+        => window_sums_bound_body;
+);
+
+#[inline(always)]
+fn window_sums_bound_body(span: &[f64], w: usize, m: usize, room: &mut TreeRoom) -> f64 {
+    let TreeRoom { level, next, sums } = room;
+    // Level `width` holds `m + w - width` sums (level one is `span` itself); the digits
+    // below `width` took `off` samples, and `off + width <= w` keeps each view inside.
+    // The first digit's view is taken as the sums, and the last one's added with the
+    // largest magnitude found in the same pass: for `w = 16` that is four passes over a
+    // block in all.
+    let top = usize::BITS - 1 - w.leading_zeros();
+    let (mut width, mut off, mut started) = (1usize, 0usize, false);
+    loop {
+        let here: &[f64] = if width == 1 { span } else { level };
+        if w & width != 0 {
+            let view = &here[off..off + m];
+            if width == 1 << top {
+                // The last digit: add it and take the largest magnitude at once.
+                return if started {
+                    add_max_abs(sums, view)
+                } else {
+                    max_abs(view)
+                };
+            }
+            if started {
+                for (s, x) in sums.iter_mut().zip(view) {
+                    *s += x;
+                }
+            } else {
+                sums.clear();
+                sums.extend_from_slice(view);
+                started = true;
+            }
+            off += width;
+        }
+        next.clear();
+        next.extend(here.iter().zip(&here[width..]).map(|(a, b)| a + b));
+        std::mem::swap(level, next);
+        width *= 2;
+    }
+}
+
+/// The largest `|s[k] + x[k]|`.
+#[inline(always)]
+fn add_max_abs(s: &[f64], x: &[f64]) -> f64 {
+    let mut lanes = [0.0f64; 8];
+    let (sc, xc) = (s.chunks_exact(8), x.chunks_exact(8));
+    let (sr, xr) = (sc.remainder(), xc.remainder());
+    for (a, b) in sc.zip(xc) {
+        for j in 0..8 {
+            let v = (a[j] + b[j]).abs();
+            lanes[j] = if v > lanes[j] { v } else { lanes[j] };
+        }
+    }
+    let rest = sr.iter().zip(xr).map(|(a, b)| (a + b).abs());
+    lanes
+        .into_iter()
+        .chain(rest)
+        .fold(0.0f64, |m, v| if v > m { v } else { m })
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
 
-    /// The largest running sum's magnitude, found after the sums over eight lanes, is the
-    /// one the in-order fold finds, for every length around the lane count.
+    /// The bound on the running sums holds every made sum's magnitude and is no looser
+    /// than the sum of magnitudes it comes from (by a millionth), for every length around
+    /// the lane count and a long record of large values; the largest sample is the
+    /// largest `|y|`.
     #[test]
-    fn largest_running_sum() {
-        for n in 0..40 {
-            let y = record(n);
+    fn the_running_sums_bound_holds_them_all() {
+        let long: Vec<f64> = (0..100_003)
+            .map(|k| (0.37 * k as f64).sin() * 1e3 + 7.5)
+            .collect();
+        for y in (0..40).map(record).chain([long]) {
             let sums = RunningSums::of(&y);
-            let mut sum = 0.0f64;
-            let plain = y.iter().fold(0.0f64, |m, &x| {
-                sum += x;
-                m.max(sum.abs())
-            });
-            assert_eq!(sums.p_max.to_bits(), plain.to_bits(), "n = {n}");
+            let made = sums.made_to(y.len());
+            let largest = made.iter().fold(0.0f64, |m, x| m.max(x.abs()));
+            let magnitudes: f64 = y.iter().map(|x| x.abs()).sum();
+            let n = y.len();
+            assert!(sums.p_bound >= largest, "n = {n}");
+            assert!(sums.p_bound <= magnitudes * (1.0 + 1e-6), "n = {n}");
+            let y_max = y.iter().fold(0.0f64, |m, x| m.max(x.abs()));
+            assert_eq!(sums.y_max.to_bits(), y_max.to_bits(), "n = {n}");
+        }
+    }
+
+    /// The tree's window sums against sums in order: every width to 41 (all the binary
+    /// digit patterns the settling search meets, and wider), every offset of a short
+    /// record; within a few u of the sum of magnitudes (the bound the margin allows for).
+    #[test]
+    fn window_sums_in_a_tree_match_the_direct_sums() {
+        let y = record(300);
+        let mut room = TreeRoom::default();
+        for w in 1..=41 {
+            for m in [1, 2, 7, 8, 9, 100, 300 - w + 1] {
+                let span = &y[..m + w - 1];
+                let direct = (0..m).map(|t| span[t..t + w].iter().sum::<f64>());
+                let want = direct.fold(0.0f64, |a, s| a.max(s.abs()));
+                let got = window_sums_bound(span, w, m, &mut room);
+                let scale: f64 = span.iter().map(|x| x.abs()).sum();
+                assert!(
+                    (got - want).abs() <= 8.0 * f64::EPSILON * scale,
+                    "w {w}, m {m}: {got} against {want}"
+                );
+            }
+        }
+        // Exactly the sums where every partial sum is exact.
+        let ints: Vec<f64> = (0..50).map(|k| ((k * 7) % 13) as f64 - 6.0).collect();
+        for w in 1..=16 {
+            let m = ints.len() - w + 1;
+            let want = (0..m)
+                .map(|t| ints[t..t + w].iter().sum::<f64>().abs())
+                .fold(0.0, f64::max);
+            assert_eq!(window_sums_bound(&ints, w, m, &mut room), want, "w {w}");
+        }
+    }
+
+    /// A long record that rings, then settles into noise larger than the band while its
+    /// averages stay inside: the search from the end gives the definition's answer (the
+    /// last average beyond the band, by the same running sums made whole), and makes
+    /// the running sums only to a block or two past it, not to the end. With the band
+    /// below the noise's averages, nothing can be passed over and the answer is the end.
+    #[test]
+    fn the_settled_rest_is_passed_over_without_the_running_sums() {
+        let n = 200_000;
+        let mut g = 99u64;
+        let y: Vec<f64> = (0..n)
+            .map(|k| {
+                g = g
+                    .wrapping_mul(6364136223846793005)
+                    .wrapping_add(1442695040888963407);
+                let noise = ((g >> 11) as f64 / (1u64 << 53) as f64 - 0.5) * 0.4;
+                let x = k as f64;
+                40.0 * (-x / 3000.0).exp() * (x / 50.0).sin() + noise
+            })
+            .collect();
+        for w in [2, 5, 11, 16] {
+            let want_sums = RunningSums::of(&y);
+            let every = averages(&want_sums, w);
+            // The noise (±0.2) pokes out of a band of 0.15, its averages (over 11 or 16
+            // samples) do not.
+            for band in [0.15, 0.5] {
+                let want = every.iter().rposition(|x| x.abs() > band);
+                let sums = RunningSums::of(&y);
+                let got = sums.last_beyond(w, band);
+                assert_eq!(got, want, "w {w}, band {band}");
+                let last = want.unwrap();
+                if w >= 11 || band == 0.5 {
+                    assert!(last < 60_000, "w {w}, band {band}: {last}");
+                    assert!(
+                        sums.made() <= last + 3 * BLOCK,
+                        "w {w}, band {band}: sums made to {} for an answer at {last}",
+                        sums.made()
+                    );
+                }
+            }
+            let sums = RunningSums::of(&y);
+            assert_eq!(
+                sums.last_beyond(w, 0.0),
+                every.iter().rposition(|x| x.abs() > 0.0)
+            );
         }
     }
 
@@ -330,7 +617,7 @@ mod tests {
                 assert_eq!(averages(&sums, w), want, "n {n}, w {w}");
                 for near in [0, n / 2, n.saturating_sub(1)] {
                     assert_eq!(
-                        sums.first_max_index(y, w, near),
+                        sums.first_max_index(w, near),
                         first_max_index(&want),
                         "n {n}, w {w}"
                     );
@@ -372,7 +659,7 @@ mod tests {
             for w in [2, 3, 16, 41] {
                 for near in [peak, 0, 31_000] {
                     assert_eq!(
-                        sums.first_max_index(y, w, near),
+                        sums.first_max_index(w, near),
                         first_max_index(&averages(&sums, w)),
                         "w {w}, near {near}"
                     );
