@@ -14,7 +14,7 @@ use super::{cell_message, csv_err, Role};
 use crate::capture::cells::{
     bare_delimiter, parse_number, parse_time_cell, pow10, trim_cell, Cells, Delim,
 };
-use crate::capture::decimal::{read_prefix, Decimal, SciShape, SciShort};
+use crate::capture::decimal::{read_prefix, read_short_point, Decimal, SciShape, SciShort};
 use crate::capture::lines::{Chunk, ChunkEnd, ChunkReader, MAX_LINE_BYTES};
 use crate::capture::CaptureError;
 
@@ -490,7 +490,11 @@ fn value_to_line_end(row: &[u8], t_len: usize, d: u8, comma: bool) -> Option<(De
     if *row.get(t_len)? != d {
         return None;
     }
-    let (v, j) = read_prefix(row.get(t_len + 1..)?, comma)?;
+    let cell = row.get(t_len + 1..)?;
+    let (v, j) = match read_short_point(cell, comma) {
+        Some(r) => r,
+        None => read_prefix(cell, comma)?,
+    };
     let end = t_len + 1 + j;
     let len = match row.get(end) {
         Some(b'\n') => end + 1,
