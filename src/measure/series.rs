@@ -8,6 +8,7 @@
 //! at once. Every function gives exactly what its plain one-sample-at-a-time form gives
 //! (unit tests below compare them); samples are finite, which the readers guarantee. The
 //! one exception is [`lane_sum`]: a sum over eight lanes is another order of additions.
+//! ([`window_sums_bound`] is a bound, with its rounding allowed for by whoever uses it.)
 
 use std::cell::{Ref, RefCell};
 
@@ -226,11 +227,12 @@ impl<'a> RunningSums<'a> {
         }
     }
 
-    /// How far an average read from the sums may lie from the exact mean of its samples:
-    /// each of the `b - a` sums between P[a] and P[b] was rounded by at most u p_max
-    /// (u = 2^-53), so their share of the average is at most u p_max; the difference and
-    /// the division add u each of a value at most 2 p_max (a sample is the difference of
-    /// two sums). 5 u p_max in all; 2^-48 of the bound (32 u) leaves room to spare.
+    /// How far an average read from the sums may lie from the exact mean of its samples,
+    /// with p_max the largest |P[j]| (at most `p_bound`): each of the `b - a` sums between
+    /// P[a] and P[b] was rounded by at most u p_max (u = 2^-53), so their share of the
+    /// average is at most u p_max; the difference and the division add u each of a value
+    /// at most 2 p_max (a sample is the difference of two sums). 5 u p_max in all; 2^-48
+    /// of the bound (32 u) leaves room to spare.
     fn rounding(&self) -> f64 {
         self.p_bound * f64::EPSILON * 16.0
     }
@@ -249,10 +251,13 @@ impl<'a> RunningSums<'a> {
         tree: &mut TreeRoom,
     ) -> bool {
         let (n, h) = (self.len(), w / 2);
-        // Sums of `w` samples in a tree: at most five levels of additions, each within u
-        // of its magnitude, at most `w` y_max; the caller's average from the running sums
-        // adds [`RunningSums::rounding`]; the division here, u of the band.
-        let margin = self.rounding() + 16.0 * f64::EPSILON * (self.y_max + band.abs());
+        // A sum of `w` samples, in a tree (at most 2 log2 w additions on the way) or in
+        // order at the window's ends (at most w - 1), is within (w + 8) u w y_max of the
+        // exact one, so its mean within (w + 8) u y_max; the caller's average from the
+        // running sums adds [`RunningSums::rounding`]; the division and the limit here, u
+        // of the band each. Twice each, as u is half of `EPSILON`, and room to spare.
+        let margin =
+            self.rounding() + f64::EPSILON * ((w + 16) as f64 * self.y_max + 16.0 * band.abs());
         let limit = band - margin;
         let span = &self.y[k0.saturating_sub(h)..(k1 - 1 + w - h).min(n)];
         if max_abs(span) <= limit {
@@ -276,6 +281,7 @@ impl<'a> RunningSums<'a> {
         let largest = window_sums_bound(&self.y[a0..a0 + m + w - 1], w, m, tree);
         largest / w as f64 <= limit
     }
+
     /// Index of the first largest average over `w >= 2` samples of `y` (the samples these
     /// sums were made of), worked out a block at a time (no copy of the window's length).
     /// A block whose samples all lie below a value some average reaches cannot hold the
