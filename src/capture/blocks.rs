@@ -5,7 +5,7 @@ use std::path::Path;
 
 use super::adc::RailWatch;
 use super::csv::CsvStream;
-use super::frames::CodedChannel;
+use super::frames::{CodedChannel, FrameStream};
 use super::raw::RawStream;
 use super::skew::{skews_of, Skew};
 use super::wav::WavStream;

@@ -2,6 +2,7 @@
 //! values, one channel at a time over a buffer of whole frames.
 
 use super::wav::Scaling;
+use super::CaptureError;
 
 /// How one stored sample is encoded.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -203,18 +204,57 @@ impl CodeMap {
     }
 }
 
-/// What a binary stream's `frames` runs on each run of whole frames for a coded read
-/// (`fill_coded` in `wav.rs` and `raw.rs`): channel `ch` handed to `look` as stored codes.
-pub(crate) fn hand_channel<'a>(
-    ch: usize,
-    map: CodeMap,
-    look: &'a mut (dyn FnMut(&CodedChannel) + Send),
-) -> impl FnMut(Encoding, &[u8], &[Scaling]) -> Result<(), (usize, f64)> + Send + 'a {
-    move |enc, bytes, scalings| {
-        if let Some(c) = CodedChannel::new(bytes, enc, scalings.len(), ch, map) {
-            look(&c);
-        }
-        Ok(())
+/// A binary stream of whole interleaved frames (WAV data, a raw dump). Each reader gives
+/// its encoding, its channels' scalings and `frames`, the loop over runs of frames with its
+/// own error messages; reading the frames as values ([`FrameStream::fill`]) or one channel
+/// as stored codes ([`FrameStream::fill_coded`]) is written once here.
+pub(crate) trait FrameStream {
+    /// The stored encoding; `None` when the reader cannot decode it (`frames` then says
+    /// why).
+    fn encoding(&self) -> Option<Encoding>;
+
+    fn scalings(&self) -> &[Scaling];
+
+    /// Hands up to `max` whole frames to `handle`, with the encoding and the channels'
+    /// scalings; returns how many. `handle` may refuse a sample (its index in the bytes,
+    /// counted in samples, and value): the error then names its place in the file.
+    fn frames(
+        &mut self,
+        max: usize,
+        handle: impl FnMut(Encoding, &[u8], &[Scaling]) -> Result<(), (usize, f64)> + Send,
+    ) -> Result<usize, CaptureError>;
+
+    /// Appends up to `max` frames, decoded and scaled, one vector per channel; returns how
+    /// many were read.
+    fn fill(&mut self, out: &mut [Vec<f64>], max: usize) -> Result<usize, CaptureError> {
+        self.frames(max, |enc, b, scalings| decode_frames(enc, b, scalings, out))
+    }
+
+    /// Hands up to `max` frames of channel `ch` to `look` as stored codes (see
+    /// [`CodedChannel`]), `--scale`'s `factor` included; returns how many, or `None` when
+    /// the samples are floats or the scaling would overflow (then [`FrameStream::fill`]
+    /// reads them).
+    fn fill_coded(
+        &mut self,
+        ch: usize,
+        factor: f64,
+        max: usize,
+        look: &mut (dyn FnMut(&CodedChannel) + Send),
+    ) -> Result<Option<usize>, CaptureError> {
+        let Some(map) = self
+            .encoding()
+            .zip(self.scalings().get(ch))
+            .and_then(|(enc, &s)| CodeMap::new(enc, s, factor))
+        else {
+            return Ok(None);
+        };
+        self.frames(max, move |enc, bytes, scalings| {
+            if let Some(c) = CodedChannel::new(bytes, enc, scalings.len(), ch, map) {
+                look(&c);
+            }
+            Ok(())
+        })
+        .map(Some)
     }
 }
 

@@ -10,7 +10,7 @@ use std::fs::File;
 use std::io::{BufReader, Seek, SeekFrom};
 use std::path::{Path, PathBuf};
 
-use super::frames::{decode_frames, hand_channel, CodeMap, CodedChannel, Encoding};
+use super::frames::{Encoding, FrameStream};
 use super::runs::{Ended, FrameRuns};
 use super::sidecar::read_sidecar;
 use super::wav::{describe_channels, Scaling};
@@ -192,33 +192,15 @@ pub(crate) fn open(path: &Path, opts: &ReadOptions) -> Result<(Capture, RawStrea
     ))
 }
 
-impl RawStream {
-    /// Appends up to `max` frames; returns how many were read.
-    pub(crate) fn fill(&mut self, out: &mut [Vec<f64>], max: usize) -> Result<usize, CaptureError> {
-        self.frames(max, |enc, b, scalings| decode_frames(enc, b, scalings, out))
+impl FrameStream for RawStream {
+    fn encoding(&self) -> Option<Encoding> {
+        Some(self.kind.encoding())
     }
 
-    /// Hands up to `max` frames of channel `ch` to `look` as stored codes (as
-    /// [`super::wav::WavStream::fill_coded`]).
-    pub(crate) fn fill_coded(
-        &mut self,
-        ch: usize,
-        factor: f64,
-        max: usize,
-        look: &mut (dyn FnMut(&CodedChannel) + Send),
-    ) -> Result<Option<usize>, CaptureError> {
-        let enc = self.kind.encoding();
-        let Some(map) = self
-            .scalings
-            .get(ch)
-            .and_then(|&s| CodeMap::new(enc, s, factor))
-        else {
-            return Ok(None);
-        };
-        self.frames(max, hand_channel(ch, map, look)).map(Some)
+    fn scalings(&self) -> &[Scaling] {
+        &self.scalings
     }
 
-    /// Hands up to `max` whole frames to `handle` (as [`super::wav::WavStream`]'s).
     fn frames(
         &mut self,
         max: usize,

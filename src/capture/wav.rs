@@ -7,7 +7,7 @@ use std::fs::File;
 use std::io::{BufReader, Read, Seek, SeekFrom};
 use std::path::{Path, PathBuf};
 
-use super::frames::{decode_frames, hand_channel, CodeMap, CodedChannel, Encoding};
+use super::frames::{Encoding, FrameStream};
 use super::runs::{Ended, FrameRuns};
 use super::sidecar::{read_sidecar, Sidecar};
 use super::{AdcRange, Capture, CaptureError, Channel, Format, ReadOptions};
@@ -323,36 +323,15 @@ fn encoding_of(spec: hound::WavSpec, data_len: u64, n_stored: u64) -> Option<Enc
     }
 }
 
-impl WavStream {
-    /// Appends up to `max` frames; returns how many were read.
-    pub(crate) fn fill(&mut self, out: &mut [Vec<f64>], max: usize) -> Result<usize, CaptureError> {
-        self.frames(max, |enc, b, scalings| decode_frames(enc, b, scalings, out))
+impl FrameStream for WavStream {
+    fn encoding(&self) -> Option<Encoding> {
+        self.encoding
     }
 
-    /// Hands up to `max` frames of channel `ch` to `look` as stored codes (see
-    /// [`CodedChannel`]), `--scale`'s `factor` included; returns how many, or `None` when
-    /// the samples are floats or the scaling would overflow (then [`WavStream::fill`]
-    /// reads them).
-    pub(crate) fn fill_coded(
-        &mut self,
-        ch: usize,
-        factor: f64,
-        max: usize,
-        look: &mut (dyn FnMut(&CodedChannel) + Send),
-    ) -> Result<Option<usize>, CaptureError> {
-        let Some(map) = self
-            .encoding
-            .zip(self.scalings.get(ch))
-            .and_then(|(enc, &s)| CodeMap::new(enc, s, factor))
-        else {
-            return Ok(None);
-        };
-        self.frames(max, hand_channel(ch, map, look)).map(Some)
+    fn scalings(&self) -> &[Scaling] {
+        &self.scalings
     }
 
-    /// Hands up to `max` whole frames to `handle`, with the encoding and the channels'
-    /// scalings; returns how many. `handle` may refuse a sample (its index in the bytes,
-    /// counted in samples, and value): the error then names its place in the file.
     fn frames(
         &mut self,
         max: usize,
