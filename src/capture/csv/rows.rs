@@ -14,7 +14,9 @@ use super::{cell_message, csv_err, Role};
 use crate::capture::cells::{
     bare_delimiter, parse_number, parse_time_cell, pow10, trim_cell, Cells, Delim,
 };
-use crate::capture::decimal::{read_prefix, read_short_point, Decimal, SciShape, SciShort};
+use crate::capture::decimal::{
+    read_prefix, read_short_point, Decimal, SciShape, SciShort, ShortCell,
+};
 use crate::capture::lines::{Chunk, ChunkEnd, ChunkReader, MAX_LINE_BYTES};
 use crate::capture::CaptureError;
 
@@ -527,10 +529,19 @@ fn quick_rows(
 ) -> usize {
     let (mut pos, mut n) = (*at, 0);
     let (mut prev, mut prev_negative) = *last;
+    let mut cell: Option<ShortCell> = None;
     while let Some(rest) = text.get(pos..) {
-        let Some((w, e, negative, t_len)) = short.parts(rest) else {
-            break;
+        let parts = match cell.as_mut().and_then(|c| short.parts_after(rest, c)) {
+            Some(p) => p,
+            None => match short.parts_kept(rest) {
+                Some((p, c)) => {
+                    cell = Some(c);
+                    p
+                }
+                None => break,
+            },
         };
+        let (w, e, negative, t_len) = parts;
         // (w < 10^10: nine decimals at most.)
         let count = if negative { -(w as i64) } else { w as i64 };
         if e != exp || count - prev != step {
