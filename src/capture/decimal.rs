@@ -304,6 +304,38 @@ pub(crate) struct SciShort {
     tail_scale: u64,
 }
 
+impl ShortCell {
+    /// The cell's two words (the sixteen bytes after its sign).
+    pub(crate) fn words(&self) -> (u64, u64) {
+        (self.lo, self.hi)
+    }
+
+    /// Whether the next cell can be read by [`SciShort::stepped_words`]: this one has no
+    /// sign and a positive count.
+    pub(crate) fn steps(&self) -> bool {
+        self.at == 0 && !self.negative
+    }
+
+    /// The cell `n` steps of `step` on, whose words [`SciShort::stepped_words`] gave.
+    pub(crate) fn step_on(&mut self, (lo, hi): (u64, u64), n: u64, step: FirstWordStep) {
+        (self.lo, self.hi) = (lo, hi);
+        self.w += n * step.counts;
+    }
+
+    /// The count.
+    pub(crate) fn count(&self) -> u64 {
+        self.w
+    }
+}
+
+/// A step between time cells, in counts of their last place and as
+/// [`SciShort::next_first_word`] adds it.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(crate) struct FirstWordStep {
+    counts: u64,
+    digits: u64,
+}
+
 /// The last time cell a [`SciShort`] read, kept so the next one can be read from what
 /// changed: the sixteen bytes after the sign as two words, the first byte of the text
 /// (the sign, or the lead digit), where the cell starts, the count, the value of the
@@ -464,6 +496,70 @@ impl SciShort {
         };
         (last.lo, last.hi, last.w) = (lo, hi, w);
         Some((w, last.exp, last.negative, last.at + self.decimals + 6))
+    }
+
+    /// A step of `step` counts as [`SciShort::next_first_word`] adds it: when it is
+    /// positive, leaves the second word's decimals as they are (a whole number of units of
+    /// the first word's last place) and is less than the first word's seven digits spell.
+    pub(crate) fn first_word_step(self, step: i64) -> Option<FirstWordStep> {
+        let step = u64::try_from(step).ok().filter(|&s| s > 0)?;
+        if step % self.tail_scale != 0 {
+            return None;
+        }
+        let mut units = step / self.tail_scale;
+        if units >= 10_000_000 {
+            return None;
+        }
+        // The digits one to a byte, in the order `next_first_word` adds in: the units
+        // lowest, and no digit in the point's byte (byte 6 of the reversed word).
+        let mut digits = 0u64;
+        for byte in [0, 1, 2, 3, 4, 5, 7] {
+            digits |= (units % 10) << (8 * byte);
+            units /= 10;
+        }
+        Some(FirstWordStep {
+            counts: step,
+            digits,
+        })
+    }
+
+    /// The first word of the cell `step` counts after the one whose first word is `lo`
+    /// (a positive count; its decimals in the second word unchanged), or `None` when the
+    /// lead digit would pass 9. The digits are added one to a byte in a word reversed so
+    /// that the units sit lowest: adding 246 to every byte makes each byte of ten or more
+    /// carry into the next, a run of nines carrying on; the bytes that did not carry are
+    /// 246 too high, which their top bit shows. The point's byte is a 9 meanwhile, so a
+    /// carry passes through it.
+    #[inline(always)]
+    pub(crate) fn next_first_word(self, lo: u64, step: FirstWordStep) -> Option<u64> {
+        // '0' off every digit, and '.' (0x2E) down to 9.
+        const DIGITS_AND_POINT: u64 = 0x3030_3030_3030_2530;
+        const POINT: u64 = 0xFF << 48;
+        let x = (lo - DIGITS_AND_POINT).swap_bytes() + step.digits;
+        let (y, out) = x.overflowing_add(0xF6F6_F6F6_F6F6_F6F6);
+        if out {
+            return None;
+        }
+        let unspent = (y >> 7) & 0x0101_0101_0101_0101;
+        let sum = (y - unspent * 0xF6) & !POINT | (9 << 48);
+        Some(sum.swap_bytes() + DIGITS_AND_POINT)
+    }
+
+    /// The two words of the cell at the start of `text` when it is the one after a
+    /// cell whose second word is `hi`, its first word `next` (from
+    /// [`SciShort::next_first_word`]) and its second word `hi` over the whole cell and the
+    /// byte after it: then it reads as `step` counts after that cell (see
+    /// [`ShortCell::step_on`]). For unsigned positive cells only ([`ShortCell::steps`]),
+    /// whose first byte is the lead digit the first word compares.
+    #[inline(always)]
+    pub(crate) fn stepped_words(self, text: &[u8], hi: u64, next: u64) -> Option<(u64, u64)> {
+        let (lo, new_hi) = words_at(text, 0)?;
+        (lo == next && (new_hi ^ hi) & self.cell_hi == 0).then_some((lo, new_hi))
+    }
+
+    /// Bytes in a cell (the sign aside).
+    pub(crate) fn cell_bytes(self) -> usize {
+        self.decimals + 6
     }
 
     /// The number the decimals in the second word spell (two or three digits, tested).
@@ -893,6 +989,38 @@ mod tests {
         hits
     }
 
+    /// The same for the cells worked out ahead a `step` apart: wherever the next first
+    /// word is worked out and a row's words are taken as that cell's, reading the row
+    /// whole gives that cell, `step` after the one before. Returns how many rows were
+    /// taken so.
+    fn read_a_step_on(short: SciShort, rows: &[Vec<u8>], step: i64) -> usize {
+        let Some(s) = short.first_word_step(step) else {
+            return 0;
+        };
+        let mut kept: Option<ShortCell> = None;
+        let mut hits = 0;
+        for row in rows {
+            let whole = short.parts_kept(row);
+            if let Some(mut cell) = kept.filter(ShortCell::steps) {
+                let next = short.next_first_word(cell.words().0, s);
+                if let Some(now) = next.and_then(|n| short.stepped_words(row, cell.words().1, n)) {
+                    let w = cell.count() + step as u64;
+                    cell.step_on(now, 1, s);
+                    let text = String::from_utf8_lossy(row);
+                    assert_eq!(whole.map(|w| w.1), Some(cell), "{text}");
+                    let (got_w, exp, negative, len) = whole.unwrap().0;
+                    assert_eq!(
+                        (got_w, exp, negative, len),
+                        (w, cell.exp, false, short.cell_bytes())
+                    );
+                    hits += 1;
+                }
+            }
+            kept = whole.map(|w| w.1);
+        }
+        hits
+    }
+
     proptest::proptest! {
         #![proptest_config(proptest::prelude::ProptestConfig::with_cases(3000))]
 
@@ -936,6 +1064,7 @@ mod tests {
                 }
             }
             read_from_what_changed(short, &rows);
+            read_a_step_on(short, &rows, step as i64);
         }
     }
 
@@ -974,6 +1103,44 @@ mod tests {
             .map(|i| time_cell("", 350_000_000 + i * 100, 8, "E+00;-1\r\n"))
             .collect();
         assert_eq!(read_from_what_changed(short8, &rows), 99);
+        // Worked out ahead: steps in the first word, carries through the point and a
+        // run of nines; not past a lead 9 (the exponent changes there), not for steps in
+        // the second word, negative times or a step other than the cells'.
+        let first = |start: u64, step: u64, n: u64| -> Vec<Vec<u8>> {
+            (0..n)
+                .map(|i| time_cell("", start + i * step, 9, "e-02,0.5\n"))
+                .collect()
+        };
+        assert_eq!(
+            read_a_step_on(short, &first(1_200_000_000, 2_000, 400), 2_000),
+            399
+        );
+        assert_eq!(
+            read_a_step_on(short, &first(1_999_990_000, 1_000, 30), 1_000),
+            29
+        );
+        assert_eq!(
+            read_a_step_on(short, &first(9_999_990_000, 1_000, 10), 1_000),
+            9
+        );
+        assert_eq!(
+            read_a_step_on(short, &first(1_200_000_000, 3_000_000, 99), 3_000_000),
+            98
+        );
+        let past_nine = [
+            time_cell("", 9_999_999_000, 9, "e-02,1\n"),
+            time_cell("", 0, 9, "e-02,1\n"),
+        ];
+        assert_eq!(read_a_step_on(short, &past_nine, 1_000), 0);
+        assert_eq!(read_a_step_on(short, &first(1_200_000_000, 2, 40), 2), 0);
+        assert_eq!(
+            read_a_step_on(short, &run("-", 1_200_000_000, 2_000, 40), 2_000),
+            0
+        );
+        assert_eq!(
+            read_a_step_on(short, &first(1_200_000_000, 2_000, 40), 4_000),
+            0
+        );
         // A sign appearing, or going, is read whole.
         let rows = [
             time_cell("", 100, 9, "e-03,1\n"),

@@ -15,7 +15,7 @@ use crate::capture::cells::{
     bare_delimiter, parse_number, parse_time_cell, pow10, trim_cell, Cells, Delim,
 };
 use crate::capture::decimal::{
-    read_prefix, read_short_point, Decimal, SciShape, SciShort, ShortCell,
+    read_prefix, read_short_point, Decimal, FirstWordStep, SciShape, SciShort, ShortCell,
 };
 use crate::capture::lines::{Chunk, ChunkEnd, ChunkReader, MAX_LINE_BYTES};
 use crate::capture::CaptureError;
@@ -529,9 +529,22 @@ fn quick_rows(
 ) -> usize {
     let (mut pos, mut n) = (*at, 0);
     let (mut prev, mut prev_negative) = *last;
+    // The last time cell read.
     let mut cell: Option<ShortCell> = None;
+    let stepped = short.first_word_step(step);
     while let Some(rest) = text.get(pos..) {
-        let parts = match cell.as_mut().and_then(|c| short.parts_after(rest, c)) {
+        if let (Some(s), Some(c)) = (stepped, cell.as_mut()) {
+            if c.steps() {
+                let k = stepped_rows(text, &mut pos, short, s, c, (d, comma), factor, values);
+                if k > 0 {
+                    n += k;
+                    prev = c.count() as i64;
+                    continue;
+                }
+            }
+        }
+        let read = cell.as_mut().and_then(|c| short.parts_after(rest, c));
+        let parts = match read {
             Some(p) => p,
             None => match short.parts_kept(rest) {
                 Some((p, c)) => {
@@ -557,6 +570,45 @@ fn quick_rows(
     }
     *at = pos;
     *last = (prev, prev_negative);
+    n
+}
+
+/// The rows from `*pos` on whose time cell is `step` after the one before, from `cell` (an
+/// unsigned positive cell, updated) on, with the second word unchanged: each cell's first
+/// word is worked out ahead ([`SciShort::next_first_word`]) and compared, the value read
+/// and pushed as in [`quick_rows`]. `*pos` ends at the first other row; returns how many
+/// were read. Its state is four words, which stay in registers.
+#[inline(always)]
+#[allow(clippy::too_many_arguments)]
+fn stepped_rows(
+    text: &[u8],
+    pos: &mut usize,
+    short: SciShort,
+    step: FirstWordStep,
+    cell: &mut ShortCell,
+    (d, comma): (u8, bool),
+    factor: f64,
+    values: &mut Vec<f64>,
+) -> usize {
+    let t_len = short.cell_bytes();
+    let (mut words, mut p, mut n) = (cell.words(), *pos, 0);
+    while let Some(next) = short.next_first_word(words.0, step) {
+        let Some(rest) = text.get(p..) else {
+            break;
+        };
+        let Some(now) = short.stepped_words(rest, words.1, next) else {
+            break;
+        };
+        let Some((v, len)) = value_to_line_end(rest, t_len, d, comma) else {
+            break;
+        };
+        values.push(v.value * factor);
+        words = now;
+        p += len;
+        n += 1;
+    }
+    cell.step_on(words, n as u64, step);
+    *pos = p;
     n
 }
 
