@@ -304,6 +304,30 @@ pub(crate) struct SciShort {
     tail_scale: u64,
 }
 
+/// A step between time cells, in counts of their last place and as
+/// [`SciShort::next_first_word`] adds it.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(crate) struct FirstWordStep {
+    counts: u64,
+    digits: u64,
+}
+
+/// The last time cell a [`SciShort`] read, kept so the next one can be read from what
+/// changed: the sixteen bytes after the sign as two words, the sign's byte (zero without
+/// one), where the cell starts, the count, the value of the decimals in the second word,
+/// the exponent and whether it is negative.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(crate) struct ShortCell {
+    lo: u64,
+    hi: u64,
+    lead: u8,
+    at: usize,
+    w: u64,
+    tail: u64,
+    exp: i32,
+    negative: bool,
+}
+
 impl ShortCell {
     /// The cell's two words (the sixteen bytes after its sign).
     pub(crate) fn words(&self) -> (u64, u64) {
@@ -326,30 +350,6 @@ impl ShortCell {
     pub(crate) fn count(&self) -> u64 {
         self.w
     }
-}
-
-/// A step between time cells, in counts of their last place and as
-/// [`SciShort::next_first_word`] adds it.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub(crate) struct FirstWordStep {
-    counts: u64,
-    digits: u64,
-}
-
-/// The last time cell a [`SciShort`] read, kept so the next one can be read from what
-/// changed: the sixteen bytes after the sign as two words, the first byte of the text
-/// (the sign, or the lead digit), where the cell starts, the count, the value of the
-/// decimals in the second word, the exponent and the sign.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub(crate) struct ShortCell {
-    lo: u64,
-    hi: u64,
-    lead: u8,
-    at: usize,
-    w: u64,
-    tail: u64,
-    exp: i32,
-    negative: bool,
 }
 
 impl SciShape {

@@ -514,7 +514,9 @@ fn value_to_line_end(row: &[u8], t_len: usize, d: u8, comma: bool) -> Option<(De
 /// first row that is not such a row (the caller reads it its own way), and the count of
 /// rows read is returned. A loop of its own, with little state, so that it lives in
 /// registers: inside the caller, which keeps the check's whole state, a third of the
-/// loop's instructions were loads and stores of spilled values.
+/// loop's instructions were loads and stores of spilled values. Each time cell is read
+/// from what changed since the last ([`SciShort::parts_after`]), and runs of unsigned
+/// positive times a step apart within the cell's first word go to [`stepped_rows`].
 #[inline(never)]
 #[allow(clippy::too_many_arguments)]
 fn quick_rows(
@@ -622,7 +624,7 @@ fn stepped_rows(
 /// about 18 instructions a row (a 2 M-row file of noisy values, times a step apart: 518 M
 /// to 554 M, the wall time within the noise). A credit that stopped comparing after
 /// misses cost more than it saved on both files.
-#[derive(Clone, Copy)]
+#[derive(Clone, Copy, Default)]
 struct RepeatedValue {
     word: u128,
     /// Bytes in the kept rest (none kept: zero).
@@ -640,16 +642,6 @@ const REST_MASKS: [u128; 17] = {
     }
     m
 };
-
-impl Default for RepeatedValue {
-    fn default() -> Self {
-        RepeatedValue {
-            word: 0,
-            rest: 0,
-            value: 0.0,
-        }
-    }
-}
 
 impl RepeatedValue {
     /// [`value_to_line_end`]'s value, times `factor`, and length: the kept ones when the
@@ -1339,13 +1331,12 @@ mod tests {
         // end, so the kept bytes are all there), is not kept: the same bytes with a line
         // end after them are another row.
         let row = format!("{time},1.2345678901234").into_bytes();
-        let (v, len) = value_to_line_end(&row, t_len, b',', false).unwrap();
+        let (_, len) = value_to_line_end(&row, t_len, b',', false).unwrap();
         assert_eq!(len, row.len());
         let (kept, _) = kept_after(&row, b',');
         let mut longer = row.clone();
         longer.extend_from_slice(b"\n..........");
         assert_eq!(taken(&kept, &longer, t_len), None);
-        let _ = v;
     }
 
     /// A `time_s,v` file of `n` rows (header on line 1, row k on line k + 2), with the
