@@ -218,28 +218,24 @@ pub fn inspect_file(path: &Path, read: &ReadOptions) -> Result<InspectFile, Stri
     })
 }
 
-/// Runs `work` (the loop over the files) on a thread of rayon's pool. A lone file's
-/// `par_iter` is a job of one, which rayon runs on the calling thread, outside the pool:
-/// every block's `rayon::join` then went to the pool and back through a wake-up, the
-/// pool's threads sat spinning beside the reading thread on two cores, the scan of a
+/// `f` of each file, in order, the files in parallel on rayon's pool, one file per job:
+/// with rayon's default splitting a core that finished its share sat idle while the other
+/// went on through a run of files it could not hand over. On the pool even for one file:
+/// a `par_iter` of one is not split, and rayon runs it on the calling thread, outside the
+/// pool, where every block's `rayon::join` went to the pool and back through a wake-up,
+/// the pool's threads sat spinning beside the reading thread on two cores, the scan of a
 /// long capture waited for its windows asleep instead of measuring them, and the binary
 /// readers could not read ahead (see `capture::runs`). Inside the pool: the 10 M-sample
 /// CSV 0.234 -> 0.220 s, the 100 M-sample WAV 0.189 -> 0.174 s, 3 to 5 MiB less peak
 /// memory (medians of 15 and 11 runs in turn); a folder the same.
-fn on_the_pool<T: Send>(work: impl FnOnce() -> T + Send) -> T {
-    rayon::scope(|_| work())
+fn each_file<'f, T: Sync, R: Send>(files: &'f [T], f: impl Fn(&'f T) -> R + Sync + Send) -> Vec<R> {
+    rayon::scope(|_| files.par_iter().with_max_len(1).map(f).collect())
 }
 
 /// `inspect` over many files.
 pub fn inspect_inputs(inputs: &[PathBuf], read: &ReadOptions) -> InspectDoc {
     let (files, mut errors) = collect_inputs(inputs);
-    let results: Vec<_> = on_the_pool(|| {
-        files
-            .par_iter()
-            .with_max_len(1)
-            .map(|f| (f, inspect_file(f, read)))
-            .collect()
-    });
+    let results = each_file(&files, |f| (f, inspect_file(f, read)));
     let mut out = Vec::new();
     for (f, r) in results {
         match r {
@@ -449,26 +445,17 @@ pub fn measure_inputs_sketched(
     progress: &(dyn Fn() + Sync),
 ) -> (MeasureDoc, Vec<TraceSketch>) {
     let (files, mut errors) = collect_inputs(inputs);
-    let results: Vec<_> = on_the_pool(|| {
-        files
-            .par_iter()
-            // One file per job: with rayon's default splitting a core that finished its
-            // share sat idle while the other went on through a run of files it could not
-            // hand over.
-            .with_max_len(1)
-            .map(|f| {
-                // Checked between files; files under way stop at their next block.
-                if settings.stopped() {
-                    return None;
-                }
-                let r = measure_file(f, settings, sketch);
-                if r.is_err() && settings.stopped() {
-                    return None;
-                }
-                progress();
-                Some((f, r))
-            })
-            .collect()
+    let results = each_file(&files, |f| {
+        // Checked between files; files under way stop at their next block.
+        if settings.stopped() {
+            return None;
+        }
+        let r = measure_file(f, settings, sketch);
+        if r.is_err() && settings.stopped() {
+            return None;
+        }
+        progress();
+        Some((f, r))
     });
     let mut captures = Vec::new();
     let mut sketches = Vec::new();
@@ -941,20 +928,14 @@ pub fn suppression_advice(
 mod tests {
     use rayon::prelude::*;
 
-    /// Called from a thread outside the pool (a test's own, as `main` is), the work runs
-    /// on one of the pool's threads, where one file alone would otherwise have run on the
-    /// calling thread (see [`super::on_the_pool`]).
+    /// Called from a thread outside the pool (a test's own, as `main` is), a file is
+    /// measured on one of the pool's threads, where one file alone would otherwise have
+    /// run on the calling thread (see [`super::each_file`]).
     #[test]
     fn one_file_is_measured_on_the_pool() {
         assert_eq!(rayon::current_thread_index(), None);
         let files = [1];
-        let seen: Vec<Option<usize>> = super::on_the_pool(|| {
-            files
-                .par_iter()
-                .with_max_len(1)
-                .map(|_| rayon::current_thread_index())
-                .collect()
-        });
+        let seen = super::each_file(&files, |_| rayon::current_thread_index());
         assert!(seen[0].is_some(), "ran outside the pool");
         let outside: Vec<Option<usize>> = files
             .par_iter()
