@@ -123,15 +123,19 @@ pub fn measure_event(cx: &Context, w: &Window) -> (Event, LocalLevels) {
 
     // The window from the edge on, in the spike's direction above the off level.
     // (`s` is one or minus one: the product is the same value `cx.y` gives, in a loop
-    // without a bounds check or polarity test per sample, which vectorises.)
-    let v_off = cx.v_off;
-    let ys: Vec<f64> = v[e..ae].iter().map(|&x| s * (x - v_off)).collect();
-    // Peak: the extreme sample in the spike's direction.
+    // without a bounds check or polarity test per sample, which vectorises.) The same
+    // pass finds what the peak search, the searches over the smoothed copy and the
+    // window integral would each walk the window again for.
+    let series::Oriented {
+        ys,
+        extremes,
+        after_sum,
+    } = series::orient(&v[e..ae], cx.v_off, s);
+    // Peak: the extreme sample in the spike's direction after the edge sample.
     // The first of equal extremes (a clipped run starts there).
-    let p = ys
-        .get(1..)
-        .and_then(series::first_max_index)
-        .map_or(e + 1, |j| e + 1 + j)
+    let p = extremes
+        .first_max_index_after_first(&ys)
+        .map_or(e + 1, |j| e + j)
         .min(n - 1);
     let peak_v = v[p];
     let rail_v = match cx.polarity {
@@ -162,7 +166,7 @@ pub fn measure_event(cx: &Context, w: &Window) -> (Event, LocalLevels) {
     let smooth_w = if cx.noisy() { 16 } else { 1 };
     // One set of running sums serves every smoothing width asked for below.
     let sums_once = std::cell::OnceCell::new();
-    let sums = || sums_once.get_or_init(|| RunningSums::of(&ys));
+    let sums = || sums_once.get_or_init(|| RunningSums::with_extremes(&ys, extremes.clone()));
     // Smoothed copies are read where needed, never held whole (a long window's copy
     // would add to the memory peak); a width of one is the samples themselves.
     let smoothed = |j: usize, w: usize| if w > 1 { sums().average(j, w) } else { ys[j] };
@@ -170,7 +174,7 @@ pub fn measure_event(cx: &Context, w: &Window) -> (Event, LocalLevels) {
     let ps = if smooth_w > 1 {
         sums().first_max_index(smooth_w, p - e)
     } else {
-        series::first_max_index(&ys)
+        extremes.first_max_index(&ys)
     }
     .unwrap_or(0);
     let y_top = if ps < ys.len() { sm(ps) } else { y_peak };
@@ -326,8 +330,7 @@ pub fn measure_event(cx: &Context, w: &Window) -> (Event, LocalLevels) {
         _ => (None, None),
     };
 
-    let after = v.get(e + 1..ae).unwrap_or(&[]);
-    let volt_seconds = series::lane_sum(after, after, |x, _| x - cx.v_off) * cx.dt_s;
+    let volt_seconds = after_sum * cx.dt_s;
 
     // Current: I0 just before the edge, energies per where the probe sits.
     let i_slice = cx.i.filter(|i| i.len() == n);

@@ -7,7 +7,9 @@
 //! eight lanes first and the index looked up afterwards, and searches test eight samples
 //! at once. Every function gives exactly what its plain one-sample-at-a-time form gives
 //! (unit tests below compare them); samples are finite, which the readers guarantee. The
-//! one exception is [`lane_sum`]: a sum over eight lanes is another order of additions.
+//! exceptions are [`lane_sum`] and the integral [`orient`] adds up: a sum over eight lanes
+//! is another order of additions. [`orient`] makes the window's values and, in the same
+//! pass, the extremes of each block the searches then read instead of the samples.
 //! ([`window_sums_bound`] is a bound, with its rounding allowed for by whoever uses it.)
 
 use std::cell::{Ref, RefCell};
@@ -93,6 +95,229 @@ pub fn lane_sum(x: &[f64], y: &[f64], f: impl Fn(f64, f64) -> f64) -> f64 {
     (((l0 + l1) + (l2 + l3)) + ((l4 + l5) + (l6 + l7))) + tail
 }
 
+/// What one pass over a window finds besides its samples: each [`BLOCK`]'s largest value
+/// and largest magnitude, and the sum and the largest of all the magnitudes. The searches
+/// over a long window ([`RunningSums::first_max_index`], [`RunningSums::last_beyond`])
+/// judge most blocks by their extremes alone; reading them here instead of walking the
+/// window again for each search saves a pass over memory per search (a window at the
+/// memory bound is four megabytes, past the cache).
+#[derive(Debug, Clone, Default)]
+pub struct Extremes {
+    block_max: Vec<f64>,
+    block_abs_max: Vec<f64>,
+    /// The sum of `|y|`, over eight lanes.
+    abs_sum: f64,
+    /// The largest `|y|` (zero for none).
+    abs_max: f64,
+}
+
+impl Extremes {
+    /// The extremes of `y`, in one pass (tests; the measurement has [`orient`] find them).
+    #[cfg(test)]
+    pub fn of(y: &[f64]) -> Self {
+        orient(y, 0.0, 1.0).extremes
+    }
+
+    /// The largest value (minus infinity for none).
+    pub fn max(&self) -> f64 {
+        greatest(f64::NEG_INFINITY, &self.block_max)
+    }
+
+    /// Index of the first largest value of `y`, the samples these extremes were found of
+    /// (what [`first_max_index`] gives, with the largest value known: the search stops
+    /// at it).
+    pub fn first_max_index(&self, y: &[f64]) -> Option<usize> {
+        let m = self.max();
+        y.iter().position(|&x| x == m)
+    }
+
+    /// Index of the first largest of `y[1..]` (as an index into `y`): the largest after
+    /// a window's edge sample. Only when the edge sample is itself the largest does it
+    /// take a second look.
+    pub fn first_max_index_after_first(&self, y: &[f64]) -> Option<usize> {
+        match self.first_max_index(y) {
+            Some(0) => first_max_index(y.get(1..)?).map(|j| j + 1),
+            other => other,
+        }
+    }
+
+    /// The whole blocks inside `a..b` of a window of `n` samples (the last block may be
+    /// short), as block indices.
+    fn whole_blocks(&self, a: usize, b: usize, n: usize) -> std::ops::Range<usize> {
+        let i0 = a.div_ceil(BLOCK);
+        let i1 = if b == n {
+            self.block_max.len()
+        } else {
+            b / BLOCK
+        };
+        i0..i1.max(i0)
+    }
+
+    /// The largest of `y[a..b]`: the whole blocks' from the extremes, the samples at the
+    /// ends read. Exact (a largest value does not depend on the order it is found in).
+    fn span_max(&self, y: &[f64], a: usize, b: usize) -> f64 {
+        let blocks = self.whole_blocks(a, b, y.len());
+        if blocks.is_empty() {
+            return max_value(&y[a..b]);
+        }
+        let (from, to) = (blocks.start * BLOCK, (blocks.end * BLOCK).min(y.len()));
+        let inner = greatest(f64::NEG_INFINITY, &self.block_max[blocks]);
+        let edges = max_value(&y[a..from]).max(max_value(&y[to..b]));
+        inner.max(edges)
+    }
+
+    /// The largest `|y[k]|` over `a..b`, as [`Extremes::span_max`] finds the largest value.
+    fn span_abs_max(&self, y: &[f64], a: usize, b: usize) -> f64 {
+        let blocks = self.whole_blocks(a, b, y.len());
+        if blocks.is_empty() {
+            return max_abs(&y[a..b]);
+        }
+        let (from, to) = (blocks.start * BLOCK, (blocks.end * BLOCK).min(y.len()));
+        let inner = greatest(0.0, &self.block_abs_max[blocks]);
+        inner.max(max_abs(&y[a..from])).max(max_abs(&y[to..b]))
+    }
+}
+
+/// The larger of `start` and the largest of `x`.
+fn greatest(start: f64, x: &[f64]) -> f64 {
+    x.iter().fold(start, |m, &v| if v > m { v } else { m })
+}
+
+/// The window-long sums [`orient`] keeps over eight lanes.
+struct Lanes {
+    sum: [f64; 8],
+    abs: [f64; 8],
+}
+
+impl Default for Lanes {
+    fn default() -> Self {
+        // An empty sum is -0.0, as `Iterator::sum` and [`lane_sum`] give.
+        Lanes {
+            sum: [-0.0; 8],
+            abs: [0.0; 8],
+        }
+    }
+}
+
+/// A block's extremes over eight lanes.
+struct BlockLanes {
+    max: [f64; 8],
+    abs_max: [f64; 8],
+}
+
+impl Default for BlockLanes {
+    fn default() -> Self {
+        BlockLanes {
+            max: [f64::NEG_INFINITY; 8],
+            abs_max: [0.0; 8],
+        }
+    }
+}
+
+/// Eight samples of [`orient`]'s pass: their values in the spike's direction.
+#[inline(always)]
+fn orient_eight(c: &[f64], v_off: f64, s: f64, sums: &mut Lanes, ext: &mut BlockLanes) -> [f64; 8] {
+    let mut o = [0.0f64; 8];
+    for j in 0..8 {
+        let t = c[j] - v_off;
+        let y = s * t;
+        o[j] = y;
+        sums.sum[j] += t;
+        let a = y.abs();
+        sums.abs[j] += a;
+        ext.max[j] = if y > ext.max[j] { y } else { ext.max[j] };
+        ext.abs_max[j] = if a > ext.abs_max[j] {
+            a
+        } else {
+            ext.abs_max[j]
+        };
+    }
+    o
+}
+
+/// A window in the spike's direction, as [`orient`] makes it.
+pub struct Oriented {
+    /// `s * (v[k] - v_off)`.
+    pub ys: Vec<f64>,
+    pub extremes: Extremes,
+    /// The sum of `v[k] - v_off` from the second sample on (the window integral after the
+    /// edge sample), over eight lanes (`k` modulo 8, then pairwise, then the samples past
+    /// the last whole eight in order; the same rounding [`lane_sum`] has, lanes counted
+    /// from the window's first sample).
+    pub after_sum: f64,
+}
+
+crate::avx2::twice_compiled!(
+    /// The samples `v` in the spike's direction, `s * (v[k] - v_off)` (`s` is one or minus
+    /// one), with their [`Extremes`] and the window integral's sum, in one pass over `v`:
+    /// the values, their largest, the largest magnitude and the integral were four passes
+    /// over a long window, each reading it from memory again.
+    pub fn orient(v: &[f64], v_off: f64, s: f64) -> Oriented => orient_body;
+);
+
+#[inline(always)]
+fn orient_body(v: &[f64], v_off: f64, s: f64) -> Oriented {
+    let n = v.len();
+    // Not zeroed first: filling a window's length with zeros cost as much as the pass.
+    let mut ys = Vec::with_capacity(n);
+    let n_blocks = n.div_ceil(BLOCK);
+    let (mut block_max, mut block_abs_max) =
+        (Vec::with_capacity(n_blocks), Vec::with_capacity(n_blocks));
+    let mut sums = Lanes::default();
+    let mut tail = -0.0f64;
+    let mut abs_tail = 0.0f64;
+    for (b, vb) in v.chunks(BLOCK).enumerate() {
+        let mut ext = BlockLanes::default();
+        let mut chunks = vb.chunks_exact(8);
+        let rest = chunks.remainder();
+        if b == 0 {
+            // The window's first sample (the edge) is left out of the integral: its
+            // lane, which holds only that sample yet, is emptied again.
+            if let Some(c) = chunks.next() {
+                ys.extend_from_slice(&orient_eight(c, v_off, s, &mut sums, &mut ext));
+                sums.sum[0] = -0.0;
+            }
+        }
+        for c in chunks {
+            ys.extend_from_slice(&orient_eight(c, v_off, s, &mut sums, &mut ext));
+        }
+        // Only the last block has samples past its last whole eight.
+        let mut max_r = f64::NEG_INFINITY;
+        let mut amax_r = 0.0f64;
+        let whole = vb.len() - rest.len();
+        for (j, &x) in rest.iter().enumerate() {
+            let t = x - v_off;
+            let y = s * t;
+            ys.push(y);
+            if !(b == 0 && j == 0 && whole == 0) {
+                tail += t;
+            }
+            let a = y.abs();
+            abs_tail += a;
+            max_r = if y > max_r { y } else { max_r };
+            amax_r = if a > amax_r { a } else { amax_r };
+        }
+        block_max.push(greatest(max_r, &ext.max));
+        block_abs_max.push(greatest(amax_r, &ext.abs_max));
+    }
+    let sum_l = sums.sum;
+    let abs_l = sums.abs;
+    let [l0, l1, l2, l3, l4, l5, l6, l7] = sum_l;
+    let after_sum = (((l0 + l1) + (l2 + l3)) + ((l4 + l5) + (l6 + l7))) + tail;
+    let abs_sum = abs_l.iter().sum::<f64>() + abs_tail;
+    let abs_max = greatest(0.0, &block_abs_max);
+    Oriented {
+        ys,
+        extremes: Extremes {
+            block_max,
+            block_abs_max,
+            abs_sum,
+            abs_max,
+        },
+        after_sum,
+    }
+}
+
 /// Running sums of a window, `P[j] = y[0] + ... + y[j-1]` added up in order, from which
 /// centred moving averages of any width are read: the average at `k` over `w` samples is
 /// `(P[b] - P[a]) / (b - a)` over `a = k - w/2 .. b = k + w - w/2`, cut to the window
@@ -112,38 +337,29 @@ pub struct RunningSums<'a> {
     p_bound: f64,
     /// The largest `|y[k]|`.
     y_max: f64,
+    extremes: Extremes,
 }
 
 /// Averages worked out together when only some are wanted (a search from the end).
 const BLOCK: usize = 4096;
 
 impl<'a> RunningSums<'a> {
+    /// The sums of `y`, its extremes found in a pass of its own (tests).
+    #[cfg(test)]
     pub fn of(y: &'a [f64]) -> Self {
-        // Both over eight lanes of independent operations, so no chain of additions.
-        let (mut sum_l, mut max_l) = ([0.0f64; 8], [0.0f64; 8]);
-        let chunks = y.chunks_exact(8);
-        let rest = chunks.remainder();
-        for c in chunks {
-            for j in 0..8 {
-                let a = c[j].abs();
-                sum_l[j] += a;
-                max_l[j] = if a > max_l[j] { a } else { max_l[j] };
-            }
-        }
-        let (sum, y_max) = rest.iter().fold(
-            (
-                sum_l.iter().sum::<f64>(),
-                max_l.iter().fold(0.0f64, |m, &x| m.max(x)),
-            ),
-            |(s, m), x| (s + x.abs(), m.max(x.abs())),
-        );
+        Self::with_extremes(y, Extremes::of(y))
+    }
+
+    /// The sums of `y`, whose extremes [`orient`] found as it made `y`.
+    pub fn with_extremes(y: &'a [f64], extremes: Extremes) -> Self {
         // A sum of n terms in any order is within (n - 1) u of the exact one, relative to
         // the sum of magnitudes (Higham, "Accuracy and Stability of Numerical Algorithms",
         // 2nd ed., ch. 4, from memory): so each made |P[j]| is at most the exact sum of
         // |y| times (1 + n u), and the lanes' sum at least that sum times (1 - n u). A
         // NaN or infinity in `y` makes the bound so, and then nothing is passed over.
         let n = y.len() as f64 + 8.0;
-        let p_bound = sum * (1.0 + 4.0 * n * f64::EPSILON);
+        let p_bound = extremes.abs_sum * (1.0 + 4.0 * n * f64::EPSILON);
+        let y_max = extremes.abs_max;
         let mut p = Vec::with_capacity(BLOCK + 1);
         p.push(0.0);
         RunningSums {
@@ -151,6 +367,7 @@ impl<'a> RunningSums<'a> {
             p: RefCell::new(p),
             p_bound,
             y_max,
+            extremes,
         }
     }
 
@@ -259,8 +476,8 @@ impl<'a> RunningSums<'a> {
         let margin =
             self.rounding() + f64::EPSILON * ((w + 16) as f64 * self.y_max + 16.0 * band.abs());
         let limit = band - margin;
-        let span = &self.y[k0.saturating_sub(h)..(k1 - 1 + w - h).min(n)];
-        if max_abs(span) <= limit {
+        let (a, b) = (k0.saturating_sub(h), (k1 - 1 + w - h).min(n));
+        if self.extremes.span_abs_max(self.y, a, b) <= limit {
             return true;
         }
         let inner = self.inner(w, k0, k1);
@@ -300,9 +517,9 @@ impl<'a> RunningSums<'a> {
         let mut k0 = 0;
         while k0 < n {
             let k1 = (k0 + BLOCK).min(n);
-            // The samples the averages at k0..k1 span.
-            let span = &y[k0.saturating_sub(h)..(k1 - 1 + w - h).min(n)];
-            if floor.is_some_and(|f| max_value(span) + margin < f) {
+            // The samples the averages at k0..k1 span: a..b.
+            let (a, b) = (k0.saturating_sub(h), (k1 - 1 + w - h).min(n));
+            if floor.is_some_and(|f| self.extremes.span_max(y, a, b) + margin < f) {
                 k0 = k1;
                 continue;
             }
@@ -328,7 +545,8 @@ impl<'a> RunningSums<'a> {
         let mut tree = TreeRoom::default();
         let mut k1 = self.len();
         while k1 > 0 {
-            let k0 = k1.saturating_sub(BLOCK);
+            // Blocks counted from the window's start, as the extremes are.
+            let k0 = (k1 - 1) / BLOCK * BLOCK;
             if self.surely_within(w, k0, k1, band, &mut tree) {
                 k1 = k0;
                 continue;
@@ -569,6 +787,96 @@ mod tests {
         (0..n)
             .map(|k| ((k * 37) % 11) as f64 - 4.5 + 1e-3 * (k % 97) as f64)
             .collect()
+    }
+
+    /// `orient` against each of the passes it replaces, written plainly from their
+    /// definitions: the values exactly; each block's largest value and magnitude and the
+    /// overall largest magnitude exactly (a largest value does not depend on the order);
+    /// the sum of magnitudes within n u of the sum in order (it only feeds a bound); the
+    /// integral after the edge sample exactly as the eight lanes (`k` modulo 8, `k >= 1`)
+    /// add it, and within n u of the sum in order. Both polarities, every length around
+    /// the lane count and the block.
+    #[test]
+    fn one_pass_gives_what_the_separate_passes_give() {
+        let long = record(12_300);
+        for n in [
+            0, 1, 2, 7, 8, 9, 15, 16, 17, 4095, 4096, 4097, 4104, 8192, 12_300,
+        ] {
+            let v = &long[..n];
+            for (s, v_off) in [(1.0, 0.75), (-1.0, -2.25)] {
+                let got = orient(v, v_off, s);
+                let ys: Vec<f64> = v.iter().map(|&x| s * (x - v_off)).collect();
+                assert_eq!(got.ys, ys, "n {n}");
+                let ex = &got.extremes;
+                assert_eq!(ex.block_max.len(), n.div_ceil(BLOCK), "n {n}");
+                for (b, block) in ys.chunks(BLOCK).enumerate() {
+                    assert_eq!(ex.block_max[b], max_value(block), "n {n}, block {b}");
+                    let m = block.iter().fold(0.0f64, |m, y| m.max(y.abs()));
+                    assert_eq!(ex.block_abs_max[b], m, "n {n}, block {b}");
+                }
+                assert_eq!(ex.max(), max_value(&ys), "n {n}");
+                assert_eq!(ex.abs_max, ys.iter().fold(0.0f64, |m, y| m.max(y.abs())));
+                let in_order: f64 = ys.iter().map(|y| y.abs()).sum();
+                let tol = n as f64 * f64::EPSILON * in_order;
+                assert!((ex.abs_sum - in_order).abs() <= tol, "n {n}");
+                // The integral's eight lanes, from the definition.
+                let t: Vec<f64> = v.iter().map(|&x| x - v_off).collect();
+                let whole = n / 8 * 8;
+                let mut lanes = [-0.0f64; 8];
+                for k in 1..whole {
+                    lanes[k % 8] += t[k];
+                }
+                let tail = t[whole.max(1).min(n)..].iter().fold(-0.0, |a, &x| a + x);
+                let [l0, l1, l2, l3, l4, l5, l6, l7] = lanes;
+                let want = (((l0 + l1) + (l2 + l3)) + ((l4 + l5) + (l6 + l7))) + tail;
+                assert_eq!(got.after_sum.to_bits(), want.to_bits(), "n {n}");
+                let in_order: f64 = t.iter().skip(1).sum();
+                let scale: f64 = t.iter().map(|x| x.abs()).sum();
+                assert!((got.after_sum - in_order).abs() <= n as f64 * f64::EPSILON * scale);
+            }
+        }
+    }
+
+    /// The largest value and magnitude over any stretch, read from the blocks' extremes
+    /// where the stretch covers whole blocks (the short last block included), equal the
+    /// ones found by walking the stretch.
+    #[test]
+    fn a_stretch_s_extremes_are_read_from_its_blocks() {
+        for n in [5, 4096, 4100, 10_000, 12_288] {
+            let y: Vec<f64> = record(n).iter().map(|x| -x).collect();
+            let ex = Extremes::of(&y);
+            let cuts = [0, 1, 4095, 4096, 4097, 8191, 8192, 9000, n - 1, n];
+            for &a in cuts.iter().filter(|&&a| a <= n) {
+                for &b in cuts.iter().filter(|&&b| a <= b && b <= n) {
+                    assert_eq!(
+                        ex.span_max(&y, a, b),
+                        max_value(&y[a..b]),
+                        "{a}..{b} of {n}"
+                    );
+                    assert_eq!(
+                        ex.span_abs_max(&y, a, b),
+                        max_abs(&y[a..b]),
+                        "{a}..{b} of {n}"
+                    );
+                }
+            }
+        }
+    }
+
+    /// The peak after the edge sample: the first of equal largest values after it, also
+    /// when the edge sample is larger still (then the search looks again without it).
+    #[test]
+    fn the_largest_after_the_edge_sample_skips_only_the_edge_sample() {
+        let after_first = |y: &[f64]| Extremes::of(y).first_max_index_after_first(y);
+        assert_eq!(after_first(&[1.0, 5.0, 5.0, 2.0]), Some(1));
+        assert_eq!(after_first(&[9.0, 5.0, 7.0, 7.0]), Some(2));
+        assert_eq!(after_first(&[7.0, 7.0, 1.0]), Some(1));
+        assert_eq!(after_first(&[7.0]), None);
+        assert_eq!(after_first(&[]), None);
+        let mut long = record(9000);
+        long[0] = 100.0;
+        long[8500] = 50.0;
+        assert_eq!(after_first(&long), Some(8500));
     }
 
     #[test]
