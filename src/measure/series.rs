@@ -282,15 +282,13 @@ fn orient_body(v: &[f64], v_off: f64, s: f64) -> Oriented {
     let mut tail = -0.0f64;
     let mut abs_tail = 0.0f64;
     for (b, vb) in v.chunks(BLOCK).enumerate() {
-        // The block is copied and turned in place while it sits in the cache, and its
-        // extremes and sums are taken from the turned copy. (Written eight values at a
-        // time into the growing vector, the pass had a possible reallocation inside its
-        // loop: a call, across which no vector register survives.)
+        // The block is turned into `ys` (a loop the compiler vectorises), and its extremes
+        // and sums taken from the turned values while they sit in the cache. (Written
+        // eight values at a time into the growing vector, the pass had a possible
+        // reallocation inside its loop: a call, across which no vector register survives.
+        // A copy, then the turning in place, was 4 % of a long WAV's CPU time in `memcpy`.)
         let from = ys.len();
-        ys.extend_from_slice(vb);
-        for y in &mut ys[from..] {
-            *y = s * (*y - v_off);
-        }
+        ys.extend(vb.iter().map(|&x| s * (x - v_off)));
         let yb = &ys[from..];
         let mut ext = BlockLanes::default();
         let rest = yb.chunks_exact(8).remainder();
