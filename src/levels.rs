@@ -74,6 +74,12 @@ pub fn median(v: &[f64]) -> Option<f64> {
 pub(crate) fn median_of(values: impl Iterator<Item = f64>, room: usize) -> Option<(f64, usize)> {
     let mut keys: Vec<i64> = Vec::with_capacity(room);
     keys.extend(values.map(total_order_key));
+    median_of_keys(keys)
+}
+
+/// The median of the values whose [`total_order_key`]s `keys` holds, and their count, as
+/// [`median_of`] gives it (for callers that make the keys in a loop of their own).
+pub(crate) fn median_of_keys(mut keys: Vec<i64>) -> Option<(f64, usize)> {
     let n = keys.len();
     if n == 0 {
         return None;
