@@ -968,9 +968,17 @@ mod tests {
         let mut g = Noise::new(3);
         let mut v: Vec<f64> = (0..999).map(|_| 0.05 * g.gauss()).collect();
         assert_eq!(noise_sigma(&v).to_bits(), definition(&v).to_bits());
-        for (at, x) in [(0, f64::NAN), (500, f64::INFINITY), (998, f64::NEG_INFINITY)] {
+        for (at, x) in [
+            (0, f64::NAN),
+            (500, f64::INFINITY),
+            (998, f64::NEG_INFINITY),
+        ] {
             v[at] = x;
-            assert_eq!(noise_sigma(&v).to_bits(), definition(&v).to_bits(), "{x} at {at}");
+            assert_eq!(
+                noise_sigma(&v).to_bits(),
+                definition(&v).to_bits(),
+                "{x} at {at}"
+            );
         }
         assert_eq!(noise_sigma(&[f64::NAN; 10]), 0.0);
     }
