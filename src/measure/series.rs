@@ -769,11 +769,6 @@ mod tests {
         }
     }
 
-    /// A long record that rings, then settles into noise larger than the band while its
-    /// averages stay inside: the search from the end gives the definition's answer (the
-    /// last average beyond the band, by the same running sums made whole), and makes
-    /// the running sums only to a block or two past it, not to the end. With the band
-    /// below the noise's averages, nothing can be passed over and the answer is the end.
     /// The cells' bound lies at or above the magnitude of every window's sum, the sums
     /// added up plainly here (the definition), for every width up to sixteen, at spans
     /// that end inside a cell and on its edge, with a large sample either side of a
@@ -814,6 +809,11 @@ mod tests {
         assert_eq!(magnitude_cells_bound(&[0.0; 40], 17), f64::INFINITY);
     }
 
+    /// A long record that rings, then settles into noise larger than the band while its
+    /// averages stay inside: the search from the end gives the definition's answer (the
+    /// last average beyond the band, by the same running sums made whole), and makes
+    /// the running sums only to a block or two past it, not to the end. With the band
+    /// below the noise's averages, nothing can be passed over and the answer is the end.
     #[test]
     fn the_settled_rest_is_passed_over_without_the_running_sums() {
         let n = 200_000;
