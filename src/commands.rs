@@ -120,6 +120,7 @@ pub fn run(cli: Cli) -> Result<ExitCode> {
             analysis,
         } => {
             let variants = crate::cli::parse_variants(&variants)?;
+            crate::cli::check_compare_labels(&variants, baseline.as_deref(), &analysis)?;
             let mut settings = analysis.to_settings(read.to_options()?)?;
             settings.stop = stop_on_ctrl_c();
             let quiet = analysis.quiet || json;

@@ -236,3 +236,33 @@ fn skew_moves_the_channel_it_names_however_it_is_picked() {
             "--skew i_cool: no channel 'i_cool'",
         ));
 }
+
+/// A current channel named for the coil, measured as the switch's current (the default
+/// `--current-through switch`), is warned about: with the zener across the coil the coil
+/// current flows on in the clamp, and the "switch" energy (1.23 mJ on this sample, against
+/// the coil's 0.98 mJ stored) is mostly the clamp's. Saying where the probe is silences it.
+#[test]
+fn a_coil_current_measured_as_the_switch_current_is_warned_about() {
+    let file = Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("sample-captures/coil-current/zener-shot-01.csv");
+    let warnings = |extra: &[&str]| -> Vec<String> {
+        let out = kickscan()
+            .arg("measure")
+            .arg(&file)
+            .arg("--json")
+            .args(extra)
+            .output()
+            .unwrap();
+        assert!(out.status.success());
+        let doc: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+        doc["captures"][0]["warnings"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|w| w.as_str().unwrap().to_string())
+            .collect()
+    };
+    let about_probe = |w: &[String]| w.iter().any(|w| w.contains("named for the coil"));
+    assert!(about_probe(&warnings(&[])));
+    assert!(!about_probe(&warnings(&["--current-through", "coil"])));
+}

@@ -116,3 +116,84 @@ fn missing_input_json_lists_it_under_errors() {
     assert_eq!(doc["errors"][0]["file"], "no/such/file.csv");
     assert_eq!(doc["summary"]["n_events"], 0);
 }
+
+/// A value that cannot be meant (a negative rating or limit, a zero window or rate) is a
+/// usage error naming the option, written with or without `=`: a leading minus must reach
+/// the check rather than be taken for an option of its own.
+#[test]
+fn impossible_values_are_usage_errors_naming_the_option() {
+    for args in [
+        &["--rating", "-5V"][..],
+        &["--rating=-5V"],
+        &["--rating", "0V"],
+        &["--fail-above", "-1V"],
+        &["--fail-energy", "0J"],
+        &["--max-window", "0"],
+        &["--min-on-time", "-1ms"],
+        &["--inductance", "-200mH"],
+        &["--sample-rate", "0"],
+        &["--dt", "-1us"],
+    ] {
+        let option = args[0].split('=').next().unwrap();
+        kickscan()
+            .args(["measure", "x.csv"])
+            .args(args)
+            .assert()
+            .code(2)
+            .stderr(predicate::str::contains(option))
+            .stderr(predicate::str::contains("expected a positive value"));
+    }
+}
+
+/// `--baseline` naming no variant would compare against the first one silently; `--label`
+/// has no place where every variant is named by its own label.
+#[test]
+fn compare_refuses_an_unknown_baseline_and_a_label() {
+    kickscan()
+        .args(["compare", "a=x.csv", "b=y.csv", "--baseline", "zener"])
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains("--baseline zener"))
+        .stderr(predicate::str::contains("a, b"));
+    kickscan()
+        .args(["compare", "a=x.csv", "b=y.csv", "--label", "rev2"])
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains("--label"));
+}
+
+/// A folder with no capture in it (only a sidecar here) is an input that failed: a rig whose
+/// captures went missing must not pass its `--fail-above` check with exit 0.
+#[test]
+fn an_empty_folder_is_an_input_failure() {
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(dir.path().join("notes.md"), "nothing captured today\n").unwrap();
+    let folder = dir.path().display().to_string();
+    for cmd in ["measure", "inspect"] {
+        let mut c = kickscan();
+        c.args([cmd, &folder]);
+        if cmd == "measure" {
+            c.args(["--fail-above", "48V", "--quiet"]);
+        }
+        c.assert()
+            .code(1)
+            .stderr(predicate::str::contains("no capture files in this folder"));
+    }
+}
+
+/// `parasitics` on a file it cannot read fails as an input (exit 1), as `measure` does;
+/// only its options are usage errors (exit 2).
+#[test]
+fn parasitics_input_failure_is_exit_1() {
+    kickscan()
+        .args(["parasitics", "--bare", "no/such/bare.csv"])
+        .args(["--loaded", "no/such/loaded.csv", "--added", "1nF"])
+        .assert()
+        .code(1)
+        .stderr(predicate::str::contains("no/such/bare.csv"));
+    kickscan()
+        .args(["parasitics", "--bare", "a.csv", "--loaded", "b.csv"])
+        .args(["--added", "1nF", "--inductance", "-10mH"])
+        .assert()
+        .code(2);
+}

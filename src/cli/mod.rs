@@ -161,14 +161,42 @@ pub fn parse_variants(items: &[String]) -> Result<Vec<kickscan::compare::Variant
     Ok(out)
 }
 
+/// `--baseline` must name one of the variants (falling back to the first would compare
+/// against a build the user did not ask for), and `--label` has no place in `compare`,
+/// where each variant's LABEL names it.
+pub fn check_compare_labels(
+    variants: &[kickscan::compare::Variant],
+    baseline: Option<&str>,
+    analysis: &AnalysisArgs,
+) -> Result<()> {
+    if let Some(b) = baseline {
+        if !variants.iter().any(|v| v.label == b) {
+            let labels: Vec<&str> = variants.iter().map(|v| v.label.as_str()).collect();
+            bail!(
+                "--baseline {b}: no variant has that label (the labels given are {})",
+                labels.join(", ")
+            );
+        }
+    }
+    if let Some(l) = &analysis.label {
+        bail!("--label {l}: compare names each variant by the LABEL of its LABEL=INPUT instead");
+    }
+    Ok(())
+}
+
 /// How to read the files.
 #[derive(Args, Debug, Clone, Default)]
 pub struct ReadArgs {
     /// Sample interval when the file has no time base (e.g. 2ns, 1e-8).
-    #[arg(long, value_name = "S")]
+    #[arg(long, value_name = "S", allow_hyphen_values = true)]
     pub dt: Option<String>,
     /// Sample rate when the file has no time base (e.g. 500M, 1GHz).
-    #[arg(long, value_name = "HZ", conflicts_with = "dt")]
+    #[arg(
+        long,
+        value_name = "HZ",
+        allow_hyphen_values = true,
+        conflicts_with = "dt"
+    )]
     pub sample_rate: Option<String>,
     /// Read files as raw little-endian sample dumps of this type.
     #[arg(long, value_enum)]
@@ -243,37 +271,37 @@ pub struct AnalysisArgs {
     #[arg(long, value_enum)]
     pub polarity: Option<PolarityArg>,
     /// Supply voltage (e.g. 24V).
-    #[arg(long, value_name = "V")]
+    #[arg(long, value_name = "V", allow_hyphen_values = true)]
     pub supply: Option<String>,
     /// Switch voltage rating (e.g. 60V): margins, derating and warnings.
-    #[arg(long, value_name = "V")]
+    #[arg(long, value_name = "V", allow_hyphen_values = true)]
     pub rating: Option<String>,
     /// Coil inductance (e.g. 200mH): node capacitance and coil energy.
-    #[arg(long, value_name = "H")]
+    #[arg(long, value_name = "H", allow_hyphen_values = true)]
     pub inductance: Option<String>,
     /// Coil current at turn-off when there is no current channel (e.g. 75mA).
-    #[arg(long, value_name = "A")]
+    #[arg(long, value_name = "A", allow_hyphen_values = true)]
     pub coil_current: Option<String>,
     /// Switching rate, for snubber dissipation (e.g. 20kHz).
-    #[arg(long, value_name = "HZ")]
+    #[arg(long, value_name = "HZ", allow_hyphen_values = true)]
     pub switching_rate: Option<String>,
     /// Longest event window kept (e.g. 5ms); longer events are marked truncated.
-    #[arg(long, value_name = "S")]
+    #[arg(long, value_name = "S", allow_hyphen_values = true)]
     pub max_window: Option<String>,
     /// Settle band in percent of the step (e.g. 2 or 2%) [default: 5].
     #[arg(long, value_name = "PCT")]
     pub settle_band: Option<String>,
     /// On-state dwell before an edge counts (derived from the data by default).
-    #[arg(long, value_name = "S")]
+    #[arg(long, value_name = "S", allow_hyphen_values = true)]
     pub min_on_time: Option<String>,
-    /// Label for this set of captures in reports.
+    /// Label for this set of captures in reports (measure; compare takes LABEL=INPUT).
     #[arg(long)]
     pub label: Option<String>,
     /// Exit with code 3 if any event's switch stress exceeds this (e.g. 48V).
-    #[arg(long, value_name = "V")]
+    #[arg(long, value_name = "V", allow_hyphen_values = true)]
     pub fail_above: Option<String>,
     /// Exit with code 3 if any event's switch energy exceeds this (e.g. 2mJ).
-    #[arg(long, value_name = "J")]
+    #[arg(long, value_name = "J", allow_hyphen_values = true)]
     pub fail_energy: Option<String>,
     /// Events per block for the worst-case projection (default: one capture per block).
     #[arg(long, value_name = "N")]
@@ -281,7 +309,9 @@ pub struct AnalysisArgs {
     /// Number of switchings to project the worst case to; repeatable (default 1e6).
     #[arg(long, value_name = "N")]
     pub lifetime: Vec<String>,
-    /// Skip the model fit (faster).
+    /// Skip the model fit (faster). The fit also gives the ring frequency and damping
+    /// ratio when the ring's zero crossings alone cannot (a ring after a clamp lets go):
+    /// without it those stay empty there.
     #[arg(long)]
     pub no_fit: bool,
     /// Print no progress bar.
@@ -296,6 +326,36 @@ fn opt_si(name: &str, v: &Option<String>, unit: &str) -> Result<Option<f64>> {
     v.as_deref()
         .map(|s| parse_si(s, Some(unit)).with_context(|| format!("--{name}")))
         .transpose()
+}
+
+/// [`opt_si`] for a quantity that only makes sense above zero (a rating, a limit, an
+/// inductance, a time): a negative or zero value is a slip of the keyboard, and taking it
+/// would fail every event against `--rating 0V` or pass every run against `--fail-above -1V`.
+fn opt_positive(name: &str, v: &Option<String>, unit: &str) -> Result<Option<f64>> {
+    let x = opt_si(name, v, unit)?;
+    if let (Some(x), Some(text)) = (x, v) {
+        if !(x > 0.0 && x.is_finite()) {
+            bail!(
+                "--{name} {text}: expected a positive value (e.g. --{name} {})",
+                example(name)
+            );
+        }
+    }
+    Ok(x)
+}
+
+/// An example value for an option's error message.
+fn example(name: &str) -> &'static str {
+    match name {
+        "rating" | "fail-above" => "60V",
+        "inductance" => "200mH",
+        "coil-current" => "75mA",
+        "switching-rate" | "sample-rate" => "20kHz",
+        "max-window" | "min-on-time" => "5ms",
+        "fail-energy" => "2mJ",
+        "dt" => "2ns",
+        _ => "1",
+    }
 }
 
 fn pairs(name: &str, items: &[String], unit: Option<&str>) -> Result<Vec<(String, f64)>> {
@@ -313,14 +373,17 @@ fn pairs(name: &str, items: &[String], unit: Option<&str>) -> Result<Vec<(String
 
 impl ReadArgs {
     pub fn to_options(&self) -> Result<ReadOptions> {
+        // Each checked before the rate is inverted: 1 / 0 would pass as an interval.
         let dt_s = match (&self.dt, &self.sample_rate) {
-            (Some(_), _) => opt_si("dt", &self.dt, "s")?,
-            (None, Some(_)) => opt_si("sample-rate", &self.sample_rate, "Hz")?.map(|f| 1.0 / f),
+            (Some(_), _) => opt_positive("dt", &self.dt, "s")?,
+            (None, Some(_)) => {
+                opt_positive("sample-rate", &self.sample_rate, "Hz")?.map(|f| 1.0 / f)
+            }
             _ => None,
         };
         if let Some(dt) = dt_s {
-            if dt <= 0.0 {
-                bail!("--dt/--sample-rate: the sample interval must be positive");
+            if !(dt > 0.0 && dt.is_finite()) {
+                bail!("--dt/--sample-rate: the sample interval must be positive and finite");
             }
         }
         Ok(ReadOptions {
@@ -398,16 +461,16 @@ impl AnalysisArgs {
                 PolarityArg::Down => PolarityChoice::Down,
             },
             supply_v: opt_si("supply", &self.supply, "V")?,
-            rating_v: opt_si("rating", &self.rating, "V")?,
-            inductance_h: opt_si("inductance", &self.inductance, "H")?,
-            coil_current_a: opt_si("coil-current", &self.coil_current, "A")?,
+            rating_v: opt_positive("rating", &self.rating, "V")?,
+            inductance_h: opt_positive("inductance", &self.inductance, "H")?,
+            coil_current_a: opt_positive("coil-current", &self.coil_current, "A")?,
             current_through: match self.current_through {
                 ThroughArg::Switch => CurrentThrough::Switch,
                 ThroughArg::Coil => CurrentThrough::Coil,
             },
-            max_window_s: opt_si("max-window", &self.max_window, "s")?,
+            max_window_s: opt_positive("max-window", &self.max_window, "s")?,
             settle_band_pct,
-            min_on_time_s: opt_si("min-on-time", &self.min_on_time, "s")?,
+            min_on_time_s: opt_positive("min-on-time", &self.min_on_time, "s")?,
         };
         Ok(Settings {
             read,
@@ -415,9 +478,9 @@ impl AnalysisArgs {
             signal: self.signal.clone(),
             current: self.current.clone(),
             label: self.label.clone(),
-            switching_rate_hz: opt_si("switching-rate", &self.switching_rate, "Hz")?,
-            fail_above_v: opt_si("fail-above", &self.fail_above, "V")?,
-            fail_energy_j: opt_si("fail-energy", &self.fail_energy, "J")?,
+            switching_rate_hz: opt_positive("switching-rate", &self.switching_rate, "Hz")?,
+            fail_above_v: opt_positive("fail-above", &self.fail_above, "V")?,
+            fail_energy_j: opt_positive("fail-energy", &self.fail_energy, "J")?,
             no_fit: self.no_fit,
             block: match self.block {
                 Some(0) => bail!("--block: expected at least 1 event per block"),

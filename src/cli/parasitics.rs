@@ -15,7 +15,7 @@ use super::ReadArgs;
 /// Extract the node capacitance and loop inductance behind the ringing, and size a snubber.
 #[derive(Args, Debug, Clone)]
 #[command(
-    after_help = "Examples:\n  kickscan parasitics --bare run1.csv --loaded run1_220p.csv --added 220p\n  kickscan parasitics --bare a.wav --loaded b.wav --added 1n --inductance 10mH --supply 24V --switching-rate 100Hz --json"
+    after_help = "Examples:\n  kickscan parasitics --bare run1.csv --loaded run1_220p.csv --added 220p\n  kickscan parasitics --bare a.wav --loaded b.wav --added 1n --inductance 10mH \\\n      --supply 24V --switching-rate 100Hz --json"
 )]
 pub struct ParasiticsArgs {
     /// Capture of one turn-off event without the added capacitor.
@@ -28,19 +28,19 @@ pub struct ParasiticsArgs {
     #[arg(long, value_name = "CAP")]
     pub added: String,
     /// Coil inductance (e.g. 10mH): capacitance from the ring, and clamp predictions.
-    #[arg(long, value_name = "H")]
+    #[arg(long, value_name = "H", allow_hyphen_values = true)]
     pub inductance: Option<String>,
     /// Supply voltage (e.g. 24V): snubber dissipation and clamp predictions.
-    #[arg(long, value_name = "V")]
+    #[arg(long, value_name = "V", allow_hyphen_values = true)]
     pub supply: Option<String>,
     /// Switching rate (e.g. 20kHz): snubber dissipation.
-    #[arg(long, value_name = "HZ")]
+    #[arg(long, value_name = "HZ", allow_hyphen_values = true)]
     pub switching_rate: Option<String>,
     /// Coil current at turn-off (e.g. 75mA): energy absorber and clamp predictions.
-    #[arg(long, value_name = "A")]
+    #[arg(long, value_name = "A", allow_hyphen_values = true)]
     pub coil_current: Option<String>,
     /// Highest voltage the switch may see (e.g. 60V): sizes the RC absorber and clamps.
-    #[arg(long, value_name = "V")]
+    #[arg(long, value_name = "V", allow_hyphen_values = true)]
     pub peak_limit: Option<String>,
     /// Switch-node voltage channel: header name or number (data columns from 1).
     #[arg(long, value_name = "NAME|N")]
@@ -76,6 +76,7 @@ fn inputs_from(args: &ParasiticsArgs) -> Result<ParasiticsInputs> {
     for (name, v) in [
         ("inductance", inputs.inductance_h),
         ("switching-rate", inputs.switching_rate_hz),
+        ("coil-current", inputs.coil_current_a),
         ("peak-limit", inputs.peak_limit_v),
     ] {
         if v.is_some_and(|v| v <= 0.0) {
@@ -89,14 +90,21 @@ fn inputs_from(args: &ParasiticsArgs) -> Result<ParasiticsInputs> {
 pub fn run(args: ParasiticsArgs) -> Result<ExitCode> {
     let inputs = inputs_from(&args)?;
     let read = args.read.to_options()?;
-    let doc = kickscan::pipeline::parasitics_of_files(
+    // A file that cannot be read or measured is an input failure (exit 1), as in
+    // `measure`; only the options above are usage errors.
+    let doc = match kickscan::pipeline::parasitics_of_files(
         &args.bare,
         &args.loaded,
         &read,
         args.signal.as_deref(),
         &inputs,
-    )
-    .map_err(|e| anyhow::anyhow!(e))?;
+    ) {
+        Ok(doc) => doc,
+        Err(e) => {
+            eprintln!("error: {e}");
+            return Ok(ExitCode::from(crate::commands::EXIT_INPUT_FAILED));
+        }
+    };
     let mut out = std::io::stdout().lock();
     use std::io::Write;
     if args.json {
