@@ -249,6 +249,48 @@ fn a_wav_claiming_four_gigabytes_allocates_nothing_like_it() {
     fails(&p, &ReadOptions::default(), &["cut short"]);
 }
 
+/// A WAV header the reader cannot take names the chunk and its byte, found by walking the
+/// chunks (RIFF: an id, a 32-bit length, the bytes, a pad byte after an odd length), instead
+/// of a bare "failed to read" at byte 0: cut inside the `fmt ` chunk, cut before `data`, an
+/// odd-length chunk before `data`, and an empty file.
+#[test]
+fn a_wav_header_that_goes_wrong_names_its_chunk() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = dir.path().join("h.wav");
+    wav_16(&p, 4);
+    let good = std::fs::read(&p).unwrap();
+    // Canonical layout: RIFF header 0..12, 'fmt ' chunk at 12 (16 bytes), 'data' at 36.
+    std::fs::write(&p, &good[..30]).unwrap();
+    fails(
+        &p,
+        &ReadOptions::default(),
+        &["byte 12", "'fmt ' claims 16 bytes, but only 10 follow"],
+    );
+    std::fs::write(&p, &good[..36]).unwrap();
+    fails(
+        &p,
+        &ReadOptions::default(),
+        &["byte 36", "without a 'data' chunk", "'fmt '"],
+    );
+    let mut odd = good[..36].to_vec();
+    odd.extend_from_slice(b"LIST\x05\x00\x00\x00abcde\x00");
+    odd.extend_from_slice(&good[36..]);
+    let riff = (odd.len() - 8) as u32;
+    odd[4..8].copy_from_slice(&riff.to_le_bytes());
+    std::fs::write(&p, &odd).unwrap();
+    fails(
+        &p,
+        &ReadOptions::default(),
+        &["byte 36", "chunk 'LIST' has an odd length (5 bytes)"],
+    );
+    std::fs::write(&p, b"").unwrap();
+    fails(
+        &p,
+        &ReadOptions::default(),
+        &["byte 0", "the file is empty"],
+    );
+}
+
 #[test]
 fn a_wav_extension_on_something_else() {
     let dir = tempfile::tempdir().unwrap();

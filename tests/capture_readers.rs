@@ -382,7 +382,20 @@ fn wav_integer_widths_without_sidecar_are_fractions_of_full_scale() {
         assert_eq!(adc.min_v, -1.0);
         assert_close(adc.max_v, 1.0 - step);
         assert_eq!(adc.step_v, Some(step));
+        // Without --scale the volts are fractions of full scale: `measure` must say so.
+        assert!(
+            cap.warnings.iter().any(|w| w.contains("no sidecar")),
+            "{bits} bits"
+        );
+        assert!(!has_note(&cap, "no sidecar"));
+        // With --scale the user has given the volts; the guess is only noted.
+        let scaled = ReadOptions {
+            scale: vec![("CH1".to_string(), 100.0)],
+            ..ReadOptions::default()
+        };
+        let cap = read_capture(&p, &scaled).unwrap();
         assert!(has_note(&cap, "no sidecar"));
+        assert!(cap.warnings.iter().all(|w| !w.contains("no sidecar")));
     }
 }
 

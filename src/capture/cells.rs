@@ -156,6 +156,19 @@ pub(crate) enum CellError {
     Empty,
     NotANumber,
     NotFinite,
+    /// One of the values instruments write in place of a sample that was out of range or
+    /// invalid ([`is_overrange_marker`]).
+    Overrange,
+}
+
+/// SCPI's stand-ins for infinity (`9.9E37`, negated for minus infinity) and not-a-number
+/// (`9.91E37`), which many instruments write into an exported record where the signal left
+/// the screen or no sample was taken (SCPI-1999 Volume 1, the numeric-value conventions;
+/// quoted from memory). Read as numbers they are finite, and one of them among volts wrecks
+/// the levels or becomes the peak, so they are refused like NaN and infinity.
+pub(crate) fn is_overrange_marker(x: f64) -> bool {
+    let a = x.abs();
+    a == 9.9e37 || a == 9.91e37
 }
 
 /// Longest cell read as a number; longer cells are text (no number needs more digits).
@@ -219,10 +232,14 @@ fn parse_number_general(cell: &[u8], decimal_comma: bool) -> Result<f64, CellErr
     } else {
         fast_float2::parse(cell).map_err(|_| CellError::NotANumber)?
     };
-    if x.is_finite() {
-        Ok(x)
-    } else {
+    // (The fast path never gives a marker: its values stay below 2^53 * 10^22, about 9e37
+    // but short of 9.9e37, so only this reader needs the look.)
+    if !x.is_finite() {
         Err(CellError::NotFinite)
+    } else if is_overrange_marker(x) {
+        Err(CellError::Overrange)
+    } else {
+        Ok(x)
     }
 }
 
@@ -315,6 +332,17 @@ mod tests {
         assert_eq!(parse_number(b"abc", false), Err(CellError::NotANumber));
         assert_eq!(parse_number(b"NaN", false), Err(CellError::NotFinite));
         assert_eq!(parse_number(b"-inf", false), Err(CellError::NotFinite));
+        // The SCPI stand-ins, however printed; a neighbour of theirs is a number.
+        for marker in [
+            &b"9.9E+37"[..],
+            b"-9.9e37",
+            b"9.91E37",
+            b"99E36",
+            b"9.90000000e+37",
+        ] {
+            assert_eq!(parse_number(marker, false), Err(CellError::Overrange));
+        }
+        assert_eq!(parse_number(b"9.8E37", false), Ok(9.8e37));
         assert_eq!(parse_number(b"", false), Err(CellError::Empty));
     }
 

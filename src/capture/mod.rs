@@ -225,6 +225,13 @@ pub(crate) fn detect_format(path: &Path, opts: &ReadOptions) -> Result<Format, C
     if n == 12 && &head[..4] == b"RIFF" && &head[8..12] == b"WAVE" {
         return Ok(Format::Wav);
     }
+    if n == 0 && is_wav_ext {
+        return Err(CaptureError::Binary {
+            file: path.to_path_buf(),
+            offset: 0,
+            message: "the file is empty; expected a RIFF/WAVE header".to_string(),
+        });
+    }
     if is_wav_ext || (n >= 4 && (&head[..4] == b"RF64" || &head[..4] == b"RIFF")) {
         return Err(CaptureError::Binary {
             file: path.to_path_buf(),

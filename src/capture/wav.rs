@@ -89,10 +89,18 @@ pub(crate) fn describe_channels(
             }
         }
         None => {
-            cap.notes.push(format!(
+            let says = format!(
                 "no sidecar {}: samples are fractions of full scale (-1 to 1), named CH1.. and taken as V; give --scale CH1=VOLTS_PER_FULL_SCALE or write the sidecar",
                 super::sidecar::sidecar_path(file).display()
-            ));
+            );
+            // Without `--scale` every voltage reported is a fraction of full scale posing as
+            // volts (a 60 V spike reads as 0.5 V): that belongs among the warnings `measure`
+            // prints, not only in what `inspect` shows.
+            if opts.scale.is_empty() {
+                cap.warnings.push(says);
+            } else {
+                cap.notes.push(says);
+            }
             for k in 0..n_channels {
                 channels.push(Channel {
                     name: format!("CH{}", k + 1),
@@ -162,6 +170,76 @@ pub(crate) struct WavStream {
     frames_read: u64,
 }
 
+/// Where and why the chunks of a WAV header go wrong, found by walking them (each an id,
+/// a little-endian length, the bytes, and a pad byte after an odd length: the RIFF layout):
+/// for the header reader's failures that name no place ("failed to read enough bytes").
+/// `None` when the walk reaches the `data` chunk after a `fmt ` chunk with no fault seen.
+fn header_problem(path: &Path) -> Option<(u64, String)> {
+    let mut f = File::open(path).ok()?;
+    let len = f.metadata().ok()?.len();
+    let mut at = 12u64;
+    let mut seen: Vec<String> = Vec::new();
+    let listed = |seen: &[String]| {
+        if seen.is_empty() {
+            "no chunk".to_string()
+        } else {
+            format!("the chunks {}", seen.join(", "))
+        }
+    };
+    loop {
+        let mut head = [0u8; 8];
+        f.seek(SeekFrom::Start(at)).ok()?;
+        if at + 8 > len || f.read_exact(&mut head).is_err() {
+            return Some((
+                at,
+                format!(
+                    "the WAV header ends after {} without a 'data' chunk (the file was cut short?)",
+                    listed(&seen)
+                ),
+            ));
+        }
+        let id = String::from_utf8_lossy(&head[..4]).into_owned();
+        let size = u64::from(u32::from_le_bytes([head[4], head[5], head[6], head[7]]));
+        if id == "data" {
+            if !seen.iter().any(|c| c == "'fmt '") {
+                return Some((
+                    at,
+                    "the 'data' chunk comes before any 'fmt ' chunk; expected the format first"
+                        .to_string(),
+                ));
+            }
+            // The walk found nothing wrong up to the samples: a pad byte after an odd chunk
+            // is what the header reader does not take.
+            return None;
+        }
+        if id == "fmt " && size < 16 {
+            return Some((
+                at,
+                format!("the 'fmt ' chunk is {size} bytes; expected at least 16"),
+            ));
+        }
+        if at + 8 + size > len {
+            return Some((
+                at,
+                format!(
+                    "chunk '{id}' claims {size} bytes, but only {} follow (the file was cut short?)",
+                    len - at - 8
+                ),
+            ));
+        }
+        if size % 2 == 1 {
+            return Some((
+                at,
+                format!(
+                    "chunk '{id}' has an odd length ({size} bytes) and a pad byte after it, which this reader does not take; expected even-length chunks before 'data' (remove the chunk or export again)"
+                ),
+            ));
+        }
+        seen.push(format!("'{id}'"));
+        at += 8 + size;
+    }
+}
+
 fn wav_error(file: &Path, offset: u64, e: hound::Error) -> CaptureError {
     CaptureError::Binary {
         file: file.to_path_buf(),
@@ -189,8 +267,16 @@ pub(crate) fn open(path: &Path, opts: &ReadOptions) -> Result<(Capture, WavStrea
         file: path.to_path_buf(),
         source,
     })?;
-    let reader = hound::WavReader::new(BufReader::with_capacity(1 << 18, f))
-        .map_err(|e| wav_error(path, 0, e))?;
+    let reader = hound::WavReader::new(BufReader::with_capacity(1 << 18, f)).map_err(|e| {
+        match header_problem(path) {
+            Some((offset, message)) => CaptureError::Binary {
+                file: path.to_path_buf(),
+                offset,
+                message,
+            },
+            None => wav_error(path, 0, e),
+        }
+    })?;
     let spec = reader.spec();
     let float = spec.sample_format == hound::SampleFormat::Float;
     if float && spec.bits_per_sample != 32 {

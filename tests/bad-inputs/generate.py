@@ -50,6 +50,10 @@ write("ragged-row.csv", "".join(lines))
 lines = GOOD.splitlines(True)
 lines[30] = "1.0000e-07,0.2000\n"
 write("time-backwards.csv", "".join(lines))
+# SCPI's stand-in for an out-of-range sample, which some instruments export in its place.
+lines = GOOD.splitlines(True)
+lines[16] = "1.5000e-07,9.9E+37\n"
+write("overrange-marker.csv", "".join(lines))
 # A gap: rows 10 ns apart, then a jump of 1 us (a scope's segmented memory pasted together).
 write("time-gap.csv", "t,v_sw\n" + rows(20, lambda k: V_ON) + rows(20, lambda k: V_ON, t0=1.2e-6))
 

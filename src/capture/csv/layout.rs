@@ -2,7 +2,7 @@
 
 use super::preamble::split_meta;
 use super::text::SniffLine;
-use super::{row_cell_iter, row_cells};
+use super::{header_cells, row_cell_iter, row_cells};
 use crate::capture::cells::{parse_number, trim_cell, Delim};
 use crate::capture::columns::{self, MetaKey};
 use crate::capture::ReadOptions;
@@ -201,11 +201,11 @@ pub(super) fn locate_rows(
         columns::classify_key(&key) != MetaKey::Other
     };
     let header_fits = |text: &str| {
-        let cells = row_cells(text, delim);
+        let cells = header_cells(text, delim);
         cells.len() == n_fields
             && cells
                 .iter()
-                .all(|c| parse_number(trim_cell(c), comma).is_err())
+                .all(|c| parse_number(c.as_bytes(), comma).is_err())
             && !is_meta_key(text)
     };
     let above = |pos: usize| -> Option<usize> { pos.checked_sub(1).map(|p| nonblank[p]) };
@@ -294,5 +294,30 @@ mod tests {
         let l = lines("t,v\n0,open\n1,2\n2,3\n");
         let found = locate_rows(&l, Delim::Byte(b','), false, 2).unwrap();
         assert_eq!((found.data_idx, found.header_idx), (1, Some(0)));
+    }
+
+    /// Columns split by spaces under a header whose units stand apart from the names: the
+    /// header is found (four words over two columns), and a row of units alone under a
+    /// header of names stays a units row.
+    #[test]
+    fn a_spaced_header_with_units_apart_is_a_header() {
+        let l = lines("t [ms] v_sw [V]\n-4 0.006\n-3.999 -0.018\n-3.998 0.079\n");
+        let found = locate_rows(&l, Delim::Whitespace, false, 2).unwrap();
+        assert_eq!((found.data_idx, found.header_idx), (1, Some(0)));
+        assert_eq!(
+            super::header_cells("t [ms]  v_sw (V)", Delim::Whitespace),
+            ["t [ms]", "v_sw (V)"]
+        );
+        let l = lines("t v\n[s] [V]\n0 1\n1 2\n2 3\n");
+        let found = locate_rows(&l, Delim::Whitespace, false, 2).unwrap();
+        assert_eq!(
+            (found.data_idx, found.header_idx, found.units_idx),
+            (2, Some(0), Some(1))
+        );
+        // Commas keep every cell: a bracketed cell there is a column of its own.
+        assert_eq!(
+            super::header_cells("t,[V]", Delim::Byte(b',')),
+            ["t", "[V]"]
+        );
     }
 }

@@ -68,6 +68,9 @@ pub(super) fn cell_message(cell: &[u8], e: CellError) -> String {
         CellError::NotFinite => format!(
             "'{shown}' is not a finite number; expected a number (NaN and infinity cannot be measured)"
         ),
+        CellError::Overrange => format!(
+            "'{shown}' is the value instruments write for a sample out of range or missing, not a measurement: the signal left the screen there (capture again with more volts per division), or cut the record before it"
+        ),
     }
 }
 
@@ -89,6 +92,31 @@ pub(super) fn row_cell_iter(text: &str, delim: Delim) -> impl Iterator<Item = &[
 /// Cells of a row, without the empty cell a trailing delimiter leaves.
 pub(super) fn row_cells(text: &str, delim: Delim) -> Vec<&[u8]> {
     row_cell_iter(text, delim).collect()
+}
+
+/// Cells of a header row. Between columns split by spaces, a unit written apart from its
+/// name (`t [ms] v_sw [V]`) is a cell of its own; it is joined to the name before it, so the
+/// header has one cell per column and the unit is not lost (a time in ms taken as seconds is
+/// a thousand times off). Other delimiters give the cells as they are.
+pub(super) fn header_cells(text: &str, delim: Delim) -> Vec<String> {
+    let bracketed_unit = |cell: &str| {
+        cell.starts_with(['[', '(']) && cell.ends_with([']', ')']) && columns::is_unit_cell(cell)
+    };
+    let mut out: Vec<String> = Vec::new();
+    for c in row_cell_iter(text, delim) {
+        let cell = String::from_utf8_lossy(trim_cell(c)).into_owned();
+        match out.last_mut() {
+            // (A row of units alone, `[s] [V]`, stays one cell per unit.)
+            Some(prev)
+                if delim == Delim::Whitespace && bracketed_unit(&cell) && !bracketed_unit(prev) =>
+            {
+                prev.push(' ');
+                prev.push_str(&cell);
+            }
+            _ => out.push(cell),
+        }
+    }
+    out
 }
 
 /// Sniffs the layout of a delimited text file and opens it for streaming. The returned
@@ -197,9 +225,9 @@ pub(crate) fn open(
                 lines[h].no,
                 lines[h].text.trim()
             ));
-            row_cells(&lines[h].text, delim)
+            header_cells(&lines[h].text, delim)
                 .iter()
-                .map(|c| columns::split_name_unit(&String::from_utf8_lossy(trim_cell(c))))
+                .map(|c| columns::split_name_unit(c))
                 .collect()
         }
         None => {
