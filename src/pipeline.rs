@@ -642,6 +642,7 @@ fn model_context(
         inductance_h: settings.measure.inductance_h,
         adc,
         clip_level_v,
+        body_diode_v: None,
     }
 }
 
@@ -893,6 +894,7 @@ pub fn ring_of_file(
     let (ch, _) = pick_channels(&mut cap, &settings)?;
     let ctx = crate::model::ModelContext {
         adc: ch.adc,
+        body_diode_v: Some(BODY_DIODE_CLIP_V),
         ..crate::model::ModelContext::default()
     };
     crate::model::measure_ring(&ch.samples, cap.sample_interval_s, &ctx).map_err(|e| {

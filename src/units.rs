@@ -196,6 +196,12 @@ pub fn eng_sig(value: f64, unit: &str, sig: usize) -> String {
     if value == 0.0 {
         return join(&mantissa_text(0.0, sig), "", unit);
     }
+    // Just past the prefix table the mantissa grows (`5000 THz`, `0.00200 fF`); further out
+    // it would run to hundreds of digits (a wild sample of 1e300 V): scientific notation.
+    let e = value.abs().log10().floor() as i32;
+    if !(MIN_EXP3 - 3..MAX_EXP3 + 6).contains(&e) {
+        return join(&format!("{:.*e}", sig - 1, value), "", unit);
+    }
     let mut exp3 = exp3_of(value.abs());
     let mut m = value / 10f64.powi(exp3);
     // Rounding may carry the mantissa to 1000 (999.7 -> "1000"); move to the next prefix.
@@ -226,6 +232,15 @@ mod tests {
 
     fn close(a: f64, b: f64) -> bool {
         (a - b).abs() <= 1e-12 * b.abs().max(1e-30)
+    }
+
+    /// Far past tera and below femto the mantissa would be hundreds of digits or all zeros.
+    #[test]
+    fn beyond_the_prefixes_is_scientific() {
+        assert_eq!(eng(6.11e300, "V"), "6.11e300 V");
+        assert_eq!(eng(-2.5e-21, "F"), "-2.50e-21 F");
+        assert_eq!(eng(5e17, "V"), "500000 TV");
+        assert_eq!(eng(2e-18, "F"), "0.00200 fF");
     }
 
     #[test]

@@ -235,6 +235,7 @@ mod fuzz {
                 inductance_h: Some(1e-3),
                 adc: rail.map(|r| AdcRange { min_v: -r.abs() - 1.0, max_v: r, step_v: None }),
                 clip_level_v: clip_level,
+                body_diode_v: None,
             };
             if let Some(fit) = fit_event(&v, 5e-9, 0.0, &ev, &ctx) {
                 let mut e = ev.clone();

@@ -178,7 +178,7 @@ pub fn text(doc: &ParasiticsDoc) -> String {
         s.push_str("Agreement\n");
         for a in &doc.agreement {
             s.push_str(&format!(
-                "  {} / {}: ratio {:.4} ({:+.2} %)\n",
+                "  {} / {}: ratio {:.4} (difference {:+.2} % of their mean)\n",
                 a.a, a.b, a.ratio, a.difference_pct
             ));
         }

@@ -249,24 +249,35 @@ pub(crate) fn fit_free_ring(
     sign: f64,
     left_out: &LeftOut,
 ) -> Option<EventFit> {
+    free_stretches(samples, start, left_out).find_map(|(a, b)| {
+        fit_stretch(samples, dt_s, t_start_s, a, b, noise, v_off, sign, left_out)
+    })
+}
+
+/// The stretches `a..b` from `start` on that no clip holds, longer than eight samples, in
+/// order: between them the body diode or a clamp conducts.
+fn free_stretches<'a>(
+    samples: &'a [f64],
+    start: usize,
+    left_out: &'a LeftOut,
+) -> impl Iterator<Item = (usize, usize)> + 'a {
     let n = samples.len();
     let mut a = start;
-    while a < n {
-        let b = (a..n)
-            .find(|&i| left_out.body_clipped(samples[i]))
-            .unwrap_or(n);
-        if b > a + 8 {
-            if let Some(fit) =
-                fit_stretch(samples, dt_s, t_start_s, a, b, noise, v_off, sign, left_out)
-            {
-                return Some(fit);
+    std::iter::from_fn(move || {
+        while a < n {
+            let b = (a..n)
+                .find(|&i| left_out.body_clipped(samples[i]))
+                .unwrap_or(n);
+            let here = a;
+            a = (b..n)
+                .find(|&i| !left_out.body_clipped(samples[i]))
+                .unwrap_or(n);
+            if b > here + 8 {
+                return Some((here, b));
             }
         }
-        a = (b..n)
-            .find(|&i| !left_out.body_clipped(samples[i]))
-            .unwrap_or(n);
-    }
-    None
+        None
+    })
 }
 
 #[allow(clippy::too_many_arguments)]
@@ -533,15 +544,44 @@ pub fn measure_ring(
         .max_by(|&a, &b| dev(a).total_cmp(&dev(b)))
         .ok_or_else(|| ModelError::Invalid("no finite samples".into()))?;
     let sign = if v[i_pk] >= v_off { 1.0 } else { -1.0 };
-    let left_out = LeftOut::new(ctx, sign);
+    // With an on state before the spike, the body diode clips the ring past it.
+    let placed = ModelContext {
+        clip_level_v: ctx
+            .clip_level_v
+            .or_else(|| Some(v_on - sign * ctx.body_diode_v?).filter(|_| side.is_some())),
+        ..*ctx
+    };
+    let left_out = LeftOut::new(&placed, sign);
     let noise = ringfit::noise_sigma(v);
-    let u: Vec<f64> = v[i_pk..].iter().map(|x| sign * (x - v_off)).collect();
-    let u_pk = u.first().copied().unwrap_or(0.0);
+    let u_pk = sign * (v[i_pk] - v_off);
+    // A clamp holds the node flat at the peak (a zener, the switch's avalanche): the ring
+    // of the node capacitance with the coil starts when it lets go, as in `fit_event`.
+    // Fitted from the peak, the plateau's corner passes for a slow, heavily damped ring
+    // (1.4 kHz where the free ring is 16 kHz, on a simulated avalanche-clamped pair).
+    // Then the first stretch the body diode does not clip that holds a ring, as in
+    // `fit_free_ring`: one damped sine cannot span a stretch where the diode conducts.
+    let start = free_ring_start(v, i_pk, u_pk, noise, &|i| sign * (v[i] - v_off));
     let hyst = (5.0 * noise).max(0.03 * u_pk);
-    let (est, fit, _, _) = fit_ring_from(v, i_pk, n, &u, dt_s, hyst, v_off, &left_out)?;
-    if !super::is_pos(fit.alpha_per_s) {
-        return Err(ModelError::NotDecaying);
+    let mut first_error = None;
+    let mut found = None;
+    for (a, b) in free_stretches(v, start, &left_out) {
+        let u: Vec<f64> = v[a..b].iter().map(|x| sign * (x - v_off)).collect();
+        match fit_ring_from(v, a, b, &u, dt_s, hyst, v_off, &left_out) {
+            Ok((est, fit, _, _)) if super::is_pos(fit.alpha_per_s) => {
+                found = Some((est, fit));
+                break;
+            }
+            Ok(_) => {
+                first_error.get_or_insert(ModelError::NotDecaying);
+            }
+            Err(e) => {
+                first_error.get_or_insert(e);
+            }
+        }
     }
+    let Some((est, fit)) = found else {
+        return Err(first_error.unwrap_or(ModelError::NoRing));
+    };
     Ok(RingMeasurement {
         v_off,
         peak_v: v[i_pk],

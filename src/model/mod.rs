@@ -34,6 +34,11 @@ pub struct ModelContext {
     /// switch's body diode, about -0.7 V for a low-side switch; a clamp). Samples at or
     /// beyond it are left out of fits. The caller supplies it; the model does not guess it.
     pub clip_level_v: Option<f64>,
+    /// How far past the switch's rail its body diode holds the node, for a caller that
+    /// knows the switch but not which way the spike points ([`measure_ring`] on a capture
+    /// of its own): the model then places the clip level past the on level, on the side
+    /// away from the spike. `clip_level_v`, when given, wins.
+    pub body_diode_v: Option<f64>,
 }
 
 /// Why a model could not be fitted or evaluated.
