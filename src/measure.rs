@@ -463,6 +463,25 @@ fn choose_levels(
         },
     };
     let polarity = states::polarity_of(low_v, high_v, &setting);
+    // A forced direction the record plainly contradicts measures the wrong edges (the
+    // turn-ons of a high-side switch taken for spikes): say so. "Plainly": the excursion
+    // past the other level is three times the one past this level.
+    let above = setting.hi_v - high_v;
+    let below = low_v - setting.lo_v;
+    let contradicted = match opts.polarity {
+        PolarityChoice::Up => below > 3.0 * above + survey.separation_v,
+        PolarityChoice::Down => above > 3.0 * below + survey.separation_v,
+        PolarityChoice::Auto => false,
+    };
+    if contradicted {
+        let (given, seen) = match polarity {
+            Polarity::Up => ("up", "down (a high-side switch?)"),
+            Polarity::Down => ("down", "up (a low-side switch?)"),
+        };
+        warnings.push(format!(
+            "--polarity {given}, but the samples reach {below:.3} V below the low level and {above:.3} V above the high level: the spikes point {seen}; check the option"
+        ));
+    }
     let (v_on, v_off) = match polarity {
         Polarity::Up => (low_v, high_v),
         Polarity::Down => (high_v, low_v),

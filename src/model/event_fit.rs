@@ -471,6 +471,10 @@ pub fn apply_fit(event: &mut Event, fit: &EventFit, ctx: &ModelContext) {
             event.fit_rms_v = Some(f.rms_v);
             if event.ring_freq_hz.is_none() {
                 event.ring_freq_hz = Some(f.f_d_hz);
+                // The fitted ring is the free response after the peak or after a clamp
+                // lets go: the coil's inductance with the node capacitance, as `c_par_f`
+                // below takes it. (A fast parasitic ring would have given crossings.)
+                event.ring_kind = Some(crate::measure::RingKind::Coil);
             }
             if let Some(l) = ctx.inductance_h.filter(|l| *l > 0.0) {
                 event.c_par_f = super::parasitics::c_from_inductance(f.omega_0_rad_s, l);

@@ -11,9 +11,9 @@ pub const MARKER: &str = ".kickscan-report";
 const MARKER_TEXT: &str = "This folder was written by kickscan; kickscan replaces it when asked to write a report here again.\n";
 
 fn io(path: &Path) -> impl FnOnce(std::io::Error) -> ReportError + '_ {
-    move |source| ReportError::Io {
+    move |error| ReportError::Io {
         path: path.to_path_buf(),
-        source,
+        error,
     }
 }
 
@@ -42,7 +42,7 @@ fn check_replaceable(dir: &Path, force: bool) -> Result<(), ReportError> {
     }
     Err(ReportError::Refused(format!(
         "{}: the folder exists and was not written by kickscan (no {MARKER} file in it); \
-         choose another --out, or force replacing it",
+         choose another --out, or give --force to replace it",
         dir.display()
     )))
 }

@@ -30,11 +30,12 @@ pub use table::{inspect_text, measure_summary_text, measure_text};
 /// Why a report could not be written.
 #[derive(Debug, thiserror::Error)]
 pub enum ReportError {
-    #[error("{path}: {source}")]
+    // The cause is in the message and deliberately not a `source`: `anyhow`'s `{:#}` at the
+    // edge prints the chain, which said it twice.
+    #[error("{path}: {error}")]
     Io {
         path: std::path::PathBuf,
-        #[source]
-        source: std::io::Error,
+        error: std::io::Error,
     },
     #[error("{0}")]
     Refused(String),
