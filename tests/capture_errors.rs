@@ -291,6 +291,23 @@ fn a_wav_header_that_goes_wrong_names_its_chunk() {
     );
 }
 
+/// Every cell written with its unit (`-0.004s,23.4V`): no delimiter makes rows of numbers of
+/// it, and the message says why, naming the line and the cell.
+#[test]
+fn numbers_written_with_their_units() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = write(
+        dir.path(),
+        "units.csv",
+        b"t,v\n-0.004s,-0.018V\n-0.003999s,0.079V\n",
+    );
+    fails(
+        &p,
+        &ReadOptions::default(),
+        &["line 2: '-0.004s' is a number with its unit after it"],
+    );
+}
+
 #[test]
 fn a_wav_extension_on_something_else() {
     let dir = tempfile::tempdir().unwrap();

@@ -94,6 +94,24 @@ pub(super) fn row_cells(text: &str, delim: Delim) -> Vec<&[u8]> {
     row_cell_iter(text, delim).collect()
 }
 
+/// The first cell, among the first lines, that is a number followed by letters (`-0.004s`,
+/// `23.4V`, `1,5 mA`): rows written with their units in every cell, which no delimiter turns
+/// into rows of numbers.
+fn numbers_with_units(lines: &[text::SniffLine]) -> Option<(usize, String)> {
+    lines.iter().take(64).find_map(|l| {
+        let cell = l
+            .text
+            .split([',', ';', '\t'])
+            .map(str::trim)
+            .find(|c| !c.is_empty())?;
+        let (_, end) = super::decimal::read_prefix(cell.as_bytes(), false)
+            .or_else(|| super::decimal::read_prefix(cell.as_bytes(), true))?;
+        let rest = cell.get(end..)?.trim_start();
+        (!rest.is_empty() && rest.chars().all(char::is_alphabetic))
+            .then(|| (l.no, cell.chars().take(40).collect()))
+    })
+}
+
 /// Cells of a header row. Between columns split by spaces, a unit written apart from its
 /// name (`t [ms] v_sw [V]`) is a cell of its own; it is joined to the name before it, so the
 /// header has one cell per column and the unit is not lost (a time in ms taken as seconds is
@@ -175,11 +193,15 @@ pub(crate) fn open(
     let best = pick_delimiter(&lines, opts);
     let Some((delim, comma, n_fields)) = best else {
         let last = lines.last().map_or(1, |l| l.no);
+        let why = match numbers_with_units(&lines) {
+            Some((no, cell)) => format!(
+                " (line {no}: '{cell}' is a number with its unit after it; export plain numbers, the units in the header)"
+            ),
+            None => " (a header alone is not a capture)".to_string(),
+        };
         return Err(invalid(
             path,
-            format!(
-                "no rows of numbers in lines 1 to {last}; expected rows of numbers (a header alone is not a capture)"
-            ),
+            format!("no rows of numbers in lines 1 to {last}; expected rows of numbers{why}"),
         ));
     };
     let delim = if n_fields == 1 { Delim::None } else { delim };
