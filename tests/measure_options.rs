@@ -111,6 +111,61 @@ fn coil_probe_gives_i0_energies_and_slope_capacitance() {
     }
 }
 
+/// A clamped event: the coil's current I0 charges the node capacitance C in a straight ramp
+/// until the clamp takes it at Vc, and the node then sits on a noisy plateau while the
+/// current runs down. The energy the first lobe put into the node capacitance is the
+/// capacitor's, C (Vc^2 - V50^2) / 2 from the 50 % instant (textbook energy of a charged
+/// capacitor; i = C dv/dt on the ramp): 4.0 uJ here. Integrated to the largest sample, a
+/// noise maximum somewhere on the plateau, it counted the clamp's energy too (tens to
+/// hundreds of microjoules, different on every shot).
+#[test]
+fn energy_to_peak_of_a_clamped_event_stops_where_the_clamp_takes_over() {
+    // 4.7 nF: a ramp of 200 samples, so the sum's steps stay well inside the tolerance.
+    let (c, i0, vc, vs): (f64, f64, f64, f64) = (4.7e-9, 0.1, 43.0, 24.0);
+    let dt = 10e-9;
+    let mut rng = Rng::new(7);
+    let (mut v, mut i) = (Vec::new(), Vec::new());
+    for _ in 0..2 {
+        for _ in 0..100_000 {
+            v.push(0.04 * rng.normal());
+            i.push(i0);
+        }
+        let ramp = (vc * c / i0 / dt).ceil() as usize;
+        for k in 0..ramp {
+            v.push(i0 * k as f64 * dt / c);
+            i.push(i0);
+        }
+        let plateau = 30_000;
+        for k in 0..plateau {
+            v.push(vc + 0.04 * rng.normal());
+            i.push(i0 * (1.0 - k as f64 / plateau as f64));
+        }
+        for _ in 0..80_000 {
+            v.push(vs + 0.04 * rng.normal());
+            i.push(0.0);
+        }
+    }
+    let opts = MeasureOptions {
+        current_through: CurrentThrough::Coil,
+        ..MeasureOptions::default()
+    };
+    let trace = Trace {
+        v: &v,
+        i: Some(&i),
+        dt_s: dt,
+        t0_s: 0.0,
+        adc: None,
+    };
+    let m = measure_trace(&trace, &opts).unwrap();
+    assert_eq!(m.events.len(), 2, "{:?}", m.warnings);
+    let want = 0.5 * c * (vc * vc - (vs / 2.0) * (vs / 2.0));
+    for e in &m.events {
+        let got = e.energy_to_peak_j.unwrap();
+        // 2 %: the sum's steps on the ramp (0.2 V each) and the first plateau sample.
+        assert!((got - want).abs() < 0.02 * want, "{got} vs {want}");
+    }
+}
+
 #[test]
 fn switch_probe_gives_the_switch_energy() {
     let (v, i) = two_events(true);

@@ -345,7 +345,19 @@ pub fn measure_event(cx: &Context, w: &Window) -> (Event, LocalLevels) {
             (v.get(r.clone()).unwrap_or(&[]), i.get(r).unwrap_or(&[]))
         };
         let across_switch = |x: f64, i: f64| s * (x - rail_v) * i;
-        let (vs, is) = span(e + 1, p + 1);
+        // The first lobe charges the node capacitance until the peak, or, on a clamped
+        // event, until the node reaches the clamp's plateau: from there the clamp takes
+        // the current, and the largest sample is only the noise's highest point on the
+        // plateau (integrating to it counted the clamp's energy, a different amount on
+        // every shot).
+        let charged = plateau_v
+            .and_then(|med| {
+                // (From the edge on the raw samples: `lobe_start` is judged on the
+                // smoothed copy, which reaches the band only after a fast ramp has.)
+                (0..=ps.min(ys.len().saturating_sub(1))).find(|&j| ys[j] >= med - band_n)
+            })
+            .map_or(p, |j| (e + j).min(p));
+        let (vs, is) = span(e + 1, charged + 1);
         energy_to_peak_j = Some(series::lane_sum(vs, is, across_switch) * cx.dt_s);
         let (vs, is) = span(e + 1, ae);
         match cx.opts.current_through {
