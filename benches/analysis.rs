@@ -34,6 +34,7 @@ fn event_finding(c: &mut Criterion) {
         hysteresis_f: 0.1,
         // The on state of the record lasts a fifth of each event period.
         dwell_samples: N / EVENTS / 10,
+        floor_f: 0.04,
     };
     let mut g = c.benchmark_group("event_finding");
     g.throughput(Throughput::Elements(N as u64));

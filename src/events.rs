@@ -8,6 +8,13 @@
 //! at most half a ring period, true on states last far longer, so the lengths of the on runs
 //! fall in two groups and the dwell sits in the gap between them.
 //!
+//! The on state is near the on level, not anywhere below the band: samples further than
+//! `floor_f` of the step beyond the on level (away from the off level) are the switch's body
+//! diode or a clamp holding the node past its rail while the coil current flows on, and
+//! count as neither on nor off. Such a stretch can last far longer than a ring dip (the
+//! diode conducts until the current has gone); taken for an on state, the ring after it
+//! was a turn-off that never happened, and it cut the real event's window.
+//!
 //! [`EdgeDetector`] is a state machine fed block by block with absolute sample indices, so
 //! it can run on a stream.
 
@@ -27,6 +34,10 @@ pub struct EdgeParams {
     pub hysteresis_f: f64,
     /// Samples the on state must hold before an upward crossing counts as an edge.
     pub dwell_samples: usize,
+    /// How far beyond the on level, as a fraction of the step and away from the off level,
+    /// a sample may lie and still be the on state (see the module notes); `f64::INFINITY`
+    /// takes every sample below the band as on.
+    pub floor_f: f64,
 }
 
 impl EdgeParams {
@@ -48,6 +59,11 @@ struct QuietBounds {
     s: f64,
     above: f64,
     below: f64,
+    /// `s (v - v_on) > floor_in` proves `unit(v) >= -floor_f` (not beyond the on level),
+    /// `s (v - v_on) < floor_out` proves `unit(v) < -floor_f`: the floor times `|d|`, moved
+    /// towards the on level and away from it as the band's edges are.
+    floor_in: f64,
+    floor_out: f64,
 }
 
 impl QuietBounds {
@@ -63,18 +79,35 @@ impl QuietBounds {
             }
         };
         let (above, below) = (outwards(hi, true), outwards(lo, false));
+        // The floor sits at -floor_f |d| (at or below zero): in is towards zero, out away.
+        let floor = -p.floor_f * d.abs();
+        let (floor_in, floor_out) = if floor.is_finite() {
+            (floor * (1.0 - 1e-12), floor * (1.0 + 1e-12))
+        } else {
+            (f64::NEG_INFINITY, f64::NEG_INFINITY)
+        };
         // A step too small (or not finite) for the bounds to mean anything: never skip.
-        if d.abs().is_normal() && above.is_finite() && below.is_finite() && hi > 0.0 {
+        if d.abs().is_normal()
+            && above.is_finite()
+            && below.is_finite()
+            && hi > 0.0
+            && !p.floor_f.is_nan()
+            && p.floor_f >= 0.0
+        {
             QuietBounds {
                 s: d.signum(),
                 above,
                 below,
+                floor_in,
+                floor_out,
             }
         } else {
             QuietBounds {
                 s: 1.0,
                 above: f64::INFINITY,
                 below: f64::NEG_INFINITY,
+                floor_in: f64::INFINITY,
+                floor_out: f64::NEG_INFINITY,
             }
         }
     }
@@ -94,6 +127,8 @@ pub enum Mark {
 enum State {
     Unknown,
     Low,
+    /// Beyond the on level (a body diode or clamp conducting): neither on nor off.
+    Beyond,
     High,
 }
 
@@ -144,7 +179,13 @@ impl EdgeDetector {
         if len == 0 {
             return true;
         }
-        let QuietBounds { s, above, below } = self.quiet;
+        let QuietBounds {
+            s,
+            above,
+            below,
+            floor_in,
+            floor_out,
+        } = self.quiet;
         let v_on = self.p.v_on;
         // Folded without a short cut so the comparisons vectorise; NaN fails both.
         match self.state {
@@ -165,10 +206,25 @@ impl EdgeDetector {
                 if qualifies_here {
                     return false;
                 }
-                let below = run
-                    .iter()
-                    .fold(true, |all, &v| all & (s * (v - v_on) < below));
+                let below = run.iter().fold(true, |all, &v| {
+                    let y = s * (v - v_on);
+                    all & (y < below) & (y > floor_in)
+                });
                 if !below {
+                    return false;
+                }
+                if !self.was_below_mid {
+                    self.below_mid_start = first;
+                }
+                self.was_below_mid = true;
+                self.last_below_mid = Some(last);
+            }
+            State::Beyond => {
+                let last = first + len - 1;
+                let beyond = run
+                    .iter()
+                    .fold(true, |all, &v| all & (s * (v - v_on) < floor_out));
+                if !beyond {
                     return false;
                 }
                 if !self.was_below_mid {
@@ -202,7 +258,12 @@ impl EdgeDetector {
             } else {
                 self.was_below_mid = false;
             }
-            if x < 0.5 - h {
+            if x < -self.p.floor_f {
+                if self.state != State::Beyond {
+                    self.state = State::Beyond;
+                    self.qualified = false;
+                }
+            } else if x < 0.5 - h {
                 if self.state != State::Low {
                     // A record that opens in the on state counts its run from sample 0.
                     self.low_start = if self.state == State::Unknown { 0 } else { k };
@@ -249,6 +310,12 @@ fn push_runs_on(det: &mut EdgeDetector, block: &[f64], out: &mut Vec<Mark>) {
 /// Lengths (in samples) of the runs spent in the low (on) band, hysteresis as in
 /// [`EdgeDetector`]. A run cut by the start or the end of the record is included: its
 /// length is a lower bound, and a long one still marks a true on state.
+///
+/// The detector's floor is left out on purpose: every sample below the band counts, the
+/// stretches a body diode holds too. Cut at the floor, a clipped trough fell into short
+/// pieces, and the widest gap between run lengths then fell between those pieces and a
+/// later unclipped dip, so that dip became an "on state" (a clean record of two events gave
+/// four). The floor only has to keep the detector from qualifying such a stretch.
 pub fn low_run_lengths(v: &[f64], v_on: f64, v_off: f64, hysteresis_f: f64) -> Vec<usize> {
     let mut runs = LowRuns::new(v_on, v_off, hysteresis_f);
     runs.push(v);
@@ -427,6 +494,7 @@ mod tests {
             v_off: 10.0,
             hysteresis_f: 0.1,
             dwell_samples: dwell,
+            floor_f: f64::INFINITY,
         }
     }
 
@@ -558,9 +626,13 @@ mod tests {
         // one.
         let flipped: Vec<f64> = v.iter().map(|x| -x).collect();
         for (v, sign) in [(&v, 1.0), (&flipped, -1.0)] {
-            for dwell in [1, 60, 150, 400] {
+            for (dwell, floor) in [1, 60, 150, 400]
+                .into_iter()
+                .flat_map(|d| [(d, f64::INFINITY), (d, 0.15)])
+            {
                 let p = EdgeParams {
                     v_off: 10.0 * sign,
+                    floor_f: floor,
                     ..params(dwell)
                 };
                 let mut want = Vec::new();
@@ -579,11 +651,10 @@ mod tests {
                         det.push(block, &mut got);
                         push_runs_on(&mut plain, block, &mut baseline);
                     }
-                    assert_eq!(got, want, "sign {sign}, dwell {dwell}, blocks of {size}");
-                    assert_eq!(
-                        baseline, want,
-                        "sign {sign}, dwell {dwell}, blocks of {size}"
-                    );
+                    let case =
+                        format!("sign {sign}, dwell {dwell}, floor {floor}, blocks of {size}");
+                    assert_eq!(got, want, "{case}");
+                    assert_eq!(baseline, want, "{case}");
                 }
             }
         }
@@ -609,11 +680,12 @@ mod tests {
                 v_off,
                 hysteresis_f: h,
                 dwell_samples: 10,
+                floor_f: 0.03,
             };
             let q = QuietBounds::of(&p);
             let d = v_off - v_on;
-            let mut passed = [0usize; 2];
-            for edge in [0.5 + h, 0.5 - h] {
+            let mut passed = [0usize; 4];
+            for edge in [0.5 + h, 0.5 - h, -p.floor_f] {
                 let centre = v_on + edge * d;
                 let mut vs = vec![centre, v_on + 0.5 * d, v_on + 2.0 * d, v_on - d];
                 let (mut up, mut down) = (centre, centre);
@@ -633,10 +705,52 @@ mod tests {
                         assert!(p.unit(v) < 0.5 - h, "{v} below for {p:?}");
                         passed[1] += 1;
                     }
+                    if q.s * (v - v_on) > q.floor_in {
+                        assert!(p.unit(v) >= -p.floor_f, "{v} inside the floor for {p:?}");
+                        passed[2] += 1;
+                    }
+                    if q.s * (v - v_on) < q.floor_out {
+                        assert!(p.unit(v) < -p.floor_f, "{v} beyond the floor for {p:?}");
+                        passed[3] += 1;
+                    }
                 }
             }
-            assert!(passed[0] > 0 && passed[1] > 0, "{p:?}: {passed:?}");
+            assert!(passed.iter().all(|&n| n > 0), "{p:?}: {passed:?}");
         }
+    }
+
+    /// A ring clipped by the switch's body diode: the node sits 0.7 V beyond the on level
+    /// (7 % of this 10 V step) for 150 samples, longer than the dwell, then rings up again as
+    /// the diode lets go. Taken for an on state, that was a second turn-off in every cycle
+    /// and a turn-on cutting the real event's window; beyond the floor, it is neither.
+    #[test]
+    fn a_body_diode_stretch_is_not_an_on_state() {
+        let mut v = Vec::new();
+        for _ in 0..3 {
+            v.extend(std::iter::repeat_n(0.0, 400));
+            // Spike and one lobe down to the diode's clamp, held, then the free ring.
+            for k in 0..10 {
+                v.push(60.0 * (std::f64::consts::PI * k as f64 / 10.0).sin());
+            }
+            v.extend(std::iter::repeat_n(-0.7, 150));
+            for k in 0..400 {
+                let t = k as f64;
+                v.push(
+                    10.0 - 10.7 * (-t / 60.0).exp() * (2.0 * std::f64::consts::PI * t / 40.0).cos(),
+                );
+            }
+            v.extend(std::iter::repeat_n(10.0, 300));
+        }
+        let with_floor = EdgeParams {
+            floor_f: 0.04,
+            ..params(100)
+        };
+        let scan = scan_edges(&v, with_floor);
+        assert_eq!(scan.edges.len(), 3, "{scan:?}");
+        assert_eq!(scan.turn_ons.len(), 3, "{scan:?}");
+        // Without the floor the diode stretch qualifies as an on state (the old behaviour).
+        let scan = scan_edges(&v, params(100));
+        assert_eq!(scan.edges.len(), 6, "{scan:?}");
     }
 
     #[test]

@@ -235,16 +235,21 @@ pub fn measure_trace(
         let step = (v_off - v_on).abs();
         let sigma =
             levels::noise_sigma_where(v, |a, b| near_on(a, b, v_on, step)).unwrap_or(rough_sigma);
-        let hysteresis_f = hysteresis_of(sigma, adc_step_v, step);
-        let dwell = survey.dwell_samples.unwrap_or_else(|| {
-            events::derive_dwell(&events::low_run_lengths(v, v_on, v_off, hysteresis_f))
-        });
-        let params = events::EdgeParams {
+        let mut params = events::EdgeParams {
             v_on,
             v_off,
-            hysteresis_f,
-            dwell_samples: dwell,
+            hysteresis_f: hysteresis_of(sigma, adc_step_v, step),
+            dwell_samples: 0,
+            floor_f: floor_of(sigma, adc_step_v, step),
         };
+        params.dwell_samples = survey.dwell_samples.unwrap_or_else(|| {
+            events::derive_dwell(&events::low_run_lengths(
+                v,
+                v_on,
+                v_off,
+                params.hysteresis_f,
+            ))
+        });
         let scan = events::scan_edges(v, params);
         let windows = events::event_windows(&scan, v.len(), survey.max_samples);
         let cx = survey.context(v, current, trace, &chosen, sigma, opts);
@@ -418,6 +423,18 @@ fn near_on(a: f64, b: f64, v_on: f64, step: f64) -> bool {
 /// codes), kept between 5 % and 35 % of the step.
 fn hysteresis_of(sigma_v: f64, adc_step_v: f64, step_v: f64) -> f64 {
     (4.0 * sigma_v.max(adc_step_v) / step_v).clamp(0.05, 0.35)
+}
+
+/// How far past the rail the switch's body diode holds the node once it conducts, less a
+/// margin for noise (a silicon body diode conducts from about 0.5-0.7 V; common practice).
+/// Samples beyond it are left out of fits, and are not the on state.
+pub const BODY_DIODE_CLIP_V: f64 = 0.4;
+
+/// The edge detector's floor, in steps (`EdgeParams::floor_f`): samples further beyond the
+/// on level than the body diode's clip, or than six noise deviations and two codes when the
+/// noise is larger (an on state's own noise never reaches past it), are not the on state.
+fn floor_of(sigma_v: f64, adc_step_v: f64, step_v: f64) -> f64 {
+    BODY_DIODE_CLIP_V.max(6.0 * sigma_v + 2.0 * adc_step_v) / step_v
 }
 
 /// The two state levels and the polarity, from `v` (the whole record, or every `stride`-th

@@ -10,7 +10,7 @@ use crate::document::{
     CaptureDoc, FileError, InspectChannel, InspectDoc, InspectFile, MeasureDoc, Summary,
     INSPECT_SCHEMA, MEASURE_SCHEMA,
 };
-use crate::measure::{self, Event, MeasureOptions, Trace};
+use crate::measure::{self, Event, MeasureOptions, Trace, BODY_DIODE_CLIP_V};
 use crate::report::TraceSketch;
 
 mod spill;
@@ -584,11 +584,6 @@ pub fn measure_from_tables(inputs: &[PathBuf], settings: &Settings) -> TableRun 
         groups,
     }
 }
-
-/// How far past the rail the switch's body diode holds the node once it conducts, less a
-/// margin for noise: samples beyond it are left out of fits (a silicon body diode conducts
-/// from about 0.5-0.7 V; common practice).
-const BODY_DIODE_CLIP_V: f64 = 0.4;
 
 /// Fits the damped RLC model (or an exponential decay) to every event and folds the results
 /// into the event: refined damping, Q, node capacitance with `--inductance`, and the

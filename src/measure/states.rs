@@ -99,20 +99,23 @@ pub fn fit_pair(v: &[f64], low_v: f64, high_v: f64, s: &Setting) -> PairFit {
     if !(step > 0.0 && step.is_finite()) {
         return fit;
     }
-    // Same hysteresis and dwell rules as the measurement itself.
-    let hysteresis_f = (4.0 * s.sigma_v.max(s.adc_step_v) / step).clamp(0.05, 0.35);
-    let dwell_samples = s.dwell_samples.unwrap_or_else(|| {
-        events::derive_dwell(&events::low_run_lengths(v, v_on, v_off, hysteresis_f))
-    });
-    let scan = events::scan_edges(
-        v,
-        events::EdgeParams {
+    // Same hysteresis, floor and dwell rules as the measurement itself.
+    let mut params = events::EdgeParams {
+        v_on,
+        v_off,
+        hysteresis_f: super::hysteresis_of(s.sigma_v, s.adc_step_v, step),
+        dwell_samples: 0,
+        floor_f: super::floor_of(s.sigma_v, s.adc_step_v, step),
+    };
+    params.dwell_samples = s.dwell_samples.unwrap_or_else(|| {
+        events::derive_dwell(&events::low_run_lengths(
+            v,
             v_on,
             v_off,
-            hysteresis_f,
-            dwell_samples,
-        },
-    );
+            params.hysteresis_f,
+        ))
+    });
+    let scan = events::scan_edges(v, params);
     let windows = events::event_windows(&scan, v.len(), s.max_samples);
     let tol = (LEVEL_TOLERANCE_F * step).max(3.0 * s.sigma_v + s.adc_step_v);
     let mut buf = Vec::new();
