@@ -311,13 +311,15 @@ fn push_runs_on(det: &mut EdgeDetector, block: &[f64], out: &mut Vec<Mark>) {
 /// [`EdgeDetector`]. A run cut by the start or the end of the record is included: its
 /// length is a lower bound, and a long one still marks a true on state.
 ///
-/// The detector's floor is left out on purpose: every sample below the band counts, the
-/// stretches a body diode holds too. Cut at the floor, a clipped trough fell into short
-/// pieces, and the widest gap between run lengths then fell between those pieces and a
-/// later unclipped dip, so that dip became an "on state" (a clean record of two events gave
-/// four). The floor only has to keep the detector from qualifying such a stretch.
-pub fn low_run_lengths(v: &[f64], v_on: f64, v_off: f64, hysteresis_f: f64) -> Vec<usize> {
-    let mut runs = LowRuns::new(v_on, v_off, hysteresis_f);
+/// Samples beyond the detector's floor (a body diode holding the node) neither count nor
+/// end a run: a stretch the diode holds after a spike is no on state (it can outlast a
+/// short pre-trigger, and so set the dwell above the true on state's length), while a ring
+/// trough the diode clips stays one dip. Cut at the floor instead, a clipped trough fell into
+/// short pieces, and the widest gap between run lengths then fell between those pieces and
+/// a later unclipped dip, which became an "on state" (a clean record of two events gave
+/// four).
+pub fn low_run_lengths(v: &[f64], p: &EdgeParams) -> Vec<usize> {
+    let mut runs = LowRuns::new(p);
     runs.push(v);
     runs.finish()
 }
@@ -328,17 +330,23 @@ pub struct LowRuns {
     v_on: f64,
     span: f64,
     hysteresis_f: f64,
+    floor_f: f64,
+    /// Samples beyond the floor since the open run started.
+    beyond: usize,
     runs: Vec<usize>,
     start: Option<usize>,
     next_index: usize,
 }
 
 impl LowRuns {
-    pub fn new(v_on: f64, v_off: f64, hysteresis_f: f64) -> Self {
+    /// The runs the detector `p` sees (its dwell is not used).
+    pub fn new(p: &EdgeParams) -> Self {
         LowRuns {
-            v_on,
-            span: v_off - v_on,
-            hysteresis_f,
+            v_on: p.v_on,
+            span: p.v_off - p.v_on,
+            hysteresis_f: p.hysteresis_f,
+            floor_f: p.floor_f,
+            beyond: 0,
             runs: Vec::new(),
             start: None,
             next_index: 0,
@@ -352,7 +360,7 @@ impl LowRuns {
     /// The run lengths, the run still open at the end included.
     pub fn finish(mut self) -> Vec<usize> {
         if let Some(s) = self.start {
-            self.runs.push(self.next_index - s);
+            self.runs.push(self.next_index - s - self.beyond);
         }
         self.runs
     }
@@ -371,29 +379,52 @@ crate::avx2::twice_compiled!(
 fn push_low_runs_on(runs: &mut LowRuns, block: &[f64]) {
     let (v_on, span) = (runs.v_on, runs.span);
     let (low_below, high_above) = (0.5 - runs.hysteresis_f, 0.5 + runs.hysteresis_f);
+    let floor = -runs.floor_f;
+    // The beyond samples of `mask` in bits `from..to`.
+    let count = |mask: u64, from: u32, to: u32| -> usize {
+        let width = to - from;
+        let m = if width >= 64 {
+            u64::MAX
+        } else {
+            (1u64 << width) - 1
+        };
+        ((mask >> from) & m).count_ones() as usize
+    };
     for chunk in block.chunks(64) {
-        let (mut low, mut high) = (0u64, 0u64);
+        let (mut low, mut high, mut beyond) = (0u64, 0u64, 0u64);
         for (j, &x) in chunk.iter().enumerate() {
             let u = (x - v_on) / span;
-            let is_low = u < low_below;
+            let is_beyond = u < floor;
+            let is_low = u < low_below && !is_beyond;
             low |= u64::from(is_low) << j;
+            beyond |= u64::from(is_beyond) << j;
             // A sample in the low band is never taken as high (a negative hysteresis
             // makes the bands overlap).
-            high |= u64::from(!is_low && u > high_above) << j;
+            high |= u64::from(!is_low && !is_beyond && u > high_above) << j;
         }
         let base = runs.next_index;
+        let n = chunk.len() as u32;
         let mut pos = 0u32;
-        while (pos as usize) < chunk.len() {
+        while pos < n {
             let waiting = if runs.start.is_none() { low } else { high };
             let rest = waiting >> pos;
             if rest == 0 {
+                if runs.start.is_some() {
+                    runs.beyond += count(beyond, pos, n);
+                }
                 break;
             }
             let j = pos + rest.trailing_zeros();
             let k = base + j as usize;
             match runs.start.take() {
-                None => runs.start = Some(k),
-                Some(s) => runs.runs.push(k - s),
+                None => {
+                    runs.start = Some(k);
+                    runs.beyond = 0;
+                }
+                Some(s) => {
+                    runs.beyond += count(beyond, pos, j);
+                    runs.runs.push(k - s - runs.beyond);
+                }
             }
             pos = j + 1;
         }
@@ -511,26 +542,30 @@ mod tests {
     }
 
     /// The runs counted on masks, however the samples come in blocks and whichever build
-    /// runs, against the definition tested sample by sample: on a ring through the middle,
-    /// noise, NaN, and bands that overlap (a negative hysteresis).
+    /// runs, against the definition tested sample by sample: on a ring through the middle
+    /// and below the floor (samples there neither count nor end a run), noise, NaN, and bands
+    /// that overlap (a negative hysteresis).
     #[test]
     fn low_runs_counted_on_masks_match_a_sample_by_sample_count() {
-        let plain = |v: &[f64], h: f64| {
-            let (mut runs, mut start) = (Vec::new(), None);
+        let plain = |v: &[f64], h: f64, floor: f64| {
+            let (mut runs, mut start, mut beyond) = (Vec::new(), None, 0);
             for (k, &x) in v.iter().enumerate() {
                 let u = (x - 0.0) / 10.0;
-                if u < 0.5 - h {
+                if u < -floor {
+                    beyond += usize::from(start.is_some());
+                } else if u < 0.5 - h {
                     if start.is_none() {
                         start = Some(k);
+                        beyond = 0;
                     }
                 } else if u > 0.5 + h {
                     if let Some(s) = start.take() {
-                        runs.push(k - s);
+                        runs.push(k - s - beyond);
                     }
                 }
             }
             if let Some(s) = start {
-                runs.push(v.len() - s);
+                runs.push(v.len() - s - beyond);
             }
             runs
         };
@@ -547,18 +582,34 @@ mod tests {
         }));
         v[130] = f64::NAN;
         v[1000] = f64::NAN;
-        for h in [0.1, 0.0, -0.05, 0.3] {
-            let want = plain(&v, h);
+        for (h, floor) in [0.1, 0.0, -0.05, 0.3]
+            .into_iter()
+            .flat_map(|h| [(h, f64::INFINITY), (h, 0.2), (h, 0.0)])
+        {
+            let want = plain(&v, h, floor);
             assert!(want.len() > 10, "{h}: {want:?}");
-            assert_eq!(low_run_lengths(&v, 0.0, 10.0, h), want, "h {h}");
+            let p = EdgeParams {
+                hysteresis_f: h,
+                floor_f: floor,
+                ..params(1)
+            };
+            assert_eq!(low_run_lengths(&v, &p), want, "h {h}, floor {floor}");
             for size in [1, 5, 63, 64, 65, 200] {
-                let (mut fast, mut base) = (LowRuns::new(0.0, 10.0, h), LowRuns::new(0.0, 10.0, h));
+                let (mut fast, mut base) = (LowRuns::new(&p), LowRuns::new(&p));
                 for block in v.chunks(size) {
                     fast.push(block);
                     push_low_runs_on(&mut base, block);
                 }
-                assert_eq!(fast.finish(), want, "h {h}, blocks of {size}");
-                assert_eq!(base.finish(), want, "h {h}, blocks of {size}");
+                assert_eq!(
+                    fast.finish(),
+                    want,
+                    "h {h}, floor {floor}, blocks of {size}"
+                );
+                assert_eq!(
+                    base.finish(),
+                    want,
+                    "h {h}, floor {floor}, blocks of {size}"
+                );
             }
         }
     }
@@ -569,7 +620,7 @@ mod tests {
         for _ in 0..5 {
             ringing_cycle(&mut v);
         }
-        let runs = low_run_lengths(&v, 0.0, 10.0, 0.1);
+        let runs = low_run_lengths(&v, &params(1));
         let dwell = derive_dwell(&runs);
         // Ring dips last under half the 40-sample period; on states 200 samples.
         assert!(dwell > 20 && dwell < 200, "dwell {dwell} from {runs:?}");
@@ -751,6 +802,9 @@ mod tests {
         // Without the floor the diode stretch qualifies as an on state (the old behaviour).
         let scan = scan_edges(&v, params(100));
         assert_eq!(scan.edges.len(), 6, "{scan:?}");
+        // The runs the dwell comes from leave the diode stretch's samples out.
+        let runs = low_run_lengths(&v, &with_floor);
+        assert!(runs.iter().all(|&r| !(100..400).contains(&r)), "{runs:?}");
     }
 
     #[test]

@@ -242,14 +242,9 @@ pub fn measure_trace(
             dwell_samples: 0,
             floor_f: floor_of(sigma, adc_step_v, step),
         };
-        params.dwell_samples = survey.dwell_samples.unwrap_or_else(|| {
-            events::derive_dwell(&events::low_run_lengths(
-                v,
-                v_on,
-                v_off,
-                params.hysteresis_f,
-            ))
-        });
+        params.dwell_samples = survey
+            .dwell_samples
+            .unwrap_or_else(|| events::derive_dwell(&events::low_run_lengths(v, &params)));
         let scan = events::scan_edges(v, params);
         let windows = events::event_windows(&scan, v.len(), survey.max_samples);
         let cx = survey.context(v, current, trace, &chosen, sigma, opts);
@@ -461,10 +456,17 @@ fn choose_levels(
         .filter(|s| s.is_finite() && s.abs() > survey.separation_v)
     {
         Some(sup) => {
+            // Not past a rail by more than a conducting diode holds it (the body diode
+            // beyond ground, a freewheel diode beyond the supply: a stretch there can
+            // outnumber a short on state or a settled off state, and was taken for it).
             let hw = 0.15 * sup.abs();
-            let g = levels::level_near(v, 0.0, hw).unwrap_or(0.0);
-            let s = levels::level_near(v, sup, hw).unwrap_or(sup);
-            (g.min(s), g.max(s))
+            let clip = BODY_DIODE_CLIP_V.max(6.0 * survey.rough_sigma_v + 2.0 * survey.adc_step_v);
+            let (r_lo, r_hi) = (sup.min(0.0), sup.max(0.0));
+            let within =
+                |from: f64, to: f64| levels::level_near(v, 0.5 * (from + to), 0.5 * (to - from));
+            let lo = within(r_lo - clip, r_lo + hw).unwrap_or(r_lo);
+            let hi = within(r_hi - hw, r_hi + clip).unwrap_or(r_hi);
+            (lo, hi)
         }
         // The histogram pair, unless another pair of candidate levels explains the events
         // better (a body-diode clip level on a clean record, see `states`).

@@ -166,6 +166,46 @@ fn energy_to_peak_of_a_clamped_event_stops_where_the_clamp_takes_over() {
     }
 }
 
+/// With `--supply`, the states are ground and the supply, and a stretch a conducting diode
+/// holds past a rail is neither: a freewheel diode across the coil keeps the node about
+/// 0.7 V above the supply until the coil current has gone, and in a short record that
+/// stretch outnumbers the settled off state. Taken into the level near the supply it moved
+/// the off level to 24.5 V, and with it the sign of the volt-seconds and most of the clamp
+/// energy. Invented record: 3000 samples of diode tail (24.7 V falling to 24.45 V as the
+/// current dies), 1500 settled at 24 V, 10 mV of noise.
+#[test]
+fn a_diode_tail_past_the_supply_is_not_the_off_level() {
+    let mut rng = Rng::new(11);
+    let mut v = Vec::new();
+    for _ in 0..2 {
+        v.extend((0..2000).map(|_| 0.01 * rng.normal()));
+        v.extend((0..3000).map(|k| 24.7 - 0.25 * k as f64 / 3000.0 + 0.01 * rng.normal()));
+        v.extend((0..1500).map(|_| 24.0 + 0.01 * rng.normal()));
+    }
+    let trace = Trace {
+        v: &v,
+        i: None,
+        dt_s: 1e-6,
+        t0_s: 0.0,
+        adc: None,
+    };
+    let opts = MeasureOptions {
+        supply_v: Some(24.0),
+        ..MeasureOptions::default()
+    };
+    let m = measure_trace(&trace, &opts).unwrap();
+    assert_eq!(m.events.len(), 2, "{:?}", m.warnings);
+    assert!((m.v_off - 24.0).abs() < 0.01, "off level {}", m.v_off);
+    assert!(m.v_on.abs() < 0.01, "on level {}", m.v_on);
+    // Found at once, not corrected afterwards by where the events settled (which a short
+    // record need not show).
+    assert!(
+        m.warnings.iter().all(|w| !w.contains("off level")),
+        "{:?}",
+        m.warnings
+    );
+}
+
 #[test]
 fn switch_probe_gives_the_switch_energy() {
     let (v, i) = two_events(true);

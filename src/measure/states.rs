@@ -107,14 +107,9 @@ pub fn fit_pair(v: &[f64], low_v: f64, high_v: f64, s: &Setting) -> PairFit {
         dwell_samples: 0,
         floor_f: super::floor_of(s.sigma_v, s.adc_step_v, step),
     };
-    params.dwell_samples = s.dwell_samples.unwrap_or_else(|| {
-        events::derive_dwell(&events::low_run_lengths(
-            v,
-            v_on,
-            v_off,
-            params.hysteresis_f,
-        ))
-    });
+    params.dwell_samples = s
+        .dwell_samples
+        .unwrap_or_else(|| events::derive_dwell(&events::low_run_lengths(v, &params)));
     let scan = events::scan_edges(v, params);
     let windows = events::event_windows(&scan, v.len(), s.max_samples);
     let tol = (LEVEL_TOLERANCE_F * step).max(3.0 * s.sigma_v + s.adc_step_v);

@@ -355,7 +355,7 @@ pub fn measure_stream<O: Observer>(
         // (ratio DWELL_GAP_RATIO or more), which run lengths counted on the thinned copy
         // locate to a stride either way; with a stride of 1 they are the exact ones.
         params.dwell_samples = sv.dwell_samples.unwrap_or_else(|| {
-            let runs: Vec<usize> = events::low_run_lengths(&thin, v_on, v_off, params.hysteresis_f)
+            let runs: Vec<usize> = events::low_run_lengths(&thin, &params)
                 .into_iter()
                 .map(|r| r * stride)
                 .collect();
