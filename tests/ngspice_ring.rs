@@ -123,6 +123,29 @@ fn ring_frequency_matches_the_simulated_rlc() {
     let c = e.c_par_f.unwrap();
     println!("ngspice node capacitance: {c:.4e} F vs {C_F:.4e} F");
     assert!((c - C_F).abs() / C_F < 0.01);
+    // This switch has no body diode: the ring swings hundreds of volts below ground, so the
+    // fit must not cut it where a diode would clip (the pipeline's clip level for a low-side
+    // switch). The damped sine fits it to a small fraction of a volt.
+    let ctx = kickscan::model::ModelContext {
+        inductance_h: Some(L_H),
+        clip_level_v: Some(-kickscan::measure::BODY_DIODE_CLIP_V),
+        ..kickscan::model::ModelContext::default()
+    };
+    let fit = kickscan::model::fit_event(&v, DT_S, 0.0, e, &ctx).unwrap();
+    let mut fitted = e.clone();
+    kickscan::model::apply_fit(&mut fitted, &fit, &ctx);
+    let rms = fitted.fit_rms_v.unwrap();
+    println!(
+        "ngspice fit: {} with residuals {rms:.2e} V",
+        fit.curve.name()
+    );
+    assert_eq!(fit.curve.name(), "damped_sine");
+    assert!(rms < 1e-3 * e.peak_v, "{rms} V");
+    // And from the spike on: cut at every trough, the ring could only be fitted where the
+    // troughs no longer reach the clip level, many periods later.
+    let periods_late = (fit.fit_start_s - e.t_edge_s) * f_truth;
+    println!("ngspice fit starts {periods_late:.2} periods after the edge");
+    assert!(periods_late < 1.0, "{periods_late} periods");
 }
 
 /// The same circuit with the switch's body diode (a silicon diode from ground to the node)

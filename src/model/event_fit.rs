@@ -120,6 +120,10 @@ fn sign_of(p: Polarity) -> f64 {
     }
 }
 
+/// How far past the clip level a conducting diode can let the node go (its forward drop at
+/// a large current, some 1 to 1.5 V for a power MOSFET's body diode; common practice).
+const DIODE_HOLDS_V: f64 = 1.6;
+
 /// Which samples a fit must leave out.
 pub(crate) struct LeftOut {
     rail_hi: Option<f64>,
@@ -146,6 +150,26 @@ impl LeftOut {
             clip_s: ctx.clip_level_v.map(|c| sign * c),
             sign,
         }
+    }
+
+    /// Drops the clip level when `samples` go further past it than a conducting diode
+    /// would let them (1.6 V past the level, about 2 V past the rail, and six noise
+    /// deviations): then nothing clamps there (a switch without a body diode, a relay
+    /// contact) and the ring swings freely through it. Left in, every trough cut the ring
+    /// into stretches of half a period, none long enough for the damped sine, and a clean
+    /// ring of a 12 V coil got the exponential model with residuals of 150 V.
+    pub(crate) fn unless_passed(mut self, samples: &[f64], noise_v: f64) -> Self {
+        if let Some(c) = self.clip_s {
+            let deepest = samples
+                .iter()
+                .filter(|x| x.is_finite())
+                .map(|&x| self.sign * x)
+                .fold(f64::INFINITY, f64::min);
+            if deepest < c - DIODE_HOLDS_V - 6.0 * noise_v {
+                self.clip_s = None;
+            }
+        }
+        self
     }
 
     pub(crate) fn at_rail(&self, v: f64) -> bool {
@@ -187,7 +211,8 @@ pub fn fit_event(
         return None;
     }
     let sign = sign_of(event.polarity);
-    let left_out = LeftOut::new(ctx, sign);
+    let noise = ringfit::noise_sigma(&whole[i_edge..noise_end]);
+    let left_out = LeftOut::new(ctx, sign).unless_passed(samples, noise);
     let u = |i: usize| sign * (samples[i] - event.v_off);
     let i_pk = (i_edge..n)
         .filter(|&i| samples[i].is_finite())
@@ -200,7 +225,6 @@ pub fn fit_event(
     if !super::is_pos(u_pk) {
         return None;
     }
-    let noise = ringfit::noise_sigma(&whole[i_edge..noise_end]);
     let mut start = free_ring_start(samples, i_pk, u_pk, noise, &u);
     // The measurement found where the clamp released (`decay_time_s`). When the stretch from
     // the peak to there is flat (a plateau: its median stays near the peak, where a sine
@@ -564,8 +588,8 @@ pub fn measure_ring(
             .or_else(|| Some(v_on - sign * ctx.body_diode_v?).filter(|_| side.is_some())),
         ..*ctx
     };
-    let left_out = LeftOut::new(&placed, sign);
     let noise = ringfit::noise_sigma(v);
+    let left_out = LeftOut::new(&placed, sign).unless_passed(v, noise);
     let u_pk = sign * (v[i_pk] - v_off);
     // A clamp holds the node flat at the peak (a zener, the switch's avalanche): the ring
     // of the node capacitance with the coil starts when it lets go, as in `fit_event`.
