@@ -212,7 +212,8 @@ pub fn fit_event(
     }
     let sign = sign_of(event.polarity);
     let noise = ringfit::noise_sigma(&whole[i_edge..noise_end]);
-    let left_out = LeftOut::new(ctx, sign).unless_passed(samples, noise);
+    // (The deepest troughs of a free ring come first: the noise's stretch holds them.)
+    let left_out = LeftOut::new(ctx, sign).unless_passed(&whole[i_edge..noise_end], noise);
     let u = |i: usize| sign * (samples[i] - event.v_off);
     let i_pk = (i_edge..n)
         .filter(|&i| samples[i].is_finite())
