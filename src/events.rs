@@ -213,30 +213,31 @@ impl EdgeDetector {
                 if !below {
                     return false;
                 }
-                if !self.was_below_mid {
-                    self.below_mid_start = first;
-                }
-                self.was_below_mid = true;
-                self.last_below_mid = Some(last);
+                self.all_below_mid(first, last);
             }
             State::Beyond => {
-                let last = first + len - 1;
                 let beyond = run
                     .iter()
                     .fold(true, |all, &v| all & (s * (v - v_on) < floor_out));
                 if !beyond {
                     return false;
                 }
-                if !self.was_below_mid {
-                    self.below_mid_start = first;
-                }
-                self.was_below_mid = true;
-                self.last_below_mid = Some(last);
+                self.all_below_mid(first, first + len - 1);
             }
             State::Unknown => return false,
         }
         self.next_index += len;
         true
+    }
+
+    /// Notes samples `first..=last`, all below the 50 % level.
+    #[inline(always)]
+    fn all_below_mid(&mut self, first: usize, last: usize) {
+        if !self.was_below_mid {
+            self.below_mid_start = first;
+        }
+        self.was_below_mid = true;
+        self.last_below_mid = Some(last);
     }
 
     /// [`Self::push`] one sample at a time.

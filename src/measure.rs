@@ -235,13 +235,7 @@ pub fn measure_trace(
         let step = (v_off - v_on).abs();
         let sigma =
             levels::noise_sigma_where(v, |a, b| near_on(a, b, v_on, step)).unwrap_or(rough_sigma);
-        let mut params = events::EdgeParams {
-            v_on,
-            v_off,
-            hysteresis_f: hysteresis_of(sigma, adc_step_v, step),
-            dwell_samples: 0,
-            floor_f: floor_of(sigma, adc_step_v, step),
-        };
+        let mut params = edge_params(v_on, v_off, sigma, adc_step_v);
         params.dwell_samples = survey
             .dwell_samples
             .unwrap_or_else(|| events::derive_dwell(&events::low_run_lengths(v, &params)));
@@ -430,6 +424,19 @@ pub const BODY_DIODE_CLIP_V: f64 = 0.4;
 /// noise is larger (an on state's own noise never reaches past it), are not the on state.
 fn floor_of(sigma_v: f64, adc_step_v: f64, step_v: f64) -> f64 {
     BODY_DIODE_CLIP_V.max(6.0 * sigma_v + 2.0 * adc_step_v) / step_v
+}
+
+/// The edge detector's settings for these levels and this noise, its dwell left for the
+/// caller to set (from `--min-on-time`, or from the runs these settings see).
+fn edge_params(v_on: f64, v_off: f64, sigma_v: f64, adc_step_v: f64) -> events::EdgeParams {
+    let step = (v_off - v_on).abs();
+    events::EdgeParams {
+        v_on,
+        v_off,
+        hysteresis_f: hysteresis_of(sigma_v, adc_step_v, step),
+        dwell_samples: 0,
+        floor_f: floor_of(sigma_v, adc_step_v, step),
+    }
 }
 
 /// The two state levels and the polarity, from `v` (the whole record, or every `stride`-th

@@ -100,13 +100,7 @@ pub fn fit_pair(v: &[f64], low_v: f64, high_v: f64, s: &Setting) -> PairFit {
         return fit;
     }
     // Same hysteresis, floor and dwell rules as the measurement itself.
-    let mut params = events::EdgeParams {
-        v_on,
-        v_off,
-        hysteresis_f: super::hysteresis_of(s.sigma_v, s.adc_step_v, step),
-        dwell_samples: 0,
-        floor_f: super::floor_of(s.sigma_v, s.adc_step_v, step),
-    };
+    let mut params = super::edge_params(v_on, v_off, s.sigma_v, s.adc_step_v);
     params.dwell_samples = s
         .dwell_samples
         .unwrap_or_else(|| events::derive_dwell(&events::low_run_lengths(v, &params)));

@@ -27,9 +27,8 @@
 //! measured on other threads: bounded by the limits, whatever the record's length.
 
 use super::{
-    check_length_and_interval, choose_levels, conclude, cross_check, event, floor_of,
-    hysteresis_of, near_on, CaptureMeasurement, Event, Found, MeasureError, MeasureOptions, Survey,
-    Trace, MIN_STATE_RUN,
+    check_length_and_interval, choose_levels, conclude, cross_check, edge_params, event, near_on,
+    CaptureMeasurement, Event, Found, MeasureError, MeasureOptions, Survey, Trace, MIN_STATE_RUN,
 };
 use crate::capture::{AdcRange, TakeValues};
 use crate::{events, levels};
@@ -344,13 +343,7 @@ pub fn measure_stream<O: Observer>(
                 .filter(|&(a, b)| near_on(a, b, v_on, step)),
         )
         .unwrap_or(rough_sigma);
-        let mut params = events::EdgeParams {
-            v_on,
-            v_off,
-            hysteresis_f: hysteresis_of(sigma, adc_step_v, step),
-            dwell_samples: 0,
-            floor_f: floor_of(sigma, adc_step_v, step),
-        };
+        let mut params = edge_params(v_on, v_off, sigma, adc_step_v);
         // The dwell only has to fall in the wide gap between ring dips and on states
         // (ratio DWELL_GAP_RATIO or more), which run lengths counted on the thinned copy
         // locate to a stride either way; with a stride of 1 they are the exact ones.
