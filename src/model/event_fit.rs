@@ -495,7 +495,7 @@ pub fn apply_fit(event: &mut Event, fit: &EventFit, ctx: &ModelContext) {
             event.q_factor = f.q_factor;
             event.fit_rms_v = Some(f.rms_v);
             // The fit refines the ring frequency as it does the damping ratio when it has
-            // fitted the same ring (within half an octave of the crossings' estimate): it
+            // fitted the same ring (within a factor of 1.5 of the crossings' estimate): it
             // leaves out the samples a body diode or clamp holds, while the crossings count
             // a clipped trough's time in the period (12 to 42 % low on simulated coils
             // whose troughs the diode clips). Another ring is left to the crossings.
