@@ -152,20 +152,26 @@ impl LeftOut {
         }
     }
 
-    /// Drops the clip level when `samples` go further past it than a conducting diode
-    /// would let them (1.6 V past the level, about 2 V past the rail, and six noise
-    /// deviations): then nothing clamps there (a switch without a body diode, a relay
-    /// contact) and the ring swings freely through it. Left in, every trough cut the ring
-    /// into stretches of half a period, none long enough for the damped sine, and a clean
-    /// ring of a 12 V coil got the exponential model with residuals of 150 V.
+    /// Drops the clip level when the ring in `samples` swings far past it: further than a
+    /// conducting diode would let it (1.6 V past the level, and six noise deviations) and
+    /// by more than a quarter of the spike's height above it. Then nothing clamps there (a
+    /// switch without a body diode, a relay contact) and the ring swings freely through it.
+    /// Left in, every trough cut the ring into stretches of half a period, none long enough
+    /// for the damped sine, and a clean ring of a 12 V coil got the exponential model with
+    /// residuals of 150 V. (The quarter keeps a clamp that holds the troughs a few volts
+    /// out, as a diode at a large current or a zener does: dropped there, the fit ran
+    /// through the flat troughs.)
     pub(crate) fn unless_passed(mut self, samples: &[f64], noise_v: f64) -> Self {
         if let Some(c) = self.clip_s {
-            let deepest = samples
+            let (deepest, highest) = samples
                 .iter()
                 .filter(|x| x.is_finite())
                 .map(|&x| self.sign * x)
-                .fold(f64::INFINITY, f64::min);
-            if deepest < c - DIODE_HOLDS_V - 6.0 * noise_v {
+                .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), y| {
+                    (lo.min(y), hi.max(y))
+                });
+            let depth = c - deepest;
+            if depth > DIODE_HOLDS_V + 6.0 * noise_v && depth > 0.25 * (highest - c) {
                 self.clip_s = None;
             }
         }
@@ -499,8 +505,10 @@ pub fn apply_fit(event: &mut Event, fit: &EventFit, ctx: &ModelContext) {
             // leaves out the samples a body diode or clamp holds, while the crossings count
             // a clipped trough's time in the period (12 to 42 % low on simulated coils
             // whose troughs the diode clips). Another ring is left to the crossings.
+            // (And only a fit that follows the ring: residuals under 5 % of its amplitude.)
             let same_ring = |f: f64, g: f64| f > 0.0 && g > 0.0 && (f / g).max(g / f) < 1.5;
-            if event.ring_freq_hz.is_some_and(|g| same_ring(f.f_d_hz, g)) {
+            let follows = f.rms_v < 0.05 * f.a_v.hypot(f.b_v);
+            if follows && event.ring_freq_hz.is_some_and(|g| same_ring(f.f_d_hz, g)) {
                 event.ring_freq_hz = Some(f.f_d_hz);
             }
             if event.ring_freq_hz.is_none() {
