@@ -423,7 +423,14 @@ pub const BODY_DIODE_CLIP_V: f64 = 0.4;
 /// on level than the body diode's clip, or than six noise deviations and two codes when the
 /// noise is larger (an on state's own noise never reaches past it), are not the on state.
 fn floor_of(sigma_v: f64, adc_step_v: f64, step_v: f64) -> f64 {
-    BODY_DIODE_CLIP_V.max(6.0 * sigma_v + 2.0 * adc_step_v) / step_v
+    past_rail_v(sigma_v, adc_step_v) / step_v
+}
+
+/// How far past a rail (or the on level) a sample lies before it is a conducting diode's,
+/// not the state's own noise: the body diode's clip, or six noise deviations and two codes
+/// when the noise is larger.
+fn past_rail_v(sigma_v: f64, adc_step_v: f64) -> f64 {
+    BODY_DIODE_CLIP_V.max(6.0 * sigma_v + 2.0 * adc_step_v)
 }
 
 /// The edge detector's settings for these levels and this noise, its dwell left for the
@@ -467,7 +474,7 @@ fn choose_levels(
             // beyond ground, a freewheel diode beyond the supply: a stretch there can
             // outnumber a short on state or a settled off state, and was taken for it).
             let hw = 0.15 * sup.abs();
-            let clip = BODY_DIODE_CLIP_V.max(6.0 * survey.rough_sigma_v + 2.0 * survey.adc_step_v);
+            let clip = past_rail_v(survey.rough_sigma_v, survey.adc_step_v);
             let (r_lo, r_hi) = (sup.min(0.0), sup.max(0.0));
             let within =
                 |from: f64, to: f64| levels::level_near(v, 0.5 * (from + to), 0.5 * (to - from));

@@ -322,7 +322,7 @@ pub struct AnalysisArgs {
 /// `--settle-band` when not given, in percent of the step.
 const SETTLE_BAND_DEFAULT_PCT: f64 = 5.0;
 
-fn opt_si(name: &str, v: &Option<String>, unit: &str) -> Result<Option<f64>> {
+pub(crate) fn opt_si(name: &str, v: &Option<String>, unit: &str) -> Result<Option<f64>> {
     v.as_deref()
         .map(|s| parse_si(s, Some(unit)).with_context(|| format!("--{name}")))
         .transpose()
@@ -331,7 +331,7 @@ fn opt_si(name: &str, v: &Option<String>, unit: &str) -> Result<Option<f64>> {
 /// [`opt_si`] for a quantity that only makes sense above zero (a rating, a limit, an
 /// inductance, a time): a negative or zero value is a slip of the keyboard, and taking it
 /// would fail every event against `--rating 0V` or pass every run against `--fail-above -1V`.
-fn opt_positive(name: &str, v: &Option<String>, unit: &str) -> Result<Option<f64>> {
+pub(crate) fn opt_positive(name: &str, v: &Option<String>, unit: &str) -> Result<Option<f64>> {
     let x = opt_si(name, v, unit)?;
     if let (Some(x), Some(text)) = (x, v) {
         if !(x > 0.0 && x.is_finite()) {
@@ -347,7 +347,7 @@ fn opt_positive(name: &str, v: &Option<String>, unit: &str) -> Result<Option<f64
 /// An example value for an option's error message.
 fn example(name: &str) -> &'static str {
     match name {
-        "rating" | "fail-above" => "60V",
+        "rating" | "fail-above" | "peak-limit" => "60V",
         "inductance" => "200mH",
         "coil-current" => "75mA",
         "switching-rate" | "sample-rate" => "20kHz",

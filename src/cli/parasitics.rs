@@ -10,7 +10,7 @@ use clap::Args;
 use kickscan::model::{self, ParasiticsDoc, ParasiticsInputs};
 use kickscan::units::parse_si;
 
-use super::ReadArgs;
+use super::{opt_positive, opt_si, ReadArgs};
 
 /// Extract the node capacitance and loop inductance behind the ringing, and size a snubber.
 #[derive(Args, Debug, Clone)]
@@ -52,38 +52,21 @@ pub struct ParasiticsArgs {
     pub read: ReadArgs,
 }
 
-fn opt_si(name: &str, v: &Option<String>, unit: &str) -> Result<Option<f64>> {
-    v.as_deref()
-        .map(|s| parse_si(s, Some(unit)).with_context(|| format!("--{name}")))
-        .transpose()
-}
-
 /// Typed inputs from the options, checked before any file is read.
 fn inputs_from(args: &ParasiticsArgs) -> Result<ParasiticsInputs> {
     let c_add_f = parse_si(&args.added, Some("F")).context("--added")?;
     if !kickscan::model::is_pos(c_add_f) {
         bail!("--added: the added capacitance must be positive");
     }
-    let inputs = ParasiticsInputs {
+    Ok(ParasiticsInputs {
         c_add_f,
-        inductance_h: opt_si("inductance", &args.inductance, "H")?,
+        inductance_h: opt_positive("inductance", &args.inductance, "H")?,
         supply_v: opt_si("supply", &args.supply, "V")?,
-        switching_rate_hz: opt_si("switching-rate", &args.switching_rate, "Hz")?,
-        coil_current_a: opt_si("coil-current", &args.coil_current, "A")?,
-        peak_limit_v: opt_si("peak-limit", &args.peak_limit, "V")?,
+        switching_rate_hz: opt_positive("switching-rate", &args.switching_rate, "Hz")?,
+        coil_current_a: opt_positive("coil-current", &args.coil_current, "A")?,
+        peak_limit_v: opt_positive("peak-limit", &args.peak_limit, "V")?,
         c_slope_f: None,
-    };
-    for (name, v) in [
-        ("inductance", inputs.inductance_h),
-        ("switching-rate", inputs.switching_rate_hz),
-        ("coil-current", inputs.coil_current_a),
-        ("peak-limit", inputs.peak_limit_v),
-    ] {
-        if v.is_some_and(|v| v <= 0.0) {
-            bail!("--{name}: expected a positive value");
-        }
-    }
-    Ok(inputs)
+    })
 }
 
 /// Runs `kickscan parasitics`.
